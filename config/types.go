@@ -1,0 +1,382 @@
+package config
+
+import (
+	"log/slog"
+	"slices"
+	"time"
+)
+
+// Enumerated values accepted by the configuration.
+const (
+	LossSquared  = "squared"  // squared loss ½(y − η)², linear models
+	LossLogistic = "logistic" // logistic loss, y ∈ {0, 1}
+
+	PenaltyLasso      = "lasso"       // α = 1
+	PenaltyRidge      = "ridge"       // α = 0
+	PenaltyElasticNet = "elastic-net" // 0 < α < 1, α given by mix
+
+	RuleMin   = "min"    // lowest held-out loss
+	RuleOneSE = "one-se" // largest λ within one standard error of the minimum
+
+	LearnerSAGA  = "saga"  // windowed proximal SAGA
+	LearnerDecay = "decay" // bufferless proximal AdaGrad / FTRL-style learner
+
+	MissingImpute = "impute" // a missing feature takes the window mean
+	MissingReject = "reject" // a record with a missing feature is rejected
+
+	ThresholdFixed     = "fixed"     // alert when p ≥ value
+	ThresholdFPR       = "fpr"       // tune to a held-out false-positive rate of target
+	ThresholdPrecision = "precision" // tune to a held-out precision of target
+
+	DriftADWIN       = "adwin"        // ADWIN on the test-then-train loss
+	DriftPageHinkley = "page-hinkley" // Page-Hinkley on the test-then-train loss
+	DriftOff         = "off"          // no performance drift detection
+
+	LevelDebug = "debug"
+	LevelInfo  = "info"
+	LevelWarn  = "warn"
+	LevelError = "error"
+
+	FormatAuto = "auto" // text on a terminal, JSON otherwise
+	FormatText = "text"
+	FormatJSON = "json"
+)
+
+// Config is the whole configuration file. A Config returned by [Parse] or
+// [Load] has every default filled in and has been validated.
+type Config struct {
+	// NATS is the message bus: embedded (the default) or external.
+	NATS NATS `yaml:"nats"`
+	// HTTP is the HTTP API and status page.
+	HTTP HTTP `yaml:"http"`
+	// SubjectPrefix prefixes every subject lariat publishes on:
+	// <prefix>.model.<name>, <prefix>.alert.<name>, <prefix>.reject.<name>.
+	// Default "lariat". NATS subject tokens, no wildcards.
+	SubjectPrefix string `yaml:"subject_prefix"`
+	// DataDir holds the embedded JetStream store and persisted runtime
+	// state. Default "./lariat-data", relative to the working directory.
+	DataDir string `yaml:"data_dir"`
+	// Log configures the process log.
+	Log Log `yaml:"log"`
+	// Models are the models to keep current; at least one.
+	Models []Model `yaml:"models"`
+
+	src *source // where the config came from (file name, lines); nil if built in code
+}
+
+// NATS configures the connection to the message bus. With URL empty lariat
+// starts an embedded nats-server in-process (JetStream on) on Listen; the
+// authentication and TLS settings apply only to an external server.
+type NATS struct {
+	// URL of an external server: nats:// or tls://, several separated by
+	// commas. Default "" (start an embedded server).
+	URL string `yaml:"url"`
+	// Listen is the embedded server's address, loopback only; port 0 or -1
+	// picks a random port. Default "127.0.0.1:4222". Ignored when URL is set.
+	Listen string `yaml:"listen"`
+	// User name for user/password authentication. Default "".
+	User string `yaml:"user"`
+	// Password, literal. At most one of Password, PasswordFile and
+	// PasswordEnv may be set. Default "".
+	Password Secret `yaml:"password"`
+	// PasswordFile is a file holding the password. Default "".
+	PasswordFile string `yaml:"password_file"`
+	// PasswordEnv names an environment variable holding the password. Default "".
+	PasswordEnv string `yaml:"password_env"`
+	// Token for token authentication, literal. At most one of Token,
+	// TokenFile and TokenEnv may be set. Default "".
+	Token Secret `yaml:"token"`
+	// TokenFile is a file holding the token. Default "".
+	TokenFile string `yaml:"token_file"`
+	// TokenEnv names an environment variable holding the token. Default "".
+	TokenEnv string `yaml:"token_env"`
+	// CredentialsFile is a .creds file (JWT + NKey seed). Default "".
+	CredentialsFile string `yaml:"credentials_file"`
+	// NKeyFile is an NKey seed file. Default "".
+	NKeyFile string `yaml:"nkey_file"`
+	// TLS configures client TLS to an external server.
+	TLS TLS `yaml:"tls"`
+	// PendingMsgs is the per-subscription pending message limit (slow
+	// consumer guard). Default 1048576.
+	PendingMsgs int `yaml:"pending_msgs"`
+	// PendingBytes is the per-subscription pending byte limit. Default
+	// 268435456 (256 MiB); at least 1 MiB.
+	PendingBytes int `yaml:"pending_bytes"`
+}
+
+// TLS names the files for client TLS. A certificate needs its key and the
+// key its certificate; the CA file may stand alone. Defaults "".
+type TLS struct {
+	// CAFile is a PEM bundle of CAs to verify the server with.
+	CAFile string `yaml:"ca_file"`
+	// CertFile is the PEM client certificate.
+	CertFile string `yaml:"cert_file"`
+	// KeyFile is the PEM private key of CertFile.
+	KeyFile string `yaml:"key_file"`
+}
+
+// Enabled reports whether any TLS file is set.
+func (t TLS) Enabled() bool { return t.CAFile != "" || t.CertFile != "" || t.KeyFile != "" }
+
+// HTTP configures the HTTP API and status page.
+type HTTP struct {
+	// Listen is the host:port to serve on. Default "127.0.0.1:8080".
+	Listen string `yaml:"listen"`
+	// AdminTokenFile is a file holding the bearer token required for
+	// state-changing calls. At most one of AdminTokenFile and AdminTokenEnv.
+	// With neither, state-changing calls are disabled. Default "".
+	AdminTokenFile string `yaml:"admin_token_file"`
+	// AdminTokenEnv names an environment variable holding the admin token.
+	// Default "".
+	AdminTokenEnv string `yaml:"admin_token_env"`
+	// MaxBodyBytes caps a request body. Default 1048576 (1 MiB); allowed
+	// 1 KiB to 1 GiB.
+	MaxBodyBytes int64 `yaml:"max_body_bytes"`
+}
+
+// Log configures the process log.
+type Log struct {
+	// Level is debug, info, warn or error. Default "info".
+	Level string `yaml:"level"`
+	// Format is auto (text on a terminal, JSON otherwise), text or json.
+	// Default "auto".
+	Format string `yaml:"format"`
+}
+
+// SlogLevel returns Level as a [slog.Level] (info for anything unknown).
+func (l Log) SlogLevel() slog.Level {
+	switch l.Level {
+	case LevelDebug:
+		return slog.LevelDebug
+	case LevelWarn:
+		return slog.LevelWarn
+	case LevelError:
+		return slog.LevelError
+	}
+	return slog.LevelInfo
+}
+
+// Model configures one model kept current on one stream of labeled records.
+type Model struct {
+	// Name identifies the model in subjects, URLs and metrics:
+	// [a-z0-9][a-z0-9_-]*, at most 64 bytes, unique. Required.
+	Name string `yaml:"name"`
+	// Subject carries the labeled records; a NATS subject, wildcards * and >
+	// allowed. Required.
+	Subject string `yaml:"subject"`
+	// ScoreSubject optionally carries unlabeled records to score against
+	// the alert threshold; logistic models only. Default "".
+	ScoreSubject string `yaml:"score_subject"`
+	// Loss is squared or logistic. Default "squared".
+	Loss string `yaml:"loss"`
+	// Penalty is lasso, ridge or elastic-net. Default "lasso".
+	Penalty string `yaml:"penalty"`
+	// Mix is the elastic-net mixing α in (0,1), required for elastic-net;
+	// it must stay 0 for lasso and ridge. Default 0 (unset).
+	Mix float64 `yaml:"mix"`
+	// Lambda > 0 fixes λ: one learner, no ladder, no retuning. Default 0.
+	Lambda float64 `yaml:"lambda"`
+	// Ladder is the λ grid.
+	Ladder Ladder `yaml:"ladder"`
+	// Window bounds the training window.
+	Window Window `yaml:"window"`
+	// Holdout sets the held-out split.
+	Holdout Holdout `yaml:"holdout"`
+	// Retune sets how λ is chosen on held-out data.
+	Retune Retune `yaml:"retune"`
+	// Learner chooses the optimizer.
+	Learner Learner `yaml:"learner"`
+	// Publish sets when the model is published.
+	Publish Publish `yaml:"publish"`
+	// Features optionally fixes the feature order (enables the "v" array
+	// record form): unique, non-empty names. Default none.
+	Features []string `yaml:"features"`
+	// MaxFeatures caps the feature set (Features plus names learned from
+	// records); at least len(Features), at most 100000. Default 256.
+	MaxFeatures int `yaml:"max_features"`
+	// Missing is impute (window mean) or reject. Default "impute".
+	Missing string `yaml:"missing"`
+	// Queue is the bounded queue length between the bus and the model
+	// goroutine, 1 to 1<<20. Default 4096.
+	Queue int `yaml:"queue"`
+	// Threshold is the alert threshold; logistic models only (a squared
+	// model must leave it at its defaults).
+	Threshold Threshold `yaml:"threshold"`
+	// Drift sets the drift alerts.
+	Drift Drift `yaml:"drift"`
+}
+
+// Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max.
+type Ladder struct {
+	// Size is the number of λ values, 1 to 100. Default 12.
+	Size int `yaml:"size"`
+	// Floor is the smallest λ as a fraction of λ_max, in (0,1). Default 0.001.
+	Floor float64 `yaml:"floor"`
+}
+
+// Window bounds the training window by count and, optionally, time.
+type Window struct {
+	// Records caps the records in the window, 10 to 10000000. The cap
+	// always applies, with or without Span. Default 10000.
+	Records int `yaml:"records"`
+	// Span, when > 0, also evicts records older than the newest record's
+	// time minus Span. Default 0 (no time limit).
+	Span Duration `yaml:"span"`
+}
+
+// Holdout sets the deterministic held-out split.
+type Holdout struct {
+	// Every holds out every k-th record (k ≥ 2). 0 turns the holdout off,
+	// which is allowed only with a fixed λ (lambda > 0) and threshold mode
+	// fixed, since choosing λ or tuning the threshold needs held-out data.
+	// 1 is not allowed (nothing would train). Default 5.
+	Every int `yaml:"every"`
+	// Records caps the held-out ring, 10 to 10000000. Default 2000.
+	Records int `yaml:"records"`
+	// ByKey splits by a hash of the record key instead of its sequence
+	// number. Default false.
+	ByKey bool `yaml:"by_key"`
+}
+
+// Retune sets how often and how λ is chosen.
+type Retune struct {
+	// Every rescores the ladder every this many records, ≥ 1. Default 500.
+	Every int `yaml:"every"`
+	// Rule is min or one-se. Default "one-se".
+	Rule string `yaml:"rule"`
+}
+
+// Learner chooses and tunes the optimizer.
+type Learner struct {
+	// Kind is saga or decay. Default "saga".
+	Kind string `yaml:"kind"`
+	// Steps is the stochastic steps per arriving record per ladder member,
+	// 1 to 64. Default 2.
+	Steps int `yaml:"steps"`
+	// IdleSteps is the extra steps per member when the stream is quiet,
+	// 0 to 1048576. Default 64.
+	IdleSteps int `yaml:"idle_steps"`
+	// HalfLife is the decay learner's forgetting half-life in records, > 0;
+	// ignored by saga. Default 10000.
+	HalfLife float64 `yaml:"half_life"`
+}
+
+// Publish sets when the current model is published.
+type Publish struct {
+	// Heartbeat republishes an unchanged model this often, ≥ 1s. Default 30s.
+	Heartbeat Duration `yaml:"heartbeat"`
+	// Tolerance is the coefficient change (standardized scale) below which
+	// the model counts as unchanged, ≥ 0. Default 0.001.
+	Tolerance float64 `yaml:"tolerance"`
+}
+
+// Threshold is the alert threshold of a logistic model.
+type Threshold struct {
+	// Mode is fixed, fpr or precision. Default "fixed".
+	Mode string `yaml:"mode"`
+	// Value is the threshold on p in (0,1) for mode fixed, and the starting
+	// threshold until the first tuning for the other modes. Default 0.5.
+	Value float64 `yaml:"value"`
+	// Target is the held-out false-positive rate (fpr) or precision
+	// (precision) to tune to, in (0,1); unused by fixed. Default 0.01.
+	Target float64 `yaml:"target"`
+}
+
+// Drift sets the drift alerts.
+type Drift struct {
+	// Performance is adwin, page-hinkley or off. Default "adwin".
+	Performance string `yaml:"performance"`
+	// Delta is ADWIN's confidence δ, or Page-Hinkley's tolerated magnitude
+	// of change, in (0,1). Default 0.002.
+	Delta float64 `yaml:"delta"`
+	// PSI is the per-feature population stability index alert threshold,
+	// > 0. Default 0.25.
+	PSI float64 `yaml:"psi"`
+	// MeanShift is the standardized mean-shift alert threshold, > 0.
+	// Default 3.
+	MeanShift float64 `yaml:"mean_shift"`
+	// Cooldown suppresses repeats of an alert kind per model, ≥ 0.
+	// Default 10m.
+	Cooldown Duration `yaml:"cooldown"`
+	// Adapt shrinks the window to the post-change records after a
+	// confirmed drift. Default true.
+	Adapt bool `yaml:"adapt"`
+}
+
+// Default returns a Config with every top-level default and no models; it
+// does not validate until at least one model is added.
+func Default() *Config {
+	return &Config{
+		NATS: NATS{
+			Listen:       "127.0.0.1:4222",
+			PendingMsgs:  1 << 20,
+			PendingBytes: 256 << 20,
+		},
+		HTTP: HTTP{
+			Listen:       "127.0.0.1:8080",
+			MaxBodyBytes: 1 << 20,
+		},
+		SubjectPrefix: "lariat",
+		DataDir:       "./lariat-data",
+		Log:           Log{Level: LevelInfo, Format: FormatAuto},
+	}
+}
+
+// DefaultModel returns a Model with every default; Name and Subject are
+// empty and must be set.
+func DefaultModel() Model {
+	return Model{
+		Loss:        LossSquared,
+		Penalty:     PenaltyLasso,
+		Ladder:      Ladder{Size: 12, Floor: 0.001},
+		Window:      Window{Records: 10000},
+		Holdout:     Holdout{Every: 5, Records: 2000},
+		Retune:      Retune{Every: 500, Rule: RuleOneSE},
+		Learner:     Learner{Kind: LearnerSAGA, Steps: 2, IdleSteps: 64, HalfLife: 10000},
+		Publish:     Publish{Heartbeat: Duration(30 * time.Second), Tolerance: 0.001},
+		MaxFeatures: 256,
+		Missing:     MissingImpute,
+		Queue:       4096,
+		Threshold:   defaultThreshold,
+		Drift: Drift{
+			Performance: DriftADWIN,
+			Delta:       0.002,
+			PSI:         0.25,
+			MeanShift:   3,
+			Cooldown:    Duration(10 * time.Minute),
+			Adapt:       true,
+		},
+	}
+}
+
+var defaultThreshold = Threshold{Mode: ThresholdFixed, Value: 0.5, Target: 0.01}
+
+// Logistic reports whether the model uses the logistic loss.
+func (m Model) Logistic() bool { return m.Loss == LossLogistic }
+
+// PenaltyMix returns the penalty's mixing α: 1 for lasso, 0 for ridge,
+// Mix for elastic-net.
+func (m Model) PenaltyMix() float64 {
+	switch m.Penalty {
+	case PenaltyRidge:
+		return 0
+	case PenaltyElasticNet:
+		return m.Mix
+	}
+	return 1
+}
+
+// FixedLambda reports whether λ is fixed (Lambda > 0): no ladder, no retuning.
+func (m Model) FixedLambda() bool { return m.Lambda > 0 }
+
+// HoldoutOff reports whether the held-out split is turned off (Holdout.Every == 0).
+func (m Model) HoldoutOff() bool { return m.Holdout.Every == 0 }
+
+// Model returns the model called name.
+func (c *Config) Model(name string) (*Model, bool) {
+	i := slices.IndexFunc(c.Models, func(m Model) bool { return m.Name == name })
+	if i < 0 {
+		return nil, false
+	}
+	return &c.Models[i], true
+}
