@@ -1,0 +1,300 @@
+package record
+
+import (
+	"math"
+	"strconv"
+)
+
+// field parses the value of top-level field f (0: unknown, skipped). It adds
+// f to have unless the value is null. It returns false on a syntax error.
+func (d *Decoder) field(f fields, r *Record, have *fields) bool {
+	s := &d.s
+	c := s.peek()
+	if c == 'n' && f != 0 {
+		return s.literal("null") // null: as if absent
+	}
+	*have |= f
+	switch {
+	case f == 0 || f == fieldY && d.unlabeled:
+		return s.skip(1)
+	case f == fieldX:
+		if c != '{' {
+			d.semantic(ReasonType, `"x" must be an object`)
+			return s.skip(1)
+		}
+		return d.named(r)
+	case f == fieldV:
+		if c != '[' {
+			d.semantic(ReasonType, `"v" must be an array`)
+			return s.skip(1)
+		}
+		return d.array(r)
+	case f == fieldKey:
+		if c != '"' {
+			d.semantic(ReasonType, `"key" must be a string`)
+			return s.skip(1)
+		}
+		key, ok := s.str()
+		r.Key = append(r.Key[:0], key...)
+		return ok
+	case f == fieldT:
+		return d.time(r)
+	case f == fieldY:
+		return d.label(r)
+	default: // fieldW
+		w, ok, isNum := d.float("w")
+		if ok && isNum && !(w >= 0) {
+			d.semantic(ReasonWeight, `"w" is %g, want ≥ 0`, w)
+		}
+		r.W = w
+		return ok
+	}
+}
+
+// float parses a number field; a value of another type is a type error and
+// is skipped. isNum reports whether the value was a finite number.
+func (d *Decoder) float(name string) (f float64, ok, isNum bool) {
+	s := &d.s
+	if c := s.peek(); c != '-' && (c < '0' || c > '9') {
+		d.semantic(ReasonType, "%q must be a number", name)
+		return 0, s.skip(1), false
+	}
+	f, text, _, ok := s.number()
+	if ok && math.IsInf(f, 0) {
+		d.semantic(ReasonNotFinite, "%q is %s, beyond float64", name, quote(text))
+		return f, ok, false
+	}
+	return f, ok, ok
+}
+
+// label parses "y".
+func (d *Decoder) label(r *Record) bool {
+	s := &d.s
+	if d.logistic {
+		switch s.peek() {
+		case 't':
+			r.Y = 1
+			return s.literal("true")
+		case 'f':
+			r.Y = 0
+			return s.literal("false")
+		}
+	}
+	y, ok, isNum := d.float("y")
+	if d.logistic && isNum && y != 0 && y != 1 {
+		d.semantic(ReasonLabel, `"y" is %g, want 0, 1, true or false`, y)
+	}
+	r.Y = y
+	if d.logistic && y == 0 {
+		r.Y = 0 // not -0
+	}
+	return ok
+}
+
+// time parses "t": an RFC 3339 string or integer Unix milliseconds.
+func (d *Decoder) time(r *Record) bool {
+	s := &d.s
+	switch c := s.peek(); {
+	case c == '"':
+		text, ok := s.str()
+		if !ok {
+			return false
+		}
+		if r.T, r.HasT = parseRFC3339(text); !r.HasT {
+			d.semantic(ReasonTime, `"t" is %s, not an RFC 3339 date-time`, quote(text))
+		}
+		return true
+	case c == '-' || ('0' <= c && c <= '9'):
+		_, text, integer, ok := s.number()
+		if !ok {
+			return false
+		}
+		if integer {
+			r.T, r.HasT = parseMillis(text)
+		}
+		if !r.HasT {
+			d.semantic(ReasonTime, `"t" is %s, not integer Unix milliseconds`, quote(text))
+		}
+		return true
+	}
+	d.semantic(ReasonType, `"t" must be a string or a number`)
+	return s.skip(1)
+}
+
+// parseMillis parses the text of a JSON integer as an int64.
+func parseMillis(text []byte) (int64, bool) {
+	neg := text[0] == '-'
+	if neg {
+		text = text[1:]
+	}
+	var u uint64
+	for _, c := range text {
+		if u > (math.MaxUint64-9)/10 {
+			return 0, false
+		}
+		u = u*10 + uint64(c-'0')
+	}
+	switch {
+	case !neg && u <= math.MaxInt64:
+		return int64(u), true
+	case neg && u <= 1<<63:
+		return int64(-u), true // wraps to MinInt64 at 1<<63, as intended
+	}
+	return 0, false
+}
+
+// named parses the "x" object; the cursor is on '{'.
+func (d *Decoder) named(r *Record) bool {
+	s := &d.s
+	s.i++
+	s.ws()
+	if s.peek() == '}' {
+		s.i++
+		return true
+	}
+	for {
+		if s.peek() != '"' {
+			return s.fail("looking for a channel name")
+		}
+		name, ok := s.str()
+		if !ok {
+			return false
+		}
+		j := d.lookup(name, r)
+		s.ws()
+		if !s.expect(':', "after a channel name") {
+			return false
+		}
+		s.ws()
+		if !d.value(j, name, 0, r) {
+			return false
+		}
+		s.ws()
+		if s.peek() == ',' {
+			s.i++
+			s.ws()
+			continue
+		}
+		return s.expect('}', `after a value in "x"`)
+	}
+}
+
+// lookup returns the index of a channel name, learning it if it is new and
+// the cap allows; -1 if the value is to be skipped.
+func (d *Decoder) lookup(name []byte, r *Record) int {
+	j := d.guess
+	if j >= len(d.names) || d.names[j] != string(name) {
+		var ok bool
+		if j, ok = d.index[string(name)]; !ok {
+			return d.learn(name, r)
+		}
+	}
+	d.guess = j + 1
+	if d.seen[j] == d.gen {
+		d.duplicate(name)
+	}
+	d.seen[j] = d.gen
+	return j
+}
+
+// learn adds a new channel name, or records why it cannot and returns -1.
+func (d *Decoder) learn(name []byte, r *Record) int {
+	if d.err == nil && len(d.names) < d.max {
+		j := len(d.names)
+		n := string(name)
+		d.names = append(d.names, n)
+		d.index[n] = j
+		d.seen = append(d.seen, d.gen)
+		d.guess = j + 1
+		r.X = append(r.X, math.NaN())
+		return j
+	}
+	if d.err == nil {
+		d.semantic(ReasonTooManyFeatures, "new channel %s past the cap of %d features", quote(name), d.max)
+	}
+	// The record is rejected; keep finding duplicates all the same.
+	if _, dup := d.over[string(name)]; dup {
+		d.duplicate(name)
+	} else {
+		if d.over == nil {
+			d.over = make(map[string]struct{})
+		}
+		d.over[string(name)] = struct{}{}
+	}
+	return -1
+}
+
+func (d *Decoder) duplicate(name []byte) {
+	if d.bad == nil {
+		d.bad = newError(ReasonMalformed, `duplicate channel %s in "x"`, quote(name))
+	}
+}
+
+// value parses one channel value (number or null) into X[j]; j < 0 skips
+// it. name is the channel name, or nil for element pos of "v"; it is only
+// used in error details.
+func (d *Decoder) value(j int, name []byte, pos int, r *Record) bool {
+	s := &d.s
+	switch c := s.peek(); {
+	case c == 'n':
+		return s.literal("null")
+	case c == '-' || ('0' <= c && c <= '9'):
+		f, text, _, ok := s.number()
+		if ok && math.IsInf(f, 0) {
+			d.semantic(ReasonNotFinite, "%s is %s, beyond float64", where(name, pos), quote(text))
+		}
+		if j >= 0 {
+			r.X[j] = f
+		}
+		return ok
+	}
+	d.semantic(ReasonType, "%s must be a number or null", where(name, pos))
+	return s.skip(2)
+}
+
+// where names a channel value in an error detail.
+func where(name []byte, pos int) string {
+	if name == nil {
+		return `"v"[` + strconv.Itoa(pos) + "]"
+	}
+	return "channel " + quote(name)
+}
+
+// array parses the "v" array; the cursor is on '['.
+func (d *Decoder) array(r *Record) bool {
+	s := &d.s
+	if d.fixed == 0 {
+		d.semantic(ReasonDimension, `"v" needs a fixed feature list`)
+	}
+	s.i++
+	s.ws()
+	n := 0
+	if s.peek() == ']' {
+		s.i++
+	} else {
+		for {
+			j := n
+			if j >= d.fixed {
+				j = -1
+			}
+			if !d.value(j, nil, n, r) {
+				return false
+			}
+			n++
+			s.ws()
+			if s.peek() == ',' {
+				s.i++
+				s.ws()
+				continue
+			}
+			if !s.expect(']', `after a value in "v"`) {
+				return false
+			}
+			break
+		}
+	}
+	if d.fixed > 0 && n != d.fixed {
+		d.semantic(ReasonDimension, `"v" has %d values, want %d`, n, d.fixed)
+	}
+	return true
+}
