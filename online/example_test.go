@@ -1,0 +1,62 @@
+package online_test
+
+import (
+	"fmt"
+	"math/rand/v2"
+
+	"lariat/online"
+)
+
+// stream returns n records of y = 3·x0 − 2·x2 + noise over 5 features.
+func stream(n int) []online.Record {
+	r := rand.New(rand.NewPCG(1, 2))
+	rs := make([]online.Record, n)
+	for i := range rs {
+		x := make([]float64, 5)
+		for j := range x {
+			x[j] = 10 + 2*r.NormFloat64()
+		}
+		rs[i] = online.Record{X: x, Y: 3*x[0] - 2*x[2] + 0.1*r.NormFloat64()}
+	}
+	return rs
+}
+
+func ExampleNewLadder() {
+	l, err := online.NewLadder(&online.Options{Features: 5, Window: 1000, Seed: 1})
+	if err != nil {
+		panic(err)
+	}
+	fmt.Println(l.Size(), l.Features(), l.Penalty().Kind(), l.Loss().Name())
+	// Output: 12 5 lasso squared
+}
+
+func ExampleLadder_Add() {
+	l, _ := online.NewLadder(&online.Options{Features: 5, Window: 500, Seed: 1})
+	for _, r := range stream(2000) {
+		if err := l.Add(r); err != nil {
+			panic(err)
+		}
+	}
+	fmt.Println(l.Len(), l.Seen())
+	fmt.Println(l.Converge(1e-8, 100))
+	last := l.Size() - 1
+	fmt.Printf("nonzero at λ_max: %d, at the smallest λ: %d\n", l.Nonzero(0), l.Nonzero(last))
+	// Output:
+	// 500 2000
+	// true
+	// nonzero at λ_max: 0, at the smallest λ: 2
+}
+
+func ExampleLadder_Model() {
+	l, _ := online.NewLadder(&online.Options{Features: 5, Window: 500, Lambda: 0.01, Seed: 1})
+	for _, r := range stream(500) {
+		_ = l.Add(r)
+	}
+	l.Converge(1e-10, 100)
+	m := l.Model(0)
+	fmt.Printf("raw: %.2f %.2f %.2f\n", m.Coef[0], m.Coef[2], m.Intercept)
+	fmt.Printf("support: %d of %d\n", m.Nonzero(), len(m.Coef))
+	// Output:
+	// raw: 2.99 -2.00 0.03
+	// support: 2 of 5
+}

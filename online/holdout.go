@@ -1,0 +1,157 @@
+package online
+
+import (
+	"fmt"
+	"math"
+	"slices"
+)
+
+// Holdout is a fixed-capacity ring of held-out records (copies of X, Y and
+// W) on which Ladder.Score measures every ladder member. When full, Add
+// evicts the oldest record. A Holdout is not safe for concurrent use, and
+// Ladder.Score uses its scratch space, so one goroutine owns both.
+type Holdout struct {
+	d    int
+	x    []float64 // Cap()·d values, slot-major
+	y, w []float64 // per slot; w already maps 0 to 1
+	head int       // slot of the oldest record
+	n    int
+	loss Loss // non-nil: labels must lie in its domain
+
+	// Scratch for Ladder.Score, sized to the capacity.
+	vals []float64
+	rank []ranked
+}
+
+// NewHoldout returns an empty ring for records of the given number of
+// features holding at most capacity records. It panics if features or
+// capacity is less than 1.
+func NewHoldout(features, capacity int) *Holdout {
+	if features < 1 || capacity < 1 {
+		panic(fmt.Sprintf("online: NewHoldout(%d, %d): features and capacity must be >= 1", features, capacity))
+	}
+	return &Holdout{
+		d:    features,
+		x:    make([]float64, features*capacity),
+		y:    make([]float64, capacity),
+		w:    make([]float64, capacity),
+		vals: make([]float64, capacity),
+		rank: make([]ranked, 0, capacity),
+	}
+}
+
+// SetLoss makes later Adds reject labels outside loss's domain with ErrLabel,
+// as Ladder.Add does (logistic: 0 or 1). Without it Add accepts any finite
+// label; Ladder.Score with the logistic loss then skips records whose label
+// is not 0 or 1.
+func (h *Holdout) SetLoss(loss Loss) { h.loss = loss }
+
+// Add validates r as Ladder.Add does (the label domain only after SetLoss)
+// and stores a copy of it, evicting the oldest record when the ring is full.
+// A rejected record leaves the ring untouched; the error wraps ErrDimension,
+// ErrNotFinite, ErrLabel or ErrWeight. NaN in X marks a missing value, kept
+// as NaN (Ladder.Eta then counts it at the feature's mean). Add does not
+// allocate.
+func (h *Holdout) Add(r Record) error {
+	if err := checkHeldOut(&r, h.d, h.loss); err != nil {
+		return err
+	}
+	capacity := len(h.y)
+	slot := h.head + h.n
+	if h.n == capacity {
+		slot = h.head
+		h.head++
+	} else {
+		h.n++
+	}
+	if slot >= capacity {
+		slot -= capacity
+	}
+	if h.head == capacity {
+		h.head = 0
+	}
+	copy(h.x[slot*h.d:(slot+1)*h.d], r.X)
+	h.y[slot] = r.Y
+	w := r.W
+	if w == 0 {
+		w = 1
+	}
+	h.w[slot] = w
+	return nil
+}
+
+// checkHeldOut validates r by the rules of Ladder.Add (ladder.go's check,
+// same bounds and messages); loss nil skips the label-domain check. The
+// test TestHoldoutValidationMatchesLadder keeps the two in step.
+func checkHeldOut(r *Record, d int, loss Loss) error {
+	if len(r.X) != d {
+		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), d)
+	}
+	for j, v := range r.X {
+		if v == v && !(math.Abs(v) <= maxValue) {
+			return fmt.Errorf("%w: feature %d is %v (limit ±%g)", ErrNotFinite, j, v, maxValue)
+		}
+	}
+	if !(math.Abs(r.Y) <= maxValue) {
+		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
+	}
+	if _, ok := loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
+		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
+	}
+	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
+		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)
+	}
+	return nil
+}
+
+// Len returns the number of records held.
+func (h *Holdout) Len() int { return h.n }
+
+// Cap returns the capacity given to NewHoldout.
+func (h *Holdout) Cap() int { return len(h.y) }
+
+// Features returns the number of features per record.
+func (h *Holdout) Features() int { return h.d }
+
+// At returns record i, 0 being the oldest and Len()−1 the newest. x aliases
+// the ring's storage: read it before the next Add and do not modify it. w is
+// the effective weight (a stored 0 reads as 1). At panics if i is out of
+// range.
+func (h *Holdout) At(i int) (x []float64, y, w float64) {
+	if i < 0 || i >= h.n {
+		panic(fmt.Sprintf("online: Holdout.At(%d) with %d records", i, h.n))
+	}
+	s := h.slot(i)
+	return h.x[s*h.d : (s+1)*h.d : (s+1)*h.d], h.y[s], h.w[s]
+}
+
+// Labels returns the held-out labels, oldest first, in dst resized to Len().
+func (h *Holdout) Labels(dst []float64) []float64 {
+	dst = slices.Grow(dst[:0], h.n)[:h.n]
+	for k := range dst {
+		dst[k] = h.y[h.slot(k)]
+	}
+	return dst
+}
+
+// Weights returns the effective held-out weights (a stored 0 reads as 1),
+// oldest first, in dst resized to Len().
+func (h *Holdout) Weights(dst []float64) []float64 {
+	dst = slices.Grow(dst[:0], h.n)[:h.n]
+	for k := range dst {
+		dst[k] = h.w[h.slot(k)]
+	}
+	return dst
+}
+
+// slot returns the storage slot of logical record i.
+func (h *Holdout) slot(i int) int {
+	s := h.head + i
+	if s >= len(h.y) {
+		s -= len(h.y)
+	}
+	return s
+}
+
+// Reset empties the ring; its capacity and SetLoss setting are kept.
+func (h *Holdout) Reset() { h.head, h.n = 0, 0 }

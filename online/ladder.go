@@ -1,0 +1,383 @@
+package online
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"time"
+)
+
+// Record is one labeled observation on the model's fixed feature order.
+type Record struct {
+	X []float64 // len == Features; NaN marks a missing value (imputed with the feature's current window mean at Add)
+	Y float64   // label: any finite number (squared), 0 or 1 (logistic)
+	W float64   // weight; 0 means 1; must be finite and >= 0
+	T int64     // Unix milliseconds; drives Span eviction; 0 = no time
+}
+
+// Options configures a Ladder; nil or the zero value gives the defaults
+// shown.
+type Options struct {
+	Loss     Loss          // default Squared{}
+	Penalty  *Penalty      // default lasso (Mix 1)
+	Features int           // d, required >= 1
+	Window   int           // max records in the train window; default 10000
+	Span     time.Duration // 0 = none; else records with T < newest.T − Span are evicted
+	Size     int           // K ladder members; default 12
+	Floor    float64       // ε, smallest λ = ε·λ_max; default 1e-3
+	Lambda   float64       // > 0: one fixed λ (Size forced to 1, no re-anchoring)
+	Steps    int           // stochastic steps per arriving record per member; default 2
+	Seed     uint64        // PRNG seed (math/rand/v2 PCG); same seed+records => bit-identical
+	Learner  string        // "saga" (default) or "decay" (FTRL-Proximal, no buffer)
+	HalfLife float64       // decay learner forgetting half-life in records; default 10000
+}
+
+// Errors returned by NewLadder and Add. Add wraps them with the offending
+// feature or value (errors.Is matches).
+var (
+	ErrDimension = errors.New("online: record has the wrong number of features")
+	ErrNotFinite = errors.New("online: non-finite value")
+	ErrLabel     = errors.New("online: label outside the loss's domain")
+	ErrWeight    = errors.New("online: weight must be finite and non-negative")
+	ErrEmpty     = errors.New("online: empty window")
+	ErrOptions   = errors.New("online: invalid options")
+)
+
+// Input bounds. A feature or label beyond ±maxValue is rejected with
+// ErrNotFinite and a weight outside [minWeight, maxWeight] with ErrWeight:
+// with both, every sum of w·x² over 10^8 records stays far below the
+// largest float64, so no NaN or Inf can arise downstream.
+const (
+	maxValue  = 1e50
+	minWeight = 1e-50
+	maxWeight = 1e50
+)
+
+// topMargin lifts the top of the grid just above λ_max so that rounding in
+// the sums cannot leave member 0 with a stray nonzero coefficient.
+const topMargin = 1e-9
+
+// lambdaMixFloor is the α used to anchor the grid when α < 0.001 (ridge):
+// λ_max is infinite for α = 0, so the grid is anchored as for α = 0.001, as
+// glmnet does (Friedman, Hastie & Tibshirani 2010, §2.5).
+const lambdaMixFloor = 1e-3
+
+// Ladder is K penalized GLMs on a log grid of λ, trained on one stream.
+// With the default "saga" learner every member minimizes exactly
+//
+//	F(b, θ) = (1/W) Σ w_i ℓ(y_i, b + x̃_iᵀθ) + λ(α‖θ‖₁ + (1−α)/2‖θ‖²)
+//
+// over the records now in the train window, by windowed proximal SAGA
+// steps; the "decay" learner has no window and forgets with a half-life.
+// A Ladder is not safe for concurrent use.
+type Ladder struct {
+	opt     Options
+	d       int
+	alpha0  float64 // α of the λ_max anchor
+	seen    uint64
+	lambdas []float64
+	lmax    float64 // λ_max of the current data
+	anchor  float64 // λ_max the grid was last anchored on
+	members []member
+	saga    *sagaLearner
+	decay   *decayLearner
+	xbuf    []float64 // the record being added, missing values imputed
+	scr     scratch   // buffers of KKT and Converge
+}
+
+// member is one λ of the ladder, whichever learner trains it.
+type member interface {
+	// params returns the intercept b and the standardized coefficients θ
+	// (the member's own slice, not a copy).
+	params() (b float64, theta []float64)
+	// setLambda sets the member's λ.
+	setLambda(lambda float64)
+}
+
+// NewLadder returns an empty ladder configured by o.
+func NewLadder(o *Options) (*Ladder, error) {
+	opt, err := resolve(o)
+	if err != nil {
+		return nil, err
+	}
+	l := &Ladder{
+		opt: opt, d: opt.Features, alpha0: max(opt.Penalty.Mix, lambdaMixFloor),
+		lambdas: make([]float64, opt.Size), xbuf: make([]float64, opt.Features),
+	}
+	if opt.Learner == "decay" {
+		l.decay = newDecay(&opt, opt.Features)
+		for _, m := range l.decay.ms {
+			l.members = append(l.members, m)
+		}
+	} else {
+		l.saga = newSAGA(&opt, opt.Features)
+		for _, m := range l.saga.ms {
+			l.members = append(l.members, m)
+		}
+		l.scr = newScratch(opt.Features, opt.Window)
+	}
+	if opt.Lambda > 0 {
+		l.lambdas[0] = opt.Lambda
+		l.applyLambdas()
+	}
+	return l, nil
+}
+
+// resolve fills the defaults of o and validates it.
+func resolve(o *Options) (Options, error) {
+	var opt Options
+	if o != nil {
+		opt = *o
+	}
+	bad := func(format string, a ...any) (Options, error) {
+		return opt, fmt.Errorf("%w: "+format, append([]any{ErrOptions}, a...)...)
+	}
+	if opt.Loss == nil {
+		opt.Loss = Squared{}
+	}
+	pen := Lasso()
+	if opt.Penalty != nil {
+		pen = *opt.Penalty
+	}
+	opt.Penalty = &pen
+	switch {
+	case opt.Features < 1:
+		return bad("features %d < 1", opt.Features)
+	case !(pen.Mix >= 0 && pen.Mix <= 1):
+		return bad("penalty mix %v outside [0, 1]", pen.Mix)
+	case opt.Window < 0 || opt.Size < 0 || opt.Steps < 0 || opt.Span < 0:
+		return bad("negative window, size, steps or span")
+	case !(opt.Floor >= 0 && opt.Floor < 1):
+		return bad("floor %v outside [0, 1)", opt.Floor)
+	case !(opt.Lambda >= 0) || math.IsInf(opt.Lambda, 0):
+		return bad("lambda %v", opt.Lambda)
+	case !(opt.HalfLife >= 0) || math.IsInf(opt.HalfLife, 0):
+		return bad("half-life %v", opt.HalfLife)
+	case opt.Learner != "" && opt.Learner != "saga" && opt.Learner != "decay":
+		return bad("learner %q (allowed: saga, decay)", opt.Learner)
+	}
+	def := func(v *int, d int) {
+		if *v == 0 {
+			*v = d
+		}
+	}
+	def(&opt.Window, 10000)
+	def(&opt.Size, 12)
+	def(&opt.Steps, 2)
+	if opt.Floor == 0 {
+		opt.Floor = 1e-3
+	}
+	if opt.HalfLife == 0 {
+		opt.HalfLife = 10000
+	}
+	if opt.Learner == "" {
+		opt.Learner = "saga"
+	}
+	if opt.Lambda > 0 {
+		opt.Size = 1
+	}
+	return opt, nil
+}
+
+// Add validates r, copies it into the train window (evicting by count and
+// span), and takes Steps proximal SAGA steps per member (or one decay
+// update). A rejected record returns one of the errors above, wrapped with
+// detail, and leaves the ladder untouched. Missing features (NaN) are
+// imputed with the feature's current window mean (the running mean of the
+// decay learner), which is 0 on the standardized scale and so contributes
+// nothing. Add does not allocate.
+func (l *Ladder) Add(r Record) error {
+	if err := l.check(&r); err != nil {
+		return err
+	}
+	w := r.W
+	if w == 0 {
+		w = 1
+	}
+	l.seen++
+	if l.decay != nil {
+		if l.decay.learn(r.X, r.Y, w) {
+			l.reanchor(l.decay.lambdaMax(l.alpha0))
+		}
+		return nil
+	}
+	l.saga.admit(l.xbuf, r.Y, w, r.T)
+	if l.saga.maintain() {
+		l.reanchor(l.saga.lambdaMax(l.alpha0))
+	}
+	l.saga.run(l.opt.Steps)
+	return nil
+}
+
+// check validates r without changing the ladder; for the SAGA learner it
+// copies the features to l.xbuf with missing values imputed by the window
+// mean (kernel impute).
+func (l *Ladder) check(r *Record) error {
+	if len(r.X) != l.d {
+		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), l.d)
+	}
+	if l.saga != nil && impute(l.xbuf, r.X, l.saga.ts.sc.mean, maxValue) {
+		return l.checkLabel(r)
+	}
+	for j, v := range r.X {
+		if !(v != v || (v <= maxValue && v >= -maxValue)) {
+			return fmt.Errorf("%w: feature %d is %v (limit ±%g)", ErrNotFinite, j, v, maxValue)
+		}
+	}
+	return l.checkLabel(r)
+}
+
+// checkLabel validates the label and weight of r.
+func (l *Ladder) checkLabel(r *Record) error {
+	if !(math.Abs(r.Y) <= maxValue) {
+		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
+	}
+	if _, ok := l.opt.Loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
+		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
+	}
+	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
+		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)
+	}
+	return nil
+}
+
+// Idle takes steps extra proximal SAGA steps per member, for a quiet
+// stream; it first refreshes the working scale if records arrived since the
+// last refresh. It does nothing for the decay learner or an empty window.
+func (l *Ladder) Idle(steps int) {
+	if l.saga == nil || steps <= 0 || l.saga.ts.ring.Len() == 0 {
+		return
+	}
+	if l.saga.ts.since > 0 {
+		l.saga.refresh()
+		l.reanchor(l.saga.lambdaMax(l.alpha0))
+	}
+	l.saga.run(steps)
+}
+
+// Shrink keeps only the newest n records of the train window (for drift
+// adaptation); the models stay warm. For the decay learner it discounts the
+// accumulated state so that it weighs at most n records.
+func (l *Ladder) Shrink(n int) {
+	if l.decay != nil {
+		l.decay.shrinkTo(float64(max(n, 0)))
+		return
+	}
+	l.saga.shrinkTo(n)
+	if l.saga.ts.ring.Len() > 0 {
+		l.reanchor(l.saga.lambdaMax(l.alpha0))
+	}
+}
+
+// Len returns the number of records in the train window; for the decay
+// learner, the decayed record count Σ 2^(−age/half-life), rounded.
+func (l *Ladder) Len() int {
+	if l.decay != nil {
+		return int(math.Round(l.decay.count))
+	}
+	return l.saga.ts.ring.Len()
+}
+
+// Seen returns the number of records ever accepted.
+func (l *Ladder) Seen() uint64 { return l.seen }
+
+// Size returns K, the number of members.
+func (l *Ladder) Size() int { return len(l.members) }
+
+// Features returns d.
+func (l *Ladder) Features() int { return l.d }
+
+// Lambda returns member i's λ: i = 0 is the largest (λ_max), i = K−1 the
+// smallest (ε·λ_max).
+func (l *Ladder) Lambda(i int) float64 { return l.lambdas[i] }
+
+// LambdaMax returns λ_max of the current data as of the last refresh of
+// the scale: the smallest λ whose lasso (α ≥ 0.001 for the anchor) has every
+// coefficient zero.
+func (l *Ladder) LambdaMax() float64 { return l.lmax }
+
+// Loss returns the loss.
+func (l *Ladder) Loss() Loss { return l.opt.Loss }
+
+// Penalty returns the penalty.
+func (l *Ladder) Penalty() Penalty { return *l.opt.Penalty }
+
+// Nonzero returns the number of nonzero coefficients of member i.
+func (l *Ladder) Nonzero(i int) int {
+	_, th := l.members[i].params()
+	n := 0
+	for _, v := range th {
+		if v != 0 {
+			n++
+		}
+	}
+	return n
+}
+
+// Eta returns the linear predictor b + x̃ᵀθ of member i on the raw feature
+// vector x, standardized with the scale the member was fitted with; a
+// missing value (NaN) contributes 0. It panics if len(x) != Features().
+func (l *Ladder) Eta(i int, x []float64) float64 {
+	if len(x) != l.d {
+		panic("online: Eta: wrong number of features")
+	}
+	b, th := l.members[i].params()
+	mu, _, inv := l.scale()
+	for j, v := range x {
+		if v == v {
+			b += th[j] * ((v - mu[j]) * inv[j])
+		}
+	}
+	return b
+}
+
+// scale returns the working scale of the learner: means, standard
+// deviations and inverse standard deviations (0 for constant features).
+func (l *Ladder) scale() (mu, sd, inv []float64) {
+	if l.decay != nil {
+		return l.decay.mean, l.decay.sd, l.decay.inv
+	}
+	return l.saga.ts.mu, l.saga.ts.sd, l.saga.ts.inv
+}
+
+// reanchor records λ_max of the current data and, unless λ is fixed, moves
+// the grid λ_i = λ_max·(1 + 10⁻⁹)·ε^(i/(K−1)) onto it. When λ_max moved by half a grid
+// step or more, each SAGA member is first replaced by a warm copy of the old
+// member nearest its new λ (pathwise warm starts, Friedman, Hastie &
+// Tibshirani 2010, §2.5). The rule: every refresh of the scale (every
+// refreshEvery = 32 records, at Idle, Shrink and Converge) re-anchors.
+func (l *Ladder) reanchor(lmax float64) {
+	l.lmax = lmax
+	if l.opt.Lambda > 0 || lmax == l.anchor {
+		return
+	}
+	old := l.anchor
+	l.anchor = lmax
+	K := len(l.lambdas)
+	if l.saga != nil && K > 1 && old > 0 && lmax > 0 {
+		step := math.Log(l.opt.Floor) / float64(K-1)
+		if k := int(math.Round(math.Log(lmax/old) / step)); k != 0 {
+			l.saga.shift(max(-K, min(K, k)))
+		}
+	}
+	top := lmax * (1 + topMargin)
+	for i := range l.lambdas {
+		l.lambdas[i] = top
+		if K > 1 {
+			l.lambdas[i] = top * math.Pow(l.opt.Floor, float64(i)/float64(K-1))
+		}
+	}
+	l.applyLambdas()
+}
+
+// applyLambdas hands the grid to the members.
+func (l *Ladder) applyLambdas() {
+	for i, m := range l.members {
+		m.setLambda(l.lambdas[i])
+	}
+	if l.saga != nil {
+		for _, m := range l.saga.ms {
+			m.setStep(l.saga.gamma, l.saga.alpha)
+		}
+	}
+}

@@ -1,0 +1,429 @@
+package online
+
+import (
+	"math"
+	"math/rand/v2"
+)
+
+// sagaMember is one λ of a windowed proximal SAGA ladder. It keeps one
+// scalar gradient g_i = w_i·ℓ'(y_i, η_i) per window record (by ring slot)
+// and their sums in raw units, S = Σ g_i x_i and G = Σ g_i, so that a
+// moving mean or scale leaves no stale state: the standardized average
+// gradient is (S − μG)/(s·W) exactly.
+type sagaMember struct {
+	lambda float64
+	b      float64   // intercept
+	theta  []float64 // standardized coefficients θ
+	s      []float64 // S = Σ g_i x_i (raw units)
+	gsum   float64   // G = Σ g_i
+	g      []float64 // g_i of the record in slot at g[slot·K]: the learner's slot-major table from offset k
+	thr    float64   // γλα, the soft threshold of the prox
+	shrink float64   // 1/(1 + γλ(1−α)), the ridge part of the prox
+	eta    float64   // predictor on the record of the coming step (run)
+	gnew   float64   // pending admission: gradient of the new record
+	gold   float64   // pending admission: gradient of the record it replaces
+}
+
+var _ member = (*sagaMember)(nil)
+
+func (m *sagaMember) params() (float64, []float64) { return m.b, m.theta }
+func (m *sagaMember) setLambda(lambda float64)     { m.lambda = lambda }
+
+// setStep caches the prox constants for step γ and mix α.
+func (m *sagaMember) setStep(gamma, alpha float64) {
+	m.thr = gamma * m.lambda * alpha
+	m.shrink = 1 / (1 + gamma*m.lambda*(1-alpha))
+}
+
+// copyFrom makes m a warm copy of o (state, not λ).
+func (m *sagaMember) copyFrom(o *sagaMember, slots []int, k int) {
+	m.b, m.gsum = o.b, o.gsum
+	copy(m.theta, o.theta)
+	copy(m.s, o.s)
+	for _, s := range slots {
+		m.g[s*k] = o.g[s*k]
+	}
+}
+
+// sagaLearner trains every member of a ladder on one shared trainset with
+// proximal SAGA (Defazio, Bach & Lacoste-Julien 2014) on
+// F(b, θ) = (1/W) Σ w_i ℓ(y_i, b + x̃_iᵀθ) + λ(α‖θ‖₁ + (1−α)/2‖θ‖²).
+// All members take their steps at the same random record, drawn from one
+// PCG stream, so the record's row is read once per step for all of them.
+type sagaLearner struct {
+	ts    *trainset
+	ms    []*sagaMember
+	loss  Loss
+	curv  float64
+	alpha float64
+	span  int64 // milliseconds; 0 = none
+	rng   *rand.Rand
+	gamma float64
+	k     int       // K, the stride of the gradient table
+	xt    []float64 // the staged record, standardized
+	xn    []float64 // the record of the next step, standardized
+	xa    []float64 // the arriving record, standardized
+
+	// An admission pending in the members' sums (see admit).
+	pending, pfull bool
+	pslot          int
+	pend           []float64 // the new record's features (the ladder's buffer)
+	first          int       // drawn index of the first step, −1 if none
+	primed         bool      // m.eta holds the predictor at s.first
+}
+
+func newSAGA(o *Options, d int) *sagaLearner {
+	s := &sagaLearner{
+		ts: newTrainset(d, o.Window), loss: o.Loss, curv: o.Loss.Curvature(),
+		alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
+		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
+	}
+	// One gradient table for all members, slot-major, so a step reads the
+	// K gradients of its record from one or two cache lines.
+	s.k = o.Size
+	table := make([]float64, o.Window*o.Size)
+	for k := range o.Size {
+		s.ms = append(s.ms, &sagaMember{theta: make([]float64, d), s: make([]float64, d), g: table[k:]})
+	}
+	s.setGamma()
+	return s
+}
+
+// seedStream is the fixed second word of the PCG seed.
+const seedStream = 0x6c61726961742d31
+
+// deriv returns ℓ'(y, η), with the two built-in losses devirtualized.
+func (s *sagaLearner) deriv(y, eta float64) float64 {
+	switch s.loss.(type) {
+	case Squared:
+		return eta - y
+	case Logistic:
+		return Sigmoid(eta) - y
+	}
+	return s.loss.Deriv(y, eta)
+}
+
+// setGamma recomputes the step γ = 1/(3L) and the members' prox constants.
+func (s *sagaLearner) setGamma() {
+	g := 1 / (3 * s.ts.lipschitz(s.curv))
+	if g == s.gamma {
+		return
+	}
+	s.gamma = g
+	for _, m := range s.ms {
+		m.setStep(g, s.alpha)
+	}
+}
+
+// admit evicts what the new record pushes out (span, then count) and
+// appends it. It draws the first step's record now, so each member reads θ
+// once for the two dot products it needs (the new record's gradient g_a at
+// the current model, and the first step's predictor), and it leaves the
+// update of the sums, S += g_a·x_new − g_o·x_old and G += g_a − g_o (g_o of
+// the record the new one replaces), pending: the first step folds it into
+// its pass (kernel sagaArrive), or settle applies it.
+func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
+	ts := s.ts
+	if s.span > 0 && t != 0 {
+		for m, ok := ts.ring.Oldest(); ok && m.t < t-s.span; m, ok = ts.ring.Oldest() {
+			s.evict()
+		}
+	}
+	full := ts.ring.Len() == ts.ring.Cap()
+	n := ts.ring.Len()
+	if !full {
+		n++
+	}
+	s.first = s.rng.IntN(n) // logical index after admission
+	row := x
+	if s.first < n-1 {
+		pre := s.first
+		if full {
+			pre++
+		}
+		row = ts.row(ts.ring.Slot(pre))
+	}
+	stdRow(s.xa, x, ts.mu, ts.inv)
+	stdRow(s.xt, row, ts.mu, ts.inv)
+	slot := -1
+	if full {
+		slot = ts.ring.Slot(0)
+	}
+	for _, m := range s.ms {
+		da, dt := dot2(m.theta, s.xa, s.xt)
+		m.gnew, m.gold = s.finite(w*s.deriv(y, m.b+da)), 0
+		if full {
+			m.gold = m.g[slot*s.k]
+		}
+		m.eta = m.b + dt
+	}
+	if full {
+		ts.replace(x, y, w, t)
+	} else {
+		slot = ts.push(x, y, w, t)
+	}
+	for _, m := range s.ms {
+		m.g[slot*s.k] = m.gnew
+	}
+	s.pending, s.pslot, s.pfull, s.pend = true, slot, full, x
+	s.primed = true
+}
+
+// settle applies a pending admission to the members' sums and stores the
+// new record's row.
+func (s *sagaLearner) settle() {
+	if !s.pending {
+		return
+	}
+	old := s.ts.row(s.pslot)
+	for _, m := range s.ms {
+		if s.pfull {
+			axpy2(m.gnew, s.pend, -m.gold, old, m.s)
+		} else {
+			axpy(m.gnew, s.pend, m.s)
+		}
+		m.gsum += m.gnew - m.gold
+	}
+	copy(old, s.pend)
+	s.pending = false
+}
+
+// finite returns g, or 0 if g is NaN or infinite (unreachable with
+// validated input and γ ≤ 1/(3L); it keeps NaN out of the sums).
+func (s *sagaLearner) finite(g float64) float64 {
+	if math.IsNaN(g) || math.IsInf(g, 0) {
+		return 0
+	}
+	return g
+}
+
+// stage standardizes record x once into s.xt for all the members.
+func (s *sagaLearner) stage(x []float64) { stdRow(s.xt, x, s.ts.mu, s.ts.inv) }
+
+// eta returns member m's linear predictor on the staged record.
+func (s *sagaLearner) eta(m *sagaMember) float64 { return m.b + dot(m.theta, s.xt) }
+
+// evict removes the oldest record from every member's sums and the window.
+func (s *sagaLearner) evict() {
+	ts := s.ts
+	slot := ts.ring.Slot(0)
+	x := ts.row(slot)
+	last := ts.ring.Len() == 1
+	for _, m := range s.ms {
+		if g := m.g[slot*s.k]; g != 0 {
+			axpy(-g, x, m.s)
+			m.gsum -= g
+		}
+		m.g[slot*s.k] = 0
+		if last {
+			clear(m.s)
+			m.gsum = 0
+		}
+	}
+	ts.pop()
+}
+
+// maintain runs the scheduled resync or working-scale refresh and reports
+// whether the scale changed (so the ladder re-anchors).
+func (s *sagaLearner) maintain() bool {
+	ts := s.ts
+	switch {
+	case ts.resyncDue():
+		s.settle()
+		s.resync()
+	case ts.since >= refreshEvery:
+		s.settle()
+		s.refresh()
+		if ts.bound() > 4*ts.boundAtResync && 8*ts.arrivals >= ts.resyncLen {
+			s.resync()
+		}
+	default:
+		s.setGamma()
+		return false
+	}
+	return true
+}
+
+// refresh updates the working scale, zeroes the coefficients of constant
+// features and recomputes the step.
+func (s *sagaLearner) refresh() {
+	s.primed = false
+	s.ts.refresh()
+	for j, v := range s.ts.inv {
+		if v == 0 {
+			for _, m := range s.ms {
+				m.theta[j] = 0
+			}
+		}
+	}
+	s.setGamma()
+}
+
+// resync recomputes the scaler and every member's sums S and G from the
+// stored records and gradients, capping the drift of rounding error.
+// O(n·d·K), run once per resyncEvery window lengths of arrivals (see
+// trainset.resyncDue), so O(d·K/4) per record.
+func (s *sagaLearner) resync() {
+	ts := s.ts
+	ts.recompute()
+	slots := ts.slots[:ts.ring.Len()]
+	for _, m := range s.ms {
+		clear(m.s)
+		m.gsum = 0
+		for _, sl := range slots {
+			if g := m.g[sl*s.k]; g != 0 {
+				axpy(g, ts.row(sl), m.s)
+				m.gsum += g
+			}
+		}
+	}
+	s.refresh()
+}
+
+// run takes steps proximal SAGA steps per member, all at the same random
+// records. The index of the next step is drawn, and its record staged,
+// before the current step, so each member's update also returns its dot
+// product with the next record (kernel sagaDot): one pass per member-step.
+// After admit, the first step is at the record admit drew, and it also
+// folds in the pending admission (kernel sagaArrive).
+func (s *sagaLearner) run(steps int) {
+	ts := s.ts
+	n := ts.ring.Len()
+	if n == 0 || steps <= 0 {
+		s.settle()
+		return
+	}
+	c := s.gamma / ts.sc.w
+	i := s.first
+	if !s.pending && !s.primed {
+		if i < 0 {
+			i = s.rng.IntN(n)
+		}
+		s.stage(ts.row(ts.ring.Slot(i)))
+		for _, m := range s.ms {
+			m.eta = s.eta(m)
+		}
+	}
+	s.first, s.primed = -1, false
+	for k := range steps {
+		slot, r := ts.ring.Slot(i), ts.ring.At(i)
+		x := ts.row(slot)
+		if s.pending && i == n-1 {
+			x = s.pend // the new record's row is not stored yet
+		}
+		next := k+1 < steps
+		if next {
+			i = s.rng.IntN(n)
+			stdRow(s.xn, ts.row(ts.ring.Slot(i)), ts.mu, ts.inv)
+			if s.pending && i == n-1 {
+				stdRow(s.xn, s.pend, ts.mu, ts.inv)
+			}
+		}
+		for _, m := range s.ms {
+			s.step(m, slot, x, r.y, r.w, float64(n), c, next)
+		}
+		if s.pending {
+			copy(ts.row(s.pslot), s.pend)
+			s.pending = false
+		}
+		s.xt, s.xn = s.xn, s.xt
+	}
+}
+
+// step is one proximal SAGA step of member m at the record in slot, whose
+// linear predictor is m.eta: with δ = g_new − g_old, the gradient estimate
+// (δ/w̄)(1, x̃) + (G, S̃)/W (w̄ = W/n, S̃ the standardized S) and c = γ/W,
+// the intercept moves by −c(nδ + G) and each θ_j to
+// prox(θ_j − c·v_j(nδ·x_j + S_j − (nδ + G)μ_j)), v_j = 1/s_j; then S += δx
+// and G += δ (kernel sagaGo). With next set, m.eta becomes the predictor
+// on the staged next record s.xn.
+func (s *sagaLearner) step(m *sagaMember, slot int, x []float64, y, w, n, c float64, next bool) {
+	ts := s.ts
+	gn := w * s.deriv(y, m.eta)
+	if math.IsNaN(gn) || math.IsInf(gn, 0) {
+		gn = m.g[slot*s.k] // unreachable with validated input; keeps NaN out of θ
+	}
+	delta := gn - m.g[slot*s.k]
+	if s.pending {
+		m.gsum += m.gnew - m.gold
+	}
+	e := n * delta
+	h := e + m.gsum
+	m.b -= c * h
+	switch {
+	case s.pending:
+		old := s.pend
+		if s.pfull {
+			old = ts.row(s.pslot)
+		}
+		m.eta = m.b + sagaArrive(m.theta, m.s, x, ts.mu, ts.inv, s.pend, old, s.xn, e, h, c, m.thr, m.shrink, delta, m.gnew, -m.gold)
+	case next:
+		m.eta = m.b + sagaDot(m.theta, m.s, x, ts.mu, ts.inv, s.xn, e, h, c, m.thr, m.shrink, delta)
+	default:
+		saga(m.theta, m.s, x, ts.mu, ts.inv, e, h, c, m.thr, m.shrink, delta)
+	}
+	m.gsum += delta
+	m.g[slot*s.k] = gn
+}
+
+// shift re-seats the members after the λ grid moved by k grid steps
+// (k > 0: λ_max fell, so new member i is nearest to old member i+k): each
+// member becomes a warm copy of its nearest old neighbour.
+func (s *sagaLearner) shift(k int) {
+	K := len(s.ms)
+	slots := s.ts.order()
+	if k > 0 {
+		for i := 0; i < K; i++ {
+			if j := min(i+k, K-1); j != i {
+				s.ms[i].copyFrom(s.ms[j], slots, s.k)
+			}
+		}
+		return
+	}
+	for i := K - 1; i >= 0; i-- {
+		if j := max(i+k, 0); j != i {
+			s.ms[i].copyFrom(s.ms[j], slots, s.k)
+		}
+	}
+}
+
+// shrinkTo evicts the oldest records until at most n remain.
+func (s *sagaLearner) shrinkTo(n int) {
+	if n < 0 {
+		n = 0
+	}
+	if s.ts.ring.Len() <= n {
+		return
+	}
+	for s.ts.ring.Len() > n {
+		s.evict()
+	}
+	if s.ts.ring.Len() > 0 {
+		s.resync()
+	}
+}
+
+// lambdaMax returns λ_max on the working scale with anchor mix alpha.
+func (s *sagaLearner) lambdaMax(alpha float64) float64 {
+	return s.ts.sc.lambdaMax(s.ts.inv, alpha)
+}
+
+// retable recomputes every member's gradient table at its current model
+// and the sums S and G from it, so that the next SAGA steps start from the
+// exact gradient (used after Converge moved the models by polishing).
+func (s *sagaLearner) retable() {
+	ts := s.ts
+	slots := ts.order()
+	for _, m := range s.ms {
+		clear(m.s)
+		m.gsum = 0
+		for i, sl := range slots {
+			r := ts.ring.At(i)
+			x := ts.row(sl)
+			g := r.w * s.deriv(r.y, m.b+stdDot(m.theta, x, ts.mu, ts.inv))
+			m.g[sl*s.k] = g
+			axpy(g, x, m.s)
+			m.gsum += g
+		}
+	}
+}
