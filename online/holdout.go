@@ -9,18 +9,22 @@ import (
 // Holdout is a fixed-capacity ring of held-out records (copies of X, Y and
 // W) on which Ladder.Score measures every ladder member. When full, Add
 // evicts the oldest record. A Holdout is not safe for concurrent use, and
-// Ladder.Score uses its scratch space, so one goroutine owns both.
+// Ladder.Score and Ladder.HoldoutPredictions use its scratch space, so one
+// goroutine owns both.
 type Holdout struct {
 	d    int
 	x    []float64 // Cap()·d values, slot-major
 	y, w []float64 // per slot; w already maps 0 to 1
+	miss []bool    // per slot: the record has a missing value (NaN in x)
 	head int       // slot of the oldest record
 	n    int
 	loss Loss // non-nil: labels must lie in its domain
 
-	// Scratch for Ladder.Score, sized to the capacity.
+	// Scratch for Ladder.Score: vals and rank sized to the capacity, coef
+	// to the features (one member's raw-unit coefficients).
 	vals []float64
 	rank []ranked
+	coef []float64
 }
 
 // NewHoldout returns an empty ring for records of the given number of
@@ -35,8 +39,10 @@ func NewHoldout(features, capacity int) *Holdout {
 		x:    make([]float64, features*capacity),
 		y:    make([]float64, capacity),
 		w:    make([]float64, capacity),
+		miss: make([]bool, capacity),
 		vals: make([]float64, capacity),
 		rank: make([]ranked, 0, capacity),
+		coef: make([]float64, features),
 	}
 }
 
@@ -50,7 +56,8 @@ func (h *Holdout) SetLoss(loss Loss) { h.loss = loss }
 // and stores a copy of it, evicting the oldest record when the ring is full.
 // A rejected record leaves the ring untouched; the error wraps ErrDimension,
 // ErrNotFinite, ErrLabel or ErrWeight. NaN in X marks a missing value, kept
-// as NaN (Ladder.Eta then counts it at the feature's mean). Add does not
+// as NaN (Ladder.Eta then counts it at the feature's mean) and flagged so
+// that Ladder.Score takes the slow path only for such records. Add does not
 // allocate.
 func (h *Holdout) Add(r Record) error {
 	if err := checkHeldOut(&r, h.d, h.loss); err != nil {
@@ -71,6 +78,7 @@ func (h *Holdout) Add(r Record) error {
 		h.head = 0
 	}
 	copy(h.x[slot*h.d:(slot+1)*h.d], r.X)
+	h.miss[slot] = hasNaN(r.X)
 	h.y[slot] = r.Y
 	w := r.W
 	if w == 0 {
@@ -78,6 +86,16 @@ func (h *Holdout) Add(r Record) error {
 	}
 	h.w[slot] = w
 	return nil
+}
+
+// hasNaN reports whether x holds a missing value.
+func hasNaN(x []float64) bool {
+	for _, v := range x {
+		if v != v {
+			return true
+		}
+	}
+	return false
 }
 
 // checkHeldOut validates r by the rules of Ladder.Add (ladder.go's check,
@@ -155,3 +173,16 @@ func (h *Holdout) slot(i int) int {
 
 // Reset empties the ring; its capacity and SetLoss setting are kept.
 func (h *Holdout) Reset() { h.head, h.n = 0, 0 }
+
+// KeepNewest drops all but the newest n records (all of them when n <= 0),
+// as after a confirmed drift; it does nothing when n >= Len(). The kept
+// records stay where they are, so KeepNewest costs O(1) and does not
+// allocate.
+func (h *Holdout) KeepNewest(n int) {
+	n = max(n, 0)
+	if n >= h.n {
+		return
+	}
+	h.head = h.slot(h.n - n)
+	h.n = n
+}

@@ -186,3 +186,106 @@ func BenchmarkHoldoutAdd(b *testing.B) {
 		_ = h.Add(r)
 	}
 }
+
+// TestHoldoutKeepNewest checks that KeepNewest leaves exactly the newest n
+// records in order, with their missing-value flags, that the ring keeps
+// working as a FIFO afterwards, and that Score on the result equals Score on
+// a holdout filled with those records alone (definition of the operation;
+// no external source).
+func TestHoldoutKeepNewest(t *testing.T) {
+	tests := []struct {
+		name       string
+		added      int // records 1..added go in; capacity 5
+		keep, want int // argument and resulting Len
+	}{
+		{"keep some, not wrapped", 4, 2, 2},
+		{"keep some, wrapped", 8, 3, 3},
+		{"keep one", 7, 1, 1},
+		{"keep all", 8, 5, 5},
+		{"more than held", 3, 10, 3},
+		{"zero", 8, 0, 0},
+		{"negative", 6, -2, 0},
+		{"empty ring", 0, 2, 0},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			h := NewHoldout(2, 5)
+			for i := 1; i <= tc.added; i++ {
+				mustAdd(t, h, keepRecord(i))
+			}
+			h.KeepNewest(tc.keep)
+			if h.Len() != tc.want {
+				t.Fatalf("Len = %d, want %d", h.Len(), tc.want)
+			}
+			checkNewest(t, h, tc.added)
+			for i := tc.added + 1; i <= tc.added+7; i++ { // refill past the capacity
+				mustAdd(t, h, keepRecord(i))
+				checkNewest(t, h, i)
+			}
+		})
+	}
+}
+
+// keepRecord is record i of TestHoldoutKeepNewest: x = (i, NaN for odd i),
+// y = 10i, w = i.
+func keepRecord(i int) Record {
+	x1 := float64(-i)
+	if i%2 == 1 {
+		x1 = math.NaN()
+	}
+	return Record{X: []float64{float64(i), x1}, Y: float64(10 * i), W: float64(i)}
+}
+
+func mustAdd(t *testing.T, h *Holdout, r Record) {
+	t.Helper()
+	if err := h.Add(r); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// checkNewest checks that h holds records last−Len()+1 .. last of
+// keepRecord, oldest first, with the right missing-value flags.
+func checkNewest(t *testing.T, h *Holdout, last int) {
+	t.Helper()
+	for k := range h.Len() {
+		i := last - h.Len() + 1 + k
+		x, y, w := h.At(k)
+		_, miss := h.record(h.slot(k))
+		if x[0] != float64(i) || y != float64(10*i) || w != float64(i) || miss != (i%2 == 1) || math.IsNaN(x[1]) != miss {
+			t.Fatalf("At(%d) = %v, %v, %v (missing flag %v), want record %d", k, x, y, w, miss, i)
+		}
+	}
+}
+
+// TestHoldoutKeepNewestScore checks Score after KeepNewest against Score on
+// a fresh holdout given only the kept records: same records in the same
+// order, so the same scores bit for bit.
+func TestHoldoutKeepNewestScore(t *testing.T) {
+	for _, loss := range []Loss{Squared{}, Logistic{}} {
+		l, h := scoreStream(t, loss, 6, 4, 300, 90, true, 0, 0.2)
+		const keep = 37
+		fresh := NewHoldout(6, 90)
+		for k := h.Len() - keep; k < h.Len(); k++ {
+			x, y, w := h.At(k)
+			mustAdd(t, fresh, Record{X: x, Y: y, W: w})
+		}
+		h.KeepNewest(keep)
+		got, want := l.Score(h, nil), l.Score(fresh, nil)
+		if !slices.Equal(got, want) {
+			t.Errorf("%s: after KeepNewest %+v, fresh holdout %+v", loss.Name(), got, want)
+		}
+	}
+}
+
+func TestHoldoutKeepNewestAllocs(t *testing.T) {
+	h := NewHoldout(4, 16)
+	r := Record{X: make([]float64, 4), Y: 1}
+	if n := testing.AllocsPerRun(100, func() {
+		for range 20 {
+			_ = h.Add(r)
+		}
+		h.KeepNewest(3)
+	}); n != 0 {
+		t.Fatalf("KeepNewest allocates %v times per call", n)
+	}
+}

@@ -77,7 +77,9 @@ func classWeights(r []ranked) (pos, neg float64) {
 // group returns the end (exclusive) of the run of equal scores starting at
 // i, and the positive and negative weight in it. r is sorted by byScoreDesc.
 func group(r []ranked, i int) (end int, pos, neg float64) {
-	for end = i; end < len(r) && r[end].s == r[i].s; end++ {
+	// The first element always belongs to its own run, so the loop advances
+	// even when the score compares unequal to itself (NaN).
+	for end = i; end < len(r) && (end == i || r[end].s == r[i].s); end++ {
 		if r[end].y == 1 {
 			pos += r[end].w
 		} else {

@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+	"time"
 )
 
 // rocTieExample is a small worked example with ties across the classes:
@@ -336,4 +337,21 @@ func ExampleThresholdForFPR() {
 	t, ok := ThresholdForFPR(probs, labels, 0.1) // at most 1 false alarm in 10
 	fmt.Println(t, ok)
 	// Output: 0.6 true
+}
+
+// TestAUCSortedNaNTerminates feeds a NaN score straight into the sorted-run
+// walk (as a diverged η would reach it through Ladder.Score): the walk must
+// finish and count every record once. Common practice, no single source.
+func TestAUCSortedNaNTerminates(t *testing.T) {
+	r := []ranked{{s: 0.9, y: 1, w: 1}, {s: math.NaN(), y: 0, w: 1}, {s: math.NaN(), y: 1, w: 1}, {s: 0.1, y: 0, w: 1}}
+	done := make(chan float64, 1)
+	go func() { done <- aucSorted(r) }()
+	select {
+	case got := <-done:
+		if math.IsInf(got, 0) {
+			t.Fatalf("aucSorted = %v, want a finite value or NaN", got)
+		}
+	case <-time.After(5 * time.Second):
+		t.Fatal("aucSorted did not return with a NaN score")
+	}
 }

@@ -13,6 +13,13 @@ import (
 // stream and fills a holdout from the same stream with uneven weights.
 func scoreFixture(t testing.TB, loss Loss, d, k, nTrain, nHold int, weighted bool) (*Ladder, *Holdout) {
 	t.Helper()
+	return scoreStream(t, loss, d, k, nTrain, nHold, weighted, 0, 0)
+}
+
+// scoreStream is scoreFixture with every feature shifted by offset and,
+// with probability missing, one feature of a held-out record missing.
+func scoreStream(t testing.TB, loss Loss, d, k, nTrain, nHold int, weighted bool, offset, missing float64) (*Ladder, *Holdout) {
+	t.Helper()
 	l, err := NewLadder(&Options{Loss: loss, Features: d, Size: k, Window: nTrain, Seed: 1})
 	if err != nil {
 		t.Fatal(err)
@@ -24,9 +31,10 @@ func scoreFixture(t testing.TB, loss Loss, d, k, nTrain, nHold int, weighted boo
 	draw := func() Record {
 		eta := 0.3
 		for j := range x {
-			x[j] = rng.NormFloat64()
+			z := rng.NormFloat64()
+			x[j] = offset + z
 			if j < 3 {
-				eta += float64(3-j) * x[j]
+				eta += float64(3-j) * z
 			}
 		}
 		y := eta + rng.NormFloat64()
@@ -48,7 +56,11 @@ func scoreFixture(t testing.TB, loss Loss, d, k, nTrain, nHold int, weighted boo
 		}
 	}
 	for range nHold {
-		if err := h.Add(draw()); err != nil {
+		r := draw()
+		if missing > 0 && rng.Float64() < missing {
+			r.X[rng.IntN(d)] = math.NaN()
+		}
+		if err := h.Add(r); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -212,22 +224,46 @@ func TestScorePanicsOnDimension(t *testing.T) {
 	l.Score(NewHoldout(3, 2), nil)
 }
 
+// TestScoreAllocs covers the folded path, the standardized fallback and
+// records with missing values.
 func TestScoreAllocs(t *testing.T) {
 	for _, loss := range []Loss{Squared{}, Logistic{}} {
 		l, h := scoreFixture(t, loss, 8, 6, 300, 100, true)
-		dst := make([]Score, 0, l.Size())
-		if n := testing.AllocsPerRun(20, func() { dst = l.Score(h, dst) }); n != 0 {
-			t.Errorf("%s: Score allocates %v times per call", loss.Name(), n)
+		lo, ho := offsetFixture(t, loss, "saga", 1e6)
+		for _, f := range []struct {
+			name string
+			l    *Ladder
+			h    *Holdout
+		}{{"centered", l, h}, {"offset, missing values", lo, ho}} {
+			dst := make([]Score, 0, f.l.Size())
+			pred := make([]float64, 0, f.h.Len())
+			if n := testing.AllocsPerRun(20, func() {
+				dst = f.l.Score(f.h, dst)
+				pred = f.l.HoldoutPredictions(1, f.h, pred)
+			}); n != 0 {
+				t.Errorf("%s %s: Score and HoldoutPredictions allocate %v times per call", loss.Name(), f.name, n)
+			}
 		}
 	}
 }
 
-// BenchmarkScore measures one retune: K = 12 members on 2000 held-out
-// records of d = 32 features.
+// BenchmarkScore measures one retune at the daemon's defaults: K = 12
+// members on 2000 held-out records of d = 32 features; "offset" shifts
+// every feature by 1e6 (the standardized fallback of foldLimit) and
+// "missing" gives 5% of the held-out records a missing value.
 func BenchmarkScore(b *testing.B) {
-	for _, loss := range []Loss{Squared{}, Logistic{}} {
-		b.Run(loss.Name(), func(b *testing.B) {
-			l, h := scoreFixture(b, loss, 32, 12, 4000, 2000, false)
+	for _, bc := range []struct {
+		name            string
+		loss            Loss
+		offset, missing float64
+	}{
+		{"squared", Squared{}, 0, 0},
+		{"logistic", Logistic{}, 0, 0},
+		{"squared-offset", Squared{}, 1e6, 0},
+		{"squared-missing", Squared{}, 0, 0.05},
+	} {
+		b.Run(bc.name, func(b *testing.B) {
+			l, h := scoreStream(b, bc.loss, 32, 12, 4000, 2000, false, bc.offset, bc.missing)
 			dst := make([]Score, 0, 12)
 			b.ReportAllocs()
 			for b.Loop() {
@@ -261,6 +297,163 @@ func TestHoldoutPredictions(t *testing.T) {
 		}
 		if math.Abs(brier/sw-s.Brier) > 1e-12 {
 			t.Errorf("member %d: Brier of predictions %v, Score.Brier %v", i, brier/sw, s.Brier)
+		}
+	}
+}
+
+// offsetFixture trains a ladder on d features x_j = offset·(1 + j/d) +
+// z_j·(0.5 + j/d), z standard normal, so that |μ_j|/s_j is about offset,
+// and fills a holdout of n records from the same stream in which about
+// one record in five has a missing (NaN) feature.
+func offsetFixture(t *testing.T, loss Loss, learner string, offset float64) (*Ladder, *Holdout) {
+	t.Helper()
+	const d, nTrain, nHold = 8, 600, 300
+	l, err := NewLadder(&Options{Loss: loss, Features: d, Size: 6, Window: nTrain, Seed: 3, Learner: learner, HalfLife: 500})
+	if err != nil {
+		t.Fatal(err)
+	}
+	h := NewHoldout(d, nHold)
+	h.SetLoss(loss)
+	rng := rand.New(rand.NewPCG(11, 13))
+	x := make([]float64, d)
+	draw := func(missing bool) Record {
+		eta := 0.2
+		for j := range x {
+			z := rng.NormFloat64()
+			x[j] = offset*(1+float64(j)/d) + z*(0.5+float64(j)/d)
+			eta += float64(d/2-j) / 2 * z
+		}
+		if missing && rng.IntN(5) == 0 {
+			x[rng.IntN(d)] = math.NaN()
+		}
+		y := eta + 0.5*rng.NormFloat64()
+		if _, ok := loss.(Logistic); ok {
+			y = 0
+			if rng.Float64() < Sigmoid(eta) {
+				y = 1
+			}
+		}
+		return Record{X: x, Y: y, W: 0.5 + rng.Float64()}
+	}
+	for range nTrain {
+		if err := l.Add(draw(false)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	l.Idle(100)
+	for range nHold {
+		if err := h.Add(draw(true)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return l, h
+}
+
+// etaTerms returns |b| + Σ|θ_j x̃_j| of member i on x (missing values
+// skipped), the magnitude the standardized sum b + x̃ᵀθ is rounded against.
+func etaTerms(l *Ladder, i int, x []float64) float64 {
+	b, th := l.members[i].params()
+	mu, _, inv := l.scale()
+	s := math.Abs(b)
+	for j, v := range x {
+		if v == v {
+			s += math.Abs(th[j] * (v - mu[j]) * inv[j])
+		}
+	}
+	return s
+}
+
+// TestScoreFoldMatchesEta checks Score's per-record predictor against
+// Ladder.Eta (the standardized b + x̃ᵀθ, missing values at the mean) for
+// every member and held-out record, both losses and both learners, to
+// 1e-12 of |b| + Σ|θ_j x̃_j|; and Score's mean loss against the same mean
+// taken through Ladder.Eta, to 1e-12 relative. The offsets cover the folded
+// raw-unit path (|μ|/s ≈ 0 and just under foldLimit) and the standardized
+// fallback beyond it (|μ|/s ≈ 2e6, where folding would lose about 1e-9).
+// Reference: the algebra of fold (b + x̃ᵀθ = b' + cᵀx); no external source.
+func TestScoreFoldMatchesEta(t *testing.T) {
+	tests := []struct {
+		name   string
+		offset float64
+		raw    bool // every member with a nonzero coefficient takes the folded path
+	}{
+		{"centered", 0, true},
+		{"offset near foldLimit", foldLimit / 2.2, true},
+		{"offset beyond foldLimit", 1e6, false},
+	}
+	for _, tc := range tests {
+		for _, loss := range []Loss{Squared{}, Logistic{}} {
+			for _, learner := range []string{"saga", "decay"} {
+				t.Run(fmt.Sprintf("%s/%s/%s", tc.name, loss.Name(), learner), func(t *testing.T) {
+					l, h := offsetFixture(t, loss, learner, tc.offset)
+					checkFold(t, l, h, tc.raw)
+				})
+			}
+		}
+	}
+}
+
+func checkFold(t *testing.T, l *Ladder, h *Holdout, wantRaw bool) {
+	t.Helper()
+	missing, support := 0, 0
+	var worst float64
+	for i := range l.Size() {
+		p := h.predictor(l, i)
+		if l.Nonzero(i) > 0 {
+			support++
+			if p.raw != wantRaw {
+				t.Errorf("member %d: folded %v, want %v", i, p.raw, wantRaw)
+			}
+		}
+		for k := range h.Len() {
+			x, miss := h.record(h.slot(k))
+			if miss {
+				missing++
+			}
+			got, want := p.eta(x, miss), l.Eta(i, x)
+			e := math.Abs(got-want) / etaTerms(l, i, x)
+			worst = max(worst, e)
+			if !(e <= 1e-12) {
+				t.Errorf("member %d record %d (missing %v): η %v, Ladder.Eta %v", i, k, miss, got, want)
+			}
+		}
+	}
+	t.Logf("worst relative difference %.3g", worst)
+	checkPredictions(t, l, h)
+	if support < 2 || missing == 0 || missing == h.Len()*l.Size() {
+		t.Fatalf("fixture too weak: %d members with support, %d missing records", support, missing)
+	}
+	for _, s := range l.Score(h, nil) {
+		var sum, sw float64
+		for k := range h.Len() {
+			x, y, w := h.At(k)
+			sum += w * l.Loss().Value(y, l.Eta(s.Index, x))
+			sw += w
+		}
+		if want := sum / sw; math.Abs(s.Loss-want) > 1e-12*math.Abs(want) {
+			t.Errorf("member %d: Score.Loss %v, through Ladder.Eta %v", s.Index, s.Loss, want)
+		}
+	}
+}
+
+// checkPredictions compares HoldoutPredictions, which shares Score's
+// predictor, with Ladder.Eta (σ of it for the logistic loss).
+func checkPredictions(t *testing.T, l *Ladder, h *Holdout) {
+	t.Helper()
+	_, logistic := l.Loss().(Logistic)
+	var pred []float64
+	for i := range l.Size() {
+		pred = l.HoldoutPredictions(i, h, pred)
+		for k, got := range pred {
+			x, _, _ := h.At(k)
+			want := l.Eta(i, x)
+			tol := 1e-12 * etaTerms(l, i, x)
+			if logistic {
+				want, tol = Sigmoid(want), 1e-12*max(etaTerms(l, i, x), 1) // σ is 1/4-Lipschitz
+			}
+			if !(math.Abs(got-want) <= tol) {
+				t.Errorf("member %d record %d: prediction %v, from Ladder.Eta %v", i, k, got, want)
+			}
 		}
 	}
 }
