@@ -1,0 +1,628 @@
+package daemon
+
+// This file is the batch side of the daemon: `lariat fit` reads one CSV file,
+// makes the whole file the window and runs the same learner the daemon runs
+// on a stream (online.Ladder) until its KKT conditions hold. It is longer
+// than the usual 500 lines because the command's options, CSV reading,
+// fitting and printing are kept together in one file that one person owns.
+
+import (
+	"bytes"
+	"cmp"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"slices"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+
+	"lariat/online"
+	"lariat/sink"
+	"lariat/window"
+)
+
+// Fit defaults.
+const (
+	// DefaultFitTol is the KKT tolerance Fit converges to when
+	// FitOptions.Tol is 0: the largest violation of the optimality
+	// conditions, on the standardized scale, in units of the loss's
+	// derivative (label units for the squared loss).
+	DefaultFitTol = 1e-9
+	// DefaultFitEpochs is the epoch budget of Fit when FitOptions.MaxEpochs
+	// is 0; an epoch is one pass's worth of steps per ladder member.
+	DefaultFitEpochs = 20000
+	// DefaultFitMix is the elastic-net mix α when FitOptions.Mix is 0.
+	DefaultFitMix = 0.5
+)
+
+// FitOptions configures Fit. Only Input and Label are required.
+type FitOptions struct {
+	// Input is the CSV file: one header row of column names, then one
+	// record per row.
+	Input string
+	// Label is the name of the label column. Every other column with a
+	// number in it is a feature; a column with no number at all (an ID, a
+	// timestamp) is skipped and reported.
+	Label string
+	// Loss is "squared" (default) or "logistic" (labels 0/1 or true/false).
+	Loss string
+	// Penalty is "lasso" (default), "ridge" or "elastic-net".
+	Penalty string
+	// Mix is the elastic-net mix α in (0, 1); 0 means DefaultFitMix. It
+	// must be 0 for lasso and ridge.
+	Mix float64
+	// Lambda > 0 fits that λ. 0 chooses λ on held-out rows: every 5th row
+	// is held out, a ladder of 12 λ from λ_max down to 10⁻³λ_max is fitted
+	// on the others, the one-standard-error rule (or Rule) picks λ, and the
+	// model is refitted with it on every row.
+	Lambda float64
+	// Rule is the selection rule when Lambda is 0: "one-se" (default) or
+	// "min".
+	Rule string
+	// JSON writes the model as one JSON document instead of a table.
+	JSON bool
+	// Ladder also writes the selection ladder (λ, support size and
+	// held-out loss of every member). It needs Lambda == 0.
+	Ladder bool
+	// Tol is the KKT tolerance; 0 means DefaultFitTol.
+	Tol float64
+	// MaxEpochs bounds the work; 0 means DefaultFitEpochs.
+	MaxEpochs int
+	// Seed seeds the learner; the same file and options give the same bits.
+	Seed uint64
+}
+
+// FitError is a problem with Fit's input or options. Its message is one line:
+// "fit: FILE:LINE: column "x": what is wrong", with the parts that do not
+// apply left out.
+type FitError struct {
+	File   string // input file, if the error is about it
+	Line   int    // 1-based line in the file (the header is line 1); 0 if none
+	Column string // column name; "" if none
+	Msg    string
+}
+
+// Error returns the one-line message.
+func (e *FitError) Error() string {
+	var b strings.Builder
+	b.WriteString("fit: ")
+	if e.File != "" {
+		b.WriteString(e.File)
+		if e.Line > 0 {
+			b.WriteString(":" + strconv.Itoa(e.Line))
+		}
+		b.WriteString(": ")
+	}
+	if e.Column != "" {
+		b.WriteString("column " + strconv.Quote(e.Column) + ": ")
+	}
+	b.WriteString(e.Msg)
+	return b.String()
+}
+
+func optionError(format string, args ...any) error {
+	return &FitError{Msg: fmt.Sprintf(format, args...)}
+}
+
+// fitSpec is FitOptions checked and resolved.
+type fitSpec struct {
+	loss      online.Loss
+	penalty   online.Penalty
+	rule      online.Rule
+	tol       float64
+	maxEpochs int
+}
+
+func (o *FitOptions) resolve() (fitSpec, error) {
+	s := fitSpec{tol: o.Tol, maxEpochs: o.MaxEpochs}
+	if o.Input == "" {
+		return s, optionError("no input file (--input)")
+	}
+	if o.Label == "" {
+		return s, optionError("no label column (--label)")
+	}
+	name := orDefault(o.Loss, "squared")
+	var ok bool
+	if s.loss, ok = online.LossByName(name); !ok {
+		return s, optionError("unknown loss %q (allowed: squared, logistic)", o.Loss)
+	}
+	var err error
+	if s.penalty, err = o.resolvePenalty(); err != nil {
+		return s, err
+	}
+	if !(o.Lambda >= 0) || math.IsInf(o.Lambda, 1) {
+		return s, optionError("lambda %v must be a finite number >= 0 (0 = choose on held-out rows)", o.Lambda)
+	}
+	if o.Ladder && o.Lambda > 0 {
+		return s, optionError("--ladder shows how λ is chosen; it cannot be combined with --lambda")
+	}
+	if s.rule, err = online.ParseRule(orDefault(o.Rule, "one-se")); err != nil {
+		return s, optionError("unknown rule %q (allowed: one-se, min)", o.Rule)
+	}
+	if !(s.tol >= 0) || math.IsInf(s.tol, 1) {
+		return s, optionError("tolerance %v must be a finite number >= 0", o.Tol)
+	}
+	if s.tol == 0 {
+		s.tol = DefaultFitTol
+	}
+	if s.maxEpochs <= 0 {
+		s.maxEpochs = DefaultFitEpochs
+	}
+	return s, nil
+}
+
+func (o *FitOptions) resolvePenalty() (online.Penalty, error) {
+	switch kind := orDefault(o.Penalty, "lasso"); kind {
+	case "lasso", "ridge":
+		if o.Mix != 0 {
+			return online.Penalty{}, optionError("--mix applies only to elastic-net, not %s", kind)
+		}
+		if kind == "lasso" {
+			return online.Lasso(), nil
+		}
+		return online.Ridge(), nil
+	case "elastic-net":
+		mix := o.Mix
+		if mix == 0 {
+			mix = DefaultFitMix
+		}
+		if !(mix > 0 && mix < 1) {
+			return online.Penalty{}, optionError("elastic-net mix %v must be in (0, 1)", o.Mix)
+		}
+		return online.ElasticNet(mix), nil
+	}
+	return online.Penalty{}, optionError("unknown penalty %q (allowed: lasso, ridge, elastic-net)", o.Penalty)
+}
+
+func orDefault(s, def string) string {
+	if s == "" {
+		return def
+	}
+	return s
+}
+
+// table is a CSV file parsed for fitting: X is row-major, n × len(names);
+// NaN marks a missing value.
+type table struct {
+	names   []string // feature columns in file order
+	skipped []string // columns with no number in them
+	x, y    []float64
+	lines   []int // file line of each row
+}
+
+func (t *table) rows() int { return len(t.y) }
+
+func (t *table) row(i int) []float64 {
+	d := len(t.names)
+	return t.x[i*d : (i+1)*d]
+}
+
+// readTable reads and checks the whole CSV file.
+func readTable(path, label string, logistic bool) (*table, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, &FitError{Msg: err.Error()}
+	}
+	defer f.Close()
+	header, cells, lines, err := readCells(f, path)
+	if err != nil {
+		return nil, err
+	}
+	li := slices.Index(header, label)
+	if li < 0 {
+		return nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("no label column %q (columns: %s)", label, strings.Join(header, ", "))}
+	}
+	t := &table{lines: lines}
+	var cols []int
+	for j, name := range header {
+		switch {
+		case j == li:
+		case hasNumber(cells, j):
+			cols = append(cols, j)
+			t.names = append(t.names, name)
+		default:
+			t.skipped = append(t.skipped, name)
+		}
+	}
+	if len(cols) == 0 {
+		return nil, &FitError{File: path, Msg: fmt.Sprintf("no numeric feature columns besides the label %q", label)}
+	}
+	t.x = make([]float64, 0, len(cells)*len(cols))
+	t.y = make([]float64, len(cells))
+	for i, rec := range cells {
+		if t.y[i], err = parseLabel(rec[li], logistic); err != nil {
+			return nil, &FitError{File: path, Line: lines[i], Column: label, Msg: err.Error()}
+		}
+		for k, j := range cols {
+			v, err := parseCell(rec[j])
+			if err != nil {
+				return nil, &FitError{File: path, Line: lines[i], Column: t.names[k], Msg: err.Error()}
+			}
+			t.x = append(t.x, v)
+		}
+	}
+	return t, nil
+}
+
+// readCells returns the header, the data rows and each row's line number.
+func readCells(r io.Reader, path string) (header []string, cells [][]string, lines []int, err error) {
+	cr := csv.NewReader(r)
+	header, err = cr.Read()
+	if err == io.EOF {
+		return nil, nil, nil, &FitError{File: path, Msg: "empty file"}
+	}
+	if err != nil {
+		return nil, nil, nil, csvError(path, err)
+	}
+	header[0] = strings.TrimPrefix(header[0], "\ufeff") // byte-order mark of some spreadsheet exports
+	seen := make(map[string]bool, len(header))
+	for i, h := range header {
+		h = strings.TrimSpace(h)
+		switch {
+		case h == "":
+			return nil, nil, nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("column %d has no name", i+1)}
+		case seen[h]:
+			return nil, nil, nil, &FitError{File: path, Line: 1, Column: h, Msg: "appears twice in the header"}
+		}
+		header[i], seen[h] = h, true
+	}
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, nil, nil, csvError(path, err)
+		}
+		line, _ := cr.FieldPos(0)
+		cells = append(cells, rec)
+		lines = append(lines, line)
+	}
+	if len(cells) == 0 {
+		return nil, nil, nil, &FitError{File: path, Msg: "no data rows after the header"}
+	}
+	return header, cells, lines, nil
+}
+
+func csvError(path string, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return &FitError{File: path, Line: pe.Line, Msg: pe.Err.Error()}
+	}
+	return &FitError{File: path, Msg: err.Error()}
+}
+
+// isMissing reports whether a cell is an explicit missing value.
+func isMissing(s string) bool {
+	switch strings.ToLower(s) {
+	case "", "na", "nan":
+		return true
+	}
+	return false
+}
+
+func hasNumber(cells [][]string, j int) bool {
+	for _, rec := range cells {
+		if v, err := parseCell(rec[j]); err == nil && !math.IsNaN(v) {
+			return true
+		}
+	}
+	return false
+}
+
+// parseCell returns the cell's number, NaN for a missing value, or an error.
+func parseCell(s string) (float64, error) {
+	s = strings.TrimSpace(s)
+	if isMissing(s) {
+		return math.NaN(), nil
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	switch {
+	case err != nil && !errors.Is(err, strconv.ErrRange):
+		return 0, fmt.Errorf("not a number %q", s)
+	case err != nil || math.IsInf(v, 0):
+		return 0, fmt.Errorf("not finite %q", s)
+	}
+	return v, nil
+}
+
+func parseLabel(s string, logistic bool) (float64, error) {
+	s = strings.TrimSpace(s)
+	if logistic {
+		switch strings.ToLower(s) {
+		case "true":
+			return 1, nil
+		case "false":
+			return 0, nil
+		}
+	}
+	v, err := parseCell(s)
+	switch {
+	case err != nil:
+		return 0, err
+	case math.IsNaN(v):
+		return 0, errors.New("missing label")
+	case logistic && v != 0 && v != 1:
+		return 0, fmt.Errorf("logistic label must be 0 or 1 (or true/false), got %q", s)
+	}
+	return v, nil
+}
+
+// fitDoc is Fit's JSON document. Its field names follow the model document
+// the daemon publishes (sink.ModelDoc) where the two overlap.
+type fitDoc struct {
+	Input        string                `json:"input"`
+	Label        string                `json:"label"`
+	Loss         string                `json:"loss"`
+	Penalty      sink.PenaltySpec      `json:"penalty"`
+	LambdaMax    float64               `json:"lambda_max"`
+	Intercept    float64               `json:"intercept"`
+	Coefficients map[string]float64    `json:"coefficients"`
+	StdIntercept float64               `json:"standardized_intercept"`
+	Standardized map[string]float64    `json:"standardized"`
+	Features     []string              `json:"features"`
+	Skipped      []string              `json:"skipped,omitempty"`
+	Scale        map[string]sink.Scale `json:"scale"`
+	Records      int                   `json:"records"`
+	Nonzero      int                   `json:"nonzero"`
+	KKT          float64               `json:"kkt"`
+	Tol          float64               `json:"kkt_tol"`
+	Converged    bool                  `json:"converged"`
+	Selection    *fitSelection         `json:"selection,omitempty"`
+	Ladder       []fitRung             `json:"ladder,omitempty"`
+
+	order []int // feature indexes by decreasing |θ|, for the table
+	model online.Model
+}
+
+// fitSelection says how λ was chosen when it was not given.
+type fitSelection struct {
+	Rule      string  `json:"rule"`  // "one-se", "min", or "fraction" (too few rows to hold any out)
+	Every     int     `json:"every"` // one row in Every held out
+	Train     int     `json:"train"`
+	Holdout   int     `json:"holdout"`
+	Index     int     `json:"index"`      // chosen ladder member
+	Loss      float64 `json:"loss"`       // its mean held-out loss
+	SE        float64 `json:"se"`         // and the standard error
+	Lambda    float64 `json:"lambda"`     // λ of the chosen member
+	LambdaMax float64 `json:"lambda_max"` // of the training rows
+	// AtEnd is set when the smallest λ of the ladder was chosen: the
+	// held-out loss may still fall below it (give Lambda to go lower).
+	AtEnd bool `json:"at_end,omitempty"`
+}
+
+// fitRung is one member of the selection ladder.
+type fitRung struct {
+	Index   int     `json:"index"`
+	Lambda  float64 `json:"lambda"`
+	Nonzero int     `json:"nonzero"`
+	Loss    float64 `json:"loss"`
+	SE      float64 `json:"se"`
+	KKT     float64 `json:"kkt"`
+	Chosen  bool    `json:"chosen,omitempty"`
+}
+
+// Fit reads the CSV file o.Input, fits one penalized model with the learner
+// the daemon runs on streams (online.Ladder), the whole file being the
+// window, until every KKT violation is at most the tolerance (or the epoch
+// budget runs out, reported as "converged": false), and writes the model to
+// w as a table or, with o.JSON, as JSON. Bad input or options give a
+// *FitError and write nothing.
+func Fit(w io.Writer, o FitOptions) error {
+	s, err := o.resolve()
+	if err != nil {
+		return err
+	}
+	t, err := readTable(o.Input, o.Label, s.loss.Name() == "logistic")
+	if err != nil {
+		return err
+	}
+	doc := &fitDoc{Input: o.Input, Label: o.Label, Skipped: t.skipped}
+	lambda := o.Lambda
+	if lambda == 0 {
+		if lambda, err = s.choose(t, o, doc); err != nil {
+			return err
+		}
+	}
+	if err := s.fitOne(t, lambda, o.Seed, doc); err != nil {
+		return err
+	}
+	if o.JSON {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(doc)
+	}
+	return writeFitTable(w, doc)
+}
+
+func (s *fitSpec) options(t *table, window int, lambda float64, seed uint64) *online.Options {
+	p := s.penalty
+	return &online.Options{
+		Loss:     s.loss,
+		Penalty:  &p,
+		Features: len(t.names),
+		Window:   window,
+		Lambda:   lambda,
+		Seed:     seed,
+	}
+}
+
+// add feeds the rows with held(i) to h and the others to l; with h == nil
+// every row goes to l.
+func (s *fitSpec) add(t *table, l *online.Ladder, h *online.Holdout, held func(int) bool) error {
+	for i := range t.rows() {
+		r := online.Record{X: t.row(i), Y: t.y[i]}
+		var err error
+		if h != nil && held(i) {
+			err = h.Add(r)
+		} else {
+			err = l.Add(r)
+		}
+		if err != nil {
+			return &FitError{Msg: fmt.Sprintf("line %d: %v", t.lines[i], err)}
+		}
+	}
+	return nil
+}
+
+// fitOne fits λ on every row and fills the model part of doc.
+func (s *fitSpec) fitOne(t *table, lambda float64, seed uint64, doc *fitDoc) error {
+	l, err := online.NewLadder(s.options(t, t.rows(), lambda, seed))
+	if err != nil {
+		return &FitError{Msg: err.Error()}
+	}
+	if err := s.add(t, l, nil, nil); err != nil {
+		return err
+	}
+	doc.Converged = l.Converge(s.tol, s.maxEpochs)
+	doc.KKT, doc.Tol = l.KKT(0), s.tol
+	doc.LambdaMax = l.LambdaMax()
+	doc.fill(l.Model(0), t.names)
+	return nil
+}
+
+func (d *fitDoc) fill(m online.Model, names []string) {
+	d.model = m
+	d.Loss = m.Loss
+	d.Penalty = sink.PenaltySpec{Kind: m.Penalty.Kind(), Mix: m.Penalty.Mix, Lambda: m.Lambda}
+	d.Intercept, d.StdIntercept = m.Intercept, m.StdIntercept
+	d.Features = names
+	d.Records = m.Records
+	d.Coefficients = map[string]float64{}
+	d.Standardized = map[string]float64{}
+	d.Scale = make(map[string]sink.Scale, len(names))
+	for j, name := range names {
+		d.Scale[name] = sink.Scale{Mean: m.Mean[j], Std: m.Std[j]}
+		if m.Standardized[j] != 0 {
+			d.Coefficients[name] = m.Coef[j]
+			d.Standardized[name] = m.Standardized[j]
+			d.order = append(d.order, j)
+		}
+	}
+	d.Nonzero = len(d.order)
+	slices.SortStableFunc(d.order, func(a, b int) int {
+		return cmp.Compare(math.Abs(m.Standardized[b]), math.Abs(m.Standardized[a]))
+	})
+}
+
+// choose picks λ on held-out rows (see FitOptions.Lambda) and records the
+// selection, and with o.Ladder the whole ladder, in doc.
+func (s *fitSpec) choose(t *table, o FitOptions, doc *fitDoc) (float64, error) {
+	split := window.Splitter{}
+	every := split.Period()
+	held := func(i int) bool { return split.Holdout(uint64(i), nil) }
+	nHold := t.rows() / every
+	nTrain := t.rows() - nHold
+	if nHold < 2 {
+		// Too few rows to hold any out: a fixed fraction of λ_max.
+		return s.chooseFraction(t, o.Seed, doc)
+	}
+	l, err := online.NewLadder(s.options(t, nTrain, 0, o.Seed))
+	if err != nil {
+		return 0, &FitError{Msg: err.Error()}
+	}
+	h := online.NewHoldout(len(t.names), nHold)
+	if err := s.add(t, l, h, held); err != nil {
+		return 0, err
+	}
+	l.Converge(s.tol, s.maxEpochs)
+	scores := l.Score(h, nil)
+	pick := online.Choose(scores, s.rule)
+	if pick < 0 {
+		return s.chooseFraction(t, o.Seed, doc)
+	}
+	c := scores[pick]
+	if !(c.Lambda > 0) {
+		return 0, &FitError{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
+	}
+	doc.Selection = &fitSelection{Rule: s.rule.String(), Every: every, Train: l.Len(), Holdout: h.Len(),
+		Index: c.Index, Loss: c.Loss, SE: c.SE, Lambda: c.Lambda, LambdaMax: l.LambdaMax(), AtEnd: c.Index == l.Size()-1}
+	if o.Ladder {
+		for i, sc := range scores {
+			doc.Ladder = append(doc.Ladder, fitRung{Index: sc.Index, Lambda: sc.Lambda, Nonzero: sc.Nonzero,
+				Loss: sc.Loss, SE: sc.SE, KKT: l.KKT(sc.Index), Chosen: i == pick})
+		}
+	}
+	return c.Lambda, nil
+}
+
+// fitFraction is the λ fraction of λ_max used when no row can be held out.
+const fitFraction = 0.01
+
+func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, error) {
+	l, err := online.NewLadder(s.options(t, t.rows(), 0, seed))
+	if err != nil {
+		return 0, &FitError{Msg: err.Error()}
+	}
+	if err := s.add(t, l, nil, nil); err != nil {
+		return 0, err
+	}
+	lambda := fitFraction * l.LambdaMax()
+	doc.Selection = &fitSelection{Rule: "fraction", Train: t.rows(), Index: -1, Lambda: lambda, LambdaMax: l.LambdaMax()}
+	if !(lambda > 0) {
+		return 0, &FitError{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
+	}
+	return lambda, nil
+}
+
+// writeFitTable writes doc as aligned text: a header block, the nonzero
+// coefficients by decreasing |standardized|, and with --ladder the path.
+func writeFitTable(w io.Writer, d *fitDoc) error {
+	var buf bytes.Buffer
+	tw := tabwriter.NewWriter(&buf, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(tw, "input\t%s (%d records, %d features, label %s)\n", d.Input, d.Records, len(d.Features), d.Label)
+	if len(d.Skipped) > 0 {
+		fmt.Fprintf(tw, "skipped\t%s (no numbers)\n", strings.Join(d.Skipped, ", "))
+	}
+	fmt.Fprintf(tw, "model\t%s loss, %s (α = %g), λ = %.6g, λ_max = %.6g\n", d.Loss, d.Penalty.Kind, d.Penalty.Mix, d.Penalty.Lambda, d.LambdaMax)
+	if sel := d.Selection; sel != nil {
+		if sel.Rule == "fraction" {
+			fmt.Fprintf(tw, "λ chosen\t%g·λ_max (too few rows to hold any out)\n", fitFraction)
+		} else {
+			fmt.Fprintf(tw, "λ chosen\trule %s on %d held-out rows (1 in %d): loss %.6g ± %.2g, member %d\n",
+				sel.Rule, sel.Holdout, sel.Every, sel.Loss, sel.SE, sel.Index)
+			if sel.AtEnd {
+				fmt.Fprintf(tw, "\tthe smallest λ of the ladder: a smaller one may do better (try --lambda)\n")
+			}
+		}
+	}
+	if d.Converged {
+		fmt.Fprintf(tw, "KKT\t≤ %.2g (converged)\n", d.Tol)
+	} else {
+		fmt.Fprintf(tw, "KKT\t%.2g > %.2g (NOT converged: raise --max-epochs)\n", d.KKT, d.Tol)
+	}
+	fmt.Fprintf(tw, "nonzero\t%d of %d\n\n", d.Nonzero, len(d.Features))
+	fmt.Fprintln(tw, "feature\tcoefficient\tstandardized\tmean\tstd")
+	fmt.Fprintf(tw, "(intercept)\t%.6g\t%.6g\t\t\n", d.Intercept, d.StdIntercept)
+	m := d.model
+	for _, j := range d.order {
+		fmt.Fprintf(tw, "%s\t%.6g\t%.6g\t%.6g\t%.6g\n", d.Features[j], m.Coef[j], m.Standardized[j], m.Mean[j], m.Std[j])
+	}
+	if len(d.Ladder) > 0 {
+		fmt.Fprintf(tw, "\nladder on %d training rows, λ_max = %.6g\n", d.Selection.Train, d.Selection.LambdaMax)
+		fmt.Fprintln(tw, "index\tlambda\tnonzero\theld-out loss\tse\tkkt")
+		for _, r := range d.Ladder {
+			mark := ""
+			if r.Chosen {
+				mark = "  <- " + d.Selection.Rule
+			}
+			fmt.Fprintf(tw, "%d\t%.6g\t%d\t%.6g\t%.2g\t%.2g%s\n", r.Index, r.Lambda, r.Nonzero, r.Loss, r.SE, r.KKT, mark)
+		}
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	// Empty trailing cells leave trailing blanks; drop them.
+	var out bytes.Buffer
+	for line := range bytes.Lines(buf.Bytes()) {
+		out.Write(bytes.TrimRight(line, " \n"))
+		out.WriteByte('\n')
+	}
+	_, err := w.Write(out.Bytes())
+	return err
+}

@@ -1,0 +1,21 @@
+package daemon
+
+import (
+	"bytes"
+	"io"
+	"net"
+	"testing"
+)
+
+func bytesReader(b []byte) io.Reader { return bytes.NewReader(b) }
+
+// freePort returns a loopback TCP port that was free a moment ago.
+func freePort(t testing.TB) int {
+	t.Helper()
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	return ln.Addr().(*net.TCPAddr).Port
+}

@@ -1,0 +1,78 @@
+package daemon
+
+import (
+	"fmt"
+	"math"
+
+	"lariat/config"
+	"lariat/online"
+	"lariat/record"
+	"lariat/sink"
+)
+
+// predictor implements sink.Predictor on the models' latest published
+// snapshots. It runs on HTTP goroutines and never touches a live ladder:
+// each call decodes with a fresh decoder for the snapshot's feature names
+// and evaluates the immutable online.Model.
+type predictor struct{ d *Daemon }
+
+var _ sink.Predictor = predictor{}
+
+// Predict decodes body (the record format without a label: named "x" or
+// array "v" in the model's feature order) and returns the linear predictor,
+// the probability and alert decision for logistic models, and each nonzero
+// feature's contribution coef·x (a missing value is imputed with the mean).
+func (p predictor) Predict(model string, body []byte) (*sink.Prediction, error) {
+	w, ok := p.d.byName[model]
+	if !ok {
+		return nil, fmt.Errorf("%w: %q", sink.ErrUnknownModel, model)
+	}
+	s := w.snap.Load()
+	if s == nil {
+		return nil, fmt.Errorf("%w: %s has no published version yet", sink.ErrNotReady, model)
+	}
+	dec := record.NewDecoder(&record.DecoderOptions{
+		Features:    s.names,
+		MaxFeatures: max(w.dim, len(s.names)),
+		Missing:     w.cfg.Missing,
+		Unlabeled:   true,
+		MaxBytes:    int(p.d.cfg.HTTP.MaxBodyBytes),
+	})
+	var r record.Record
+	if err := dec.Decode(body, &r); err != nil {
+		return nil, err
+	}
+	x := r.X[:len(s.names)] // names unknown to the model contribute nothing
+	return predict(model, s, x), nil
+}
+
+// predict evaluates a snapshot on x (len(x) == len(s.names)).
+func predict(model string, s *snapshot, x []float64) *sink.Prediction {
+	m := s.model
+	out := &sink.Prediction{
+		Model:         model,
+		Version:       s.doc.Version,
+		Eta:           m.Eta(x),
+		Contributions: make(map[string]float64),
+	}
+	for j, c := range m.Coef {
+		if c == 0 {
+			continue
+		}
+		v := x[j]
+		if math.IsNaN(v) {
+			v = m.Mean[j]
+		}
+		out.Contributions[s.names[j]] = c * v
+	}
+	if m.Loss == config.LossLogistic {
+		prob := online.Sigmoid(out.Eta)
+		out.Probability = &prob
+		if t := s.doc.Threshold; t != nil {
+			v := t.Value
+			pos := prob >= v
+			out.Threshold, out.Positive = &v, &pos
+		}
+	}
+	return out
+}

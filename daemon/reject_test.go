@@ -1,0 +1,182 @@
+package daemon
+
+import (
+	"fmt"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"lariat/config"
+	"lariat/record"
+	"lariat/sink"
+)
+
+// TestRejects sends one bad record per reason and checks that each is
+// counted under its reason, republished on lariat.reject.<model> with the
+// reason and the original bytes, and leaves the ladder bit for bit as it was.
+func TestRejects(t *testing.T) {
+	lin := testModel("rej-lin", "test.rej.lin", config.LossSquared)
+	lin.Features = []string{"a", "b", "c"}
+	lin.MaxFeatures = 3
+	logit := testModel("rej-log", "test.rej.log", config.LossLogistic)
+	strict := testModel("rej-strict", "test.rej.strict", config.LossSquared)
+	strict.Features = []string{"a", "b"}
+	strict.Missing = config.MissingReject
+	td := startDaemon(t, testConfig(t, lin, logit, strict), withoutIdle())
+	nc := connect(t, td.NATSURL())
+	rejects := make(chan *nats.Msg, 64)
+	if _, err := nc.ChanSubscribe("lariat.reject.>", rejects); err != nil {
+		t.Fatal(err)
+	}
+	nc.Flush()
+	waitFor(t, 10*time.Second, td.Ready)
+
+	// Warm every model up with valid records, so there is state to protect.
+	for _, m := range []config.Model{lin, logit, strict} {
+		for i := range 60 {
+			rec := fmt.Sprintf(`{"y":%d,"x":{"a":%d,"b":%d}}`, i%2, i%7, i%5)
+			if err := nc.Publish(m.Subject, []byte(rec)); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	nc.Flush()
+	for _, m := range []string{"rej-lin", "rej-log", "rej-strict"} {
+		waitFor(t, 10*time.Second, func() error {
+			if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": m}); got != 60 {
+				return fmt.Errorf("%s accepted %v", m, got)
+			}
+			return nil
+		})
+	}
+
+	big := `{"y":1,"x":{"a":1},"key":"` + strings.Repeat("k", record.DefaultMaxBytes) + `"}`
+	cases := []struct {
+		name, model, subject, body, reason string
+	}{
+		{"malformed json", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1}`, record.ReasonMalformed},
+		{"not an object", "rej-lin", lin.Subject, `[1,2,3]`, record.ReasonMalformed},
+		{"wrong type", "rej-lin", lin.Subject, `{"y":1,"x":{"a":"high"}}`, record.ReasonType},
+		{"overflow to Inf", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1e999}}`, record.ReasonNotFinite},
+		{"NaN as a string", "rej-lin", lin.Subject, `{"y":"NaN","x":{"a":1}}`, record.ReasonType},
+		{"label outside {0,1}", "rej-log", logit.Subject, `{"y":2,"x":{"a":1}}`, record.ReasonLabel},
+		{"missing label", "rej-log", logit.Subject, `{"x":{"a":1}}`, record.ReasonLabel},
+		{"too many features", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1,"b":2,"c":3,"d":4}}`, record.ReasonTooManyFeatures},
+		{"oversized message", "rej-lin", lin.Subject, big, record.ReasonOversize},
+		{"wrong v length", "rej-lin", lin.Subject, `{"y":1,"v":[1,2]}`, record.ReasonDimension},
+		{"negative weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":-1}`, record.ReasonWeight},
+		{"bad time", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":"yesterday"}`, record.ReasonTime},
+		{"missing channel, strict", "rej-strict", strict.Subject, `{"y":1,"x":{"a":1}}`, record.ReasonMissingFeature},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			w := td.byName[tc.model]
+			prev := snapshotLadder(t, w)
+			labels := map[string]string{"model": tc.model, "reason": tc.reason}
+			n0 := metricValue(t, td.Daemon, "lariat_records_rejected_total", labels)
+			if err := nc.Publish(tc.subject, []byte(tc.body)); err != nil {
+				t.Fatal(err)
+			}
+			nc.Flush()
+			select {
+			case msg := <-rejects:
+				if got := msg.Subject; got != "lariat.reject."+tc.model {
+					t.Errorf("reject subject %s", got)
+				}
+				if got := msg.Header.Get(sink.HeaderReason); got != tc.reason {
+					t.Errorf("reason header %q, want %q (detail %q)", got, tc.reason, msg.Header.Get(sink.HeaderDetail))
+				}
+				if got := msg.Header.Get(sink.HeaderSubject); got != tc.subject {
+					t.Errorf("subject header %q, want %q", got, tc.subject)
+				}
+				if string(msg.Data) != tc.body {
+					t.Errorf("body changed: %d bytes, want %d", len(msg.Data), len(tc.body))
+				}
+			case <-time.After(5 * time.Second):
+				t.Fatal("no reject message")
+			}
+			if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", labels); got != n0+1 {
+				t.Errorf("rejected{%s} = %v, want %v", tc.reason, got, n0+1)
+			}
+			if err := sameBits(prev, snapshotLadder(t, w)); err != nil {
+				t.Errorf("ladder changed: %v", err)
+			}
+		})
+	}
+	for _, m := range []string{"rej-lin", "rej-log", "rej-strict"} {
+		if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": m}); got != 60 {
+			t.Errorf("%s accepted %v after the bad records, want 60", m, got)
+		}
+	}
+}
+
+// TestRejectQueueFull stalls a model goroutine so its queue fills: the
+// overflow is counted as queue_full, republished, and never applied.
+func TestRejectQueueFull(t *testing.T) {
+	m := testModel("rej-queue", "test.rej.queue", config.LossSquared)
+	m.Queue = 4
+	td := startDaemon(t, testConfig(t, m), withoutIdle())
+	nc := connect(t, td.NATSURL())
+	rejects := make(chan *nats.Msg, 64)
+	nc.ChanSubscribe("lariat.reject.rej-queue", rejects)
+	nc.Flush()
+	waitFor(t, 10*time.Second, td.Ready)
+	w := td.byName["rej-queue"]
+	release := make(chan struct{})
+	stalled := make(chan struct{})
+	go w.exec(func() { close(stalled); <-release }) // the model goroutine waits
+	<-stalled
+	const sent = 10
+	for i := range sent {
+		nc.Publish(m.Subject, fmt.Appendf(nil, `{"y":%d,"x":{"a":%d}}`, i, i))
+	}
+	nc.Flush()
+	labels := map[string]string{"model": "rej-queue", "reason": reasonQueueFull}
+	waitFor(t, 5*time.Second, func() error {
+		if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", labels); got != sent-4 {
+			return fmt.Errorf("queue_full rejects %v, want %d", got, sent-4)
+		}
+		return nil
+	})
+	close(release)
+	waitFor(t, 5*time.Second, func() error {
+		if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": "rej-queue"}); got != 4 {
+			return fmt.Errorf("accepted %v, want 4", got)
+		}
+		return nil
+	})
+	if got := metricValue(t, td.Daemon, "lariat_queue_dropped_total", map[string]string{"model": "rej-queue"}); got != sent-4 {
+		t.Errorf("queue dropped %v, want %d", got, sent-4)
+	}
+	msg := <-rejects
+	if got := msg.Header.Get(sink.HeaderReason); got != reasonQueueFull {
+		t.Errorf("reason %q", got)
+	}
+}
+
+// TestRejectNoModel routes a record through a subject no model is fed by
+// (possible only with a shared durable intake): it is counted and
+// republished under the _unrouted name.
+func TestRejectNoModel(t *testing.T) {
+	td := startDaemon(t, testConfig(t, testModel("rej-none", "test.rej.none", config.LossSquared)))
+	nc := connect(t, td.NATSURL())
+	rejects := make(chan *nats.Msg, 4)
+	nc.ChanSubscribe("lariat.reject."+unrouted, rejects)
+	nc.Flush()
+	waitFor(t, 10*time.Second, td.Ready)
+	h := td.handler("orphan.subject", nil)
+	h(&nats.Msg{Subject: "orphan.subject", Data: []byte(`{"y":1,"x":{"a":1}}`)})
+	select {
+	case msg := <-rejects:
+		if got := msg.Header.Get(sink.HeaderReason); got != reasonNoModel {
+			t.Errorf("reason %q", got)
+		}
+	case <-time.After(5 * time.Second):
+		t.Fatal("no reject message")
+	}
+	if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", map[string]string{"model": unrouted, "reason": reasonNoModel}); got != 1 {
+		t.Errorf("no_model rejects %v, want 1", got)
+	}
+}

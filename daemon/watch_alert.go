@@ -1,0 +1,185 @@
+package daemon
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+	"time"
+
+	"lariat/sink"
+	"lariat/window"
+)
+
+// alertKindIndex returns the position of k in the watch's per-kind arrays.
+func alertKindIndex(k sink.AlertKind) int {
+	switch k {
+	case sink.KindPerformance:
+		return 0
+	case sink.KindData:
+		return 1
+	case sink.KindModel:
+		return 2
+	}
+	return 3 // sink.KindPrediction
+}
+
+// alertGate applies drift.cooldown per (model, kind): an alert of a kind is
+// held back while less than the cooldown has passed since the last one of
+// that kind that went out. The clock is the triggering record's time when
+// it carries one ("t"), so a replayed or back-filled stream is rate-limited
+// in its own time, and the wall clock otherwise. A switch between the two
+// clocks (a stream that starts or stops carrying "t") ends the cooldown,
+// because the two times cannot be compared; so does a record time that goes
+// backwards by more than the cooldown. A cooldown of 0 lets every alert out.
+type alertGate struct {
+	cooldown int64 // milliseconds
+	last     [4]gateStamp
+	now      func() time.Time // wall clock; nil = time.Now (tests set it)
+}
+
+type gateStamp struct {
+	at     int64 // Unix ms
+	record bool  // at is a record time
+	set    bool
+}
+
+// allow reports whether an alert of kind may go out now, and if so starts
+// its cooldown; it counts the detection in st either way.
+func (g *alertGate) allow(kind sink.AlertKind, w *worker, st *watchStats) bool {
+	i := alertKindIndex(kind)
+	if st != nil {
+		st.detected[i]++
+	}
+	at, rec := g.stamp(w)
+	last := &g.last[i]
+	if g.cooldown > 0 && last.set && last.record == rec {
+		if el := at - last.at; el < g.cooldown && el > -g.cooldown {
+			if st != nil {
+				st.suppressed[i]++
+			}
+			return false
+		}
+	}
+	*last = gateStamp{at: at, record: rec, set: true}
+	return true
+}
+
+// stamp returns the gate's clock for the record being applied.
+func (g *alertGate) stamp(w *worker) (at int64, record bool) {
+	if t := recordTimeOf(w); !t.IsZero() {
+		return t.UnixMilli(), true
+	}
+	now := time.Now
+	if g.now != nil {
+		now = g.now
+	}
+	return now().UnixMilli(), false
+}
+
+// recordTimeOf returns the time of the record w is applying (or applied
+// last), or the zero time when it carries none.
+func recordTimeOf(w *worker) time.Time {
+	if w.recT == 0 {
+		return time.Time{}
+	}
+	return time.UnixMilli(w.recT).UTC()
+}
+
+// sendAlert validates a, keeps it in the store (GET /v1/alerts), counts it
+// (lariat_alerts_total{model,kind}) and publishes it on
+// <prefix>.alert.<model>. It is safe from any goroutine; publication goes
+// through nats.go's buffer and does not wait for the server.
+func (d *Daemon) sendAlert(w *worker, a *sink.Alert) {
+	if err := a.Validate(); err != nil {
+		w.log.Error("alert dropped", "kind", a.Kind, "err", err)
+		return
+	}
+	d.store.AddAlert(*a)
+	w.mm.Alert(a.Kind)
+	w.log.Info("alert", "kind", a.Kind, "severity", a.Severity, "statistic", a.Statistic,
+		"threshold", a.Threshold, "features", a.Features, "seq", a.Seq, "message", a.Message)
+	if p := d.pub.Load(); p != nil {
+		if err := p.PublishAlert(a); err != nil {
+			w.log.Warn("alert not published", "kind", a.Kind, "err", err)
+		}
+	}
+}
+
+// featureName returns the name of column j, or "#j" when the model has not
+// published that name yet.
+func featureName(names []string, j int) string {
+	if j < len(names) {
+		return names[j]
+	}
+	return fmt.Sprintf("#%d", j)
+}
+
+// perfMessage describes a performance drift.
+func perfMessage(d *lossDetector, c lossChange) string {
+	if d.adwin != nil {
+		return fmt.Sprintf("ADWIN (δ %g): mean bounded loss rose from %.4f to %.4f (by %.4f); %d values kept after the cut",
+			c.threshold, c.before, c.after, c.stat, c.kept)
+	}
+	return fmt.Sprintf("Page-Hinkley statistic %.3f > λ %.3f on the bounded loss; change estimated %d values ago",
+		c.stat, c.threshold, c.kept)
+}
+
+// dataMessage names the shifted features (worst PSI first) and describes
+// each.
+func dataMessage(shifts []window.FeatureShift, shifted func(window.FeatureShift) bool, names []string) ([]string, string) {
+	var hit []window.FeatureShift
+	for _, s := range shifts {
+		if shifted(s) {
+			hit = append(hit, s)
+		}
+	}
+	slices.SortStableFunc(hit, func(a, b window.FeatureShift) int {
+		ka, kb := max(a.PSI, math.Abs(a.MeanShift)/10), max(b.PSI, math.Abs(b.MeanShift)/10)
+		switch {
+		case ka > kb:
+			return -1
+		case ka < kb:
+			return 1
+		}
+		return 0
+	})
+	out := make([]string, len(hit))
+	var b strings.Builder
+	b.WriteString("data shift against the reference:")
+	for i, s := range hit {
+		out[i] = featureName(names, s.Feature)
+		if i < 10 {
+			fmt.Fprintf(&b, " %s (PSI %.3f, mean shift %+.2f sd)", out[i], s.PSI, s.MeanShift)
+		}
+	}
+	if len(hit) > 10 {
+		fmt.Fprintf(&b, " and %d more", len(hit)-10)
+	}
+	return out, b.String()
+}
+
+// modelMessage names the features that entered (+) or left (−) the support
+// and the move of λ*.
+func modelMessage(names []string, entered, left []int, moved bool, from, to, steps float64) ([]string, string) {
+	var out []string
+	var b strings.Builder
+	b.WriteString("model change:")
+	for _, j := range entered {
+		n := featureName(names, j)
+		out = append(out, n)
+		fmt.Fprintf(&b, " +%s", n)
+	}
+	for _, j := range left {
+		n := featureName(names, j)
+		out = append(out, n)
+		fmt.Fprintf(&b, " −%s", n)
+	}
+	if len(entered)+len(left) > 0 {
+		b.WriteString(" (support)")
+	}
+	if moved {
+		fmt.Fprintf(&b, " λ* %.4g → %.4g (%.1f ladder steps)", from, to, steps)
+	}
+	return out, b.String()
+}

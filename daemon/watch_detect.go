@@ -1,0 +1,218 @@
+package daemon
+
+import (
+	"math"
+	"slices"
+
+	"lariat/config"
+	"lariat/online"
+	"lariat/window"
+)
+
+// lossDetector runs ADWIN or Page-Hinkley on the bounded test-then-train
+// loss (values in [0, 1]).
+type lossDetector struct {
+	adwin *window.ADWIN
+	ph    *window.PageHinkley
+	// sinceZero counts the values since the Page-Hinkley statistic was last
+	// 0: the CUSUM's change-point estimate when it signals.
+	sinceZero int
+}
+
+// lossChange describes a detected change of the mean bounded loss.
+type lossChange struct {
+	up            bool    // the mean went up (a drift, not a recovery)
+	before, after float64 // mean before and after the change (ADWIN only)
+	kept          int     // values judged post-change
+	stat          float64 // ADWIN: after − before; Page-Hinkley: its statistic
+	threshold     float64 // ADWIN: its confidence δ; Page-Hinkley: λ
+	width         int     // detector window before the change
+}
+
+// newLossDetector returns the detector chosen by drift.performance, or nil
+// for "off". ADWIN gets Range 1: the bounded loss lies in [0, 1], so its δ
+// guarantee holds.
+func newLossDetector(dc config.Drift) *lossDetector {
+	switch dc.Performance {
+	case config.DriftADWIN:
+		return &lossDetector{adwin: window.NewADWINOptions(&window.ADWINOptions{Delta: dc.Delta, Range: 1})}
+	case config.DriftPageHinkley:
+		return &lossDetector{ph: window.NewPageHinkley(&window.PageHinkleyOptions{
+			Delta: dc.Delta, Threshold: phThreshold,
+		})}
+	}
+	return nil
+}
+
+// add feeds u and reports a detected change. It does not allocate.
+func (d *lossDetector) add(u float64) (c lossChange, fired bool) {
+	if d.ph != nil {
+		return d.addPH(u)
+	}
+	a := d.adwin
+	n0, m0 := a.Width(), a.Mean()
+	if !a.Add(u) {
+		return c, false
+	}
+	n1, m1 := a.Width(), a.Mean()
+	dropped := n0 + 1 - n1
+	if dropped <= 0 || n1 <= 0 {
+		return c, false
+	}
+	before := (m0*float64(n0) + u - m1*float64(n1)) / float64(dropped)
+	return lossChange{
+		up:        m1 > before,
+		before:    before,
+		after:     m1,
+		kept:      n1,
+		stat:      m1 - before,
+		threshold: a.Delta(),
+		width:     n0 + 1,
+	}, true
+}
+
+// addPH feeds u to Page-Hinkley, which only detects increases.
+func (d *lossDetector) addPH(u float64) (lossChange, bool) {
+	p := d.ph
+	if math.IsNaN(u) || math.IsInf(u, 0) {
+		return lossChange{}, false
+	}
+	width := p.Count() + 1
+	if !p.Add(u) {
+		if p.Statistic() == 0 {
+			d.sinceZero = 0
+		} else {
+			d.sinceZero++
+		}
+		return lossChange{}, false
+	}
+	kept := d.sinceZero + 1
+	d.sinceZero = 0
+	return lossChange{up: true, kept: kept, stat: p.Statistic(), threshold: p.Threshold(), width: width}, true
+}
+
+// reset restarts the detector.
+func (d *lossDetector) reset() {
+	if d.adwin != nil {
+		d.adwin.Reset()
+	}
+	if d.ph != nil {
+		d.ph.Reset()
+	}
+	d.sinceZero = 0
+}
+
+// width returns the detector's current window (ADWIN width, Page-Hinkley
+// count).
+func (d *lossDetector) width() int {
+	if d.adwin != nil {
+		return d.adwin.Width()
+	}
+	return d.ph.Count()
+}
+
+// featureSample is a ring of the newest train records, stored by column so
+// that window.ShiftReference reads it directly (the order of a sample does
+// not matter to PSI or the mean). Pushing does not allocate.
+type featureSample struct {
+	cols [][]float64 // [feature][capacity]
+	y    []float64
+	pos  int
+	n    int
+}
+
+func newFeatureSample(features, capacity int) *featureSample {
+	s := &featureSample{cols: make([][]float64, features), y: make([]float64, capacity)}
+	back := make([]float64, features*capacity)
+	for j := range s.cols {
+		s.cols[j] = back[j*capacity : (j+1)*capacity : (j+1)*capacity]
+	}
+	return s
+}
+
+// push stores one record, overwriting the oldest when full.
+func (s *featureSample) push(x []float64, y float64) {
+	for j, v := range x {
+		s.cols[j][s.pos] = v
+	}
+	s.y[s.pos] = y
+	if s.pos++; s.pos == len(s.y) {
+		s.pos = 0
+	}
+	if s.n < len(s.y) {
+		s.n++
+	}
+}
+
+func (s *featureSample) full() bool { return s.n == len(s.y) }
+
+// size returns the sample's capacity n_s.
+func (s *featureSample) size() int { return len(s.y) }
+
+// robustScale returns 1.4826·MAD of ys, or their population standard
+// deviation when the MAD is 0 (a target with many ties), or 1 when that is
+// 0 too. It allocates (a sorted copy) and runs at warm-up and re-takes only.
+func robustScale(ys []float64) float64 {
+	v := make([]float64, 0, len(ys))
+	for _, y := range ys {
+		if !math.IsNaN(y) && !math.IsInf(y, 0) {
+			v = append(v, y)
+		}
+	}
+	if len(v) == 0 {
+		return 1
+	}
+	slices.Sort(v)
+	med := median(v)
+	dev := make([]float64, len(v))
+	var sum, sq float64
+	for i, y := range v {
+		dev[i] = math.Abs(y - med)
+		sum += y
+	}
+	mean := sum / float64(len(v))
+	for _, y := range v {
+		sq += (y - mean) * (y - mean)
+	}
+	slices.Sort(dev)
+	if s := madToSD * median(dev); s > 0 {
+		return s
+	}
+	if s := math.Sqrt(sq / float64(len(v))); s > 0 {
+		return s
+	}
+	return 1
+}
+
+// median of a sorted, non-empty slice.
+func median(v []float64) float64 {
+	n := len(v)
+	if n%2 == 1 {
+		return v[n/2]
+	}
+	return (v[n/2-1] + v[n/2]) / 2
+}
+
+// keepNewestHeldOut keeps only the newest n records of h (for a drift
+// adaptation): it copies them out, resets h and adds them back, oldest
+// first. It allocates and runs only at an adaptation.
+func keepNewestHeldOut(h *online.Holdout, n int) {
+	total := h.Len()
+	if n >= total {
+		return
+	}
+	d := h.Features()
+	xs := make([]float64, n*d)
+	ys := make([]float64, n)
+	ws := make([]float64, n)
+	for i := range n {
+		x, y, w := h.At(total - n + i)
+		copy(xs[i*d:(i+1)*d], x)
+		ys[i], ws[i] = y, w
+	}
+	h.Reset()
+	for i := range n {
+		// The records were validated when first added; Add cannot fail.
+		_ = h.Add(online.Record{X: xs[i*d : (i+1)*d], Y: ys[i], W: ws[i]})
+	}
+}
