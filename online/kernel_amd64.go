@@ -39,9 +39,6 @@ func axpyAVX(a float64, x, y []float64)
 //go:noescape
 func welfordAVX(mu, m2, sxy, x []float64, f, w, wy float64)
 
-//go:noescape
-func sagaAVX(theta, s, x, mu, inv []float64, e, h, c, t, r, delta float64)
-
 // The dispatchers check lengths once: the assembly trusts them.
 
 func stdDot(theta, x, mu, inv []float64) float64 {
@@ -73,15 +70,6 @@ func welford(mu, m2, sxy, x []float64, f, w, wy float64) {
 		return
 	}
 	welfordGo(mu, m2, sxy, x, f, w, wy)
-}
-
-func saga(theta, s, x, mu, inv []float64, e, h, c, t, r, delta float64) {
-	n := len(theta)
-	if useAVX && len(s) >= n && len(x) >= n && len(mu) >= n && len(inv) >= n {
-		sagaAVX(theta, s, x, mu, inv, e, h, c, t, r, delta)
-		return
-	}
-	sagaGo(theta, s, x, mu, inv, e, h, c, t, r, delta)
 }
 
 //go:noescape
@@ -119,39 +107,6 @@ func axpy2(a float64, x []float64, b float64, y, s []float64) {
 }
 
 //go:noescape
-func sagaDotAVX(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64
-
-func sagaDot(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64 {
-	n := len(theta)
-	if useAVX && len(s) >= n && len(x) >= n && len(mu) >= n && len(inv) >= n && len(xn) >= n {
-		return sagaDotAVX(theta, s, x, mu, inv, xn, e, h, c, t, r, delta)
-	}
-	sagaGo(theta, s, x, mu, inv, e, h, c, t, r, delta)
-	return dotGo(theta, xn)
-}
-
-//go:noescape
-func dot2AVX(a, x, y []float64) (ax, ay float64)
-
-//go:noescape
-func sagaArriveAVX(theta, s, x, mu, inv, xa, xo, xn []float64, e, h, c, t, r, delta, a, b float64) float64
-
-func dot2(a, x, y []float64) (float64, float64) {
-	if useAVX && len(x) >= len(a) && len(y) >= len(a) {
-		return dot2AVX(a, x, y)
-	}
-	return dotGo(a, x), dotGo(a, y)
-}
-
-func sagaArrive(theta, s, x, mu, inv, xa, xo, xn []float64, e, h, c, t, r, delta, a, b float64) float64 {
-	n := len(theta)
-	if useAVX && len(s) >= n && len(x) >= n && len(mu) >= n && len(inv) >= n && len(xa) >= n && len(xo) >= n && len(xn) >= n {
-		return sagaArriveAVX(theta, s, x, mu, inv, xa, xo, xn, e, h, c, t, r, delta, a, b)
-	}
-	return sagaArriveGo(theta, s, x, mu, inv, xa, xo, xn, e, h, c, t, r, delta, a, b)
-}
-
-//go:noescape
 func imputeAVX(dst, x, mean []float64, limit float64) (ok bool)
 
 // impute copies x to dst with NaN replaced by mean and reports whether
@@ -163,5 +118,59 @@ func impute(dst, x, mean []float64, limit float64) bool {
 	if useAVX {
 		ok, j = imputeAVX(dst, x, mean, limit), n&^3
 	}
+	if j == n {
+		return ok
+	}
 	return imputeGo(dst[j:], x[j:], mean[j:], limit) && ok
+}
+
+//go:noescape
+func welford2AVX(mu, m2, sxy, xo, xn []float64, fo, wo, wyo, fn, wn, wyn float64)
+
+//go:noescape
+func stdPrepAVX(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork float64)
+
+func welford2(mu, m2, sxy, xo, xn []float64, fo, wo, wyo, fn, wn, wyn float64) {
+	n := len(mu)
+	if useAVX && len(m2) >= n && len(sxy) >= n && len(xo) >= n && len(xn) >= n {
+		welford2AVX(mu, m2, sxy, xo, xn, fo, wo, wyo, fn, wn, wyn)
+		return
+	}
+	welford2Go(mu, m2, sxy, xo, xn, fo, wo, wyo, fn, wn, wyn)
+}
+
+func stdPrep(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork float64) {
+	n := len(xa)
+	if useAVX && len(xt) >= n && len(x) >= n && len(row) >= n && len(mu) >= n && len(inv) >= n && len(refMu) >= n && len(refInv) >= n {
+		return stdPrepAVX(xa, xt, x, row, mu, inv, refMu, refInv)
+	}
+	return stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv)
+}
+
+//go:noescape
+func stdPrep1AVX(theta, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork, da, dt float64)
+
+func stdPrep1(theta, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork, da, dt float64) {
+	n := len(theta)
+	if useAVX && len(x) >= n && len(row) >= n && len(mu) >= n && len(inv) >= n && len(refMu) >= n && len(refInv) >= n {
+		return stdPrep1AVX(theta, x, row, mu, inv, refMu, refInv)
+	}
+	return stdPrep1Go(theta, x, row, mu, inv, refMu, refInv)
+}
+
+//go:noescape
+func sumRowsAVX(s, x, g []float64, d, k, rows int)
+
+// sumRows adds Σ_r g[r·k+m]·x_r to row m of s for every member m < k
+// (sumRowsGo): the same FMAs, in the same order, as axpy row by row.
+func sumRows(s, x, g []float64, d, k int) {
+	if k < 1 || d < 1 {
+		return
+	}
+	rows := len(g) / k
+	if useAVX && len(s) >= k*d && len(x) >= rows*d {
+		sumRowsAVX(s, x, g, d, k, rows)
+		return
+	}
+	sumRowsGo(s, x, g, d, k)
 }

@@ -19,15 +19,36 @@ func stdRow(dst, x, mu, inv []float64)                        { stdRowGo(dst, x,
 func dot(a, b []float64) float64                              { return dotGo(a, b) }
 func axpy2(a float64, x []float64, b float64, y, s []float64) { axpy2Go(a, x, b, y, s) }
 
-func sagaDot(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64 {
-	sagaGo(theta, s, x, mu, inv, e, h, c, t, r, delta)
-	return dotGo(theta, xn)
-}
-
-func dot2(a, x, y []float64) (float64, float64) { return dotGo(a, x), dotGo(a, y) }
-
-func sagaArrive(theta, s, x, mu, inv, xa, xo, xn []float64, e, h, c, t, r, delta, a, b float64) float64 {
-	return sagaArriveGo(theta, s, x, mu, inv, xa, xo, xn, e, h, c, t, r, delta, a, b)
-}
-
 func impute(dst, x, mean []float64, limit float64) bool { return imputeGo(dst, x, mean, limit) }
+
+func welford2(mu, m2, sxy, xo, xn []float64, fo, wo, wyo, fn, wn, wyn float64) {
+	welford2Go(mu, m2, sxy, xo, xn, fo, wo, wyo, fn, wn, wyn)
+}
+
+func stdPrep(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork float64) {
+	return stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv)
+}
+
+func stdPrep1(theta, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork, da, dt float64) {
+	return stdPrep1Go(theta, x, row, mu, inv, refMu, refInv)
+}
+
+func sagaDotRaw(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64 {
+	return sagaDotRawGo(theta, s, x, mu, inv, xn, e, h, c, t, r, delta)
+}
+
+func sagaArrive0(theta, s, x, mu, inv, xa, xo, dst []float64, e, h, c, t, r, delta, a, b float64) {
+	sagaArrive0Go(theta, s, x, mu, inv, xa, xo, dst, e, h, c, t, r, delta, a, b)
+}
+
+func sagaArriveRaw(theta, s, x, mu, inv, xa, xo, xn, dst []float64, e, h, c, t, r, delta, a, b float64) float64 {
+	return sagaArriveRawGo(theta, s, x, mu, inv, xa, xo, xn, dst, e, h, c, t, r, delta, a, b)
+}
+
+func sagaAll(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c float64) {
+	sagaAllGo(theta, s, x, mu, inv, xa, xo, xn, prm, c)
+}
+
+func dot2All(theta, x, y, out []float64) { dot2AllGo(theta, x, y, out) }
+
+func sumRows(s, x, g []float64, d, k int) { sumRowsGo(s, x, g, d, k) }

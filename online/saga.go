@@ -59,10 +59,25 @@ type sagaLearner struct {
 	span  int64 // milliseconds; 0 = none
 	rng   *rand.Rand
 	gamma float64
+	kind  lossKind  // the loss, devirtualized for deriv
 	k     int       // K, the stride of the gradient table
+	raw   bool      // K = 1: the kernels standardize the next record on the fly
 	xt    []float64 // the staged record, standardized
-	xn    []float64 // the record of the next step, standardized
-	xa    []float64 // the arriving record, standardized
+	xn    []float64 // the record of the next step, standardized (K > 1)
+	next  []float64 // the record of the next step as the kernels take it: xn, or the raw row
+	xa    []float64 // the arriving record, standardized (K > 1)
+
+	// The members' θ and S as K×d row-major matrices (member k's slices
+	// are its rows), so that one kernel call serves every member.
+	theta, sums []float64
+	prm         []stepParam // per member scalars of a batched step (stepAll)
+	dd          []float64   // per member θ·x̃ of the arrival and of the first step
+
+	// Memos of the step's divisions: γ is recomputed only when an input
+	// of the smoothness bound moved, and c = γ/W only when γ or W did.
+	gkey      gammaKey
+	c, cGamma float64
+	cW        float64
 
 	// An admission pending in the members' sums (see admit).
 	pending, pfull bool
@@ -78,12 +93,22 @@ func newSAGA(o *Options, d int) *sagaLearner {
 		alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
 		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
 	}
+	switch o.Loss.(type) {
+	case Squared:
+		s.kind = lossSquared
+	case Logistic:
+		s.kind = lossLogistic
+	}
 	// One gradient table for all members, slot-major, so a step reads the
 	// K gradients of its record from one or two cache lines.
 	s.k = o.Size
+	s.raw = o.Size == 1
 	table := make([]float64, o.Window*o.Size)
+	s.theta, s.sums = make([]float64, o.Size*d), make([]float64, o.Size*d)
+	s.prm, s.dd = make([]stepParam, o.Size), make([]float64, 2*o.Size)
 	for k := range o.Size {
-		s.ms = append(s.ms, &sagaMember{theta: make([]float64, d), s: make([]float64, d), g: table[k:]})
+		row := func(a []float64) []float64 { return a[k*d : (k+1)*d : (k+1)*d] }
+		s.ms = append(s.ms, &sagaMember{theta: row(s.theta), s: row(s.sums), g: table[k:]})
 	}
 	s.setGamma()
 	return s
@@ -92,20 +117,42 @@ func newSAGA(o *Options, d int) *sagaLearner {
 // seedStream is the fixed second word of the PCG seed.
 const seedStream = 0x6c61726961742d31
 
+// lossKind names the built-in losses that deriv computes inline.
+type lossKind int
+
+const (
+	lossOther lossKind = iota
+	lossSquared
+	lossLogistic
+)
+
 // deriv returns ℓ'(y, η), with the two built-in losses devirtualized.
 func (s *sagaLearner) deriv(y, eta float64) float64 {
-	switch s.loss.(type) {
-	case Squared:
+	switch s.kind {
+	case lossSquared:
 		return eta - y
-	case Logistic:
+	case lossLogistic:
 		return Sigmoid(eta) - y
 	}
 	return s.loss.Deriv(y, eta)
 }
 
-// setGamma recomputes the step γ = 1/(3L) and the members' prox constants.
+// gammaKey is what the step γ depends on (trainset.lipschitz).
+type gammaKey struct {
+	maxW, bound, w float64
+	n              int
+}
+
+// setGamma recomputes the step γ = 1/(3L) and the members' prox constants
+// when an input of L changed (three divisions saved per record otherwise).
 func (s *sagaLearner) setGamma() {
-	g := 1 / (3 * s.ts.lipschitz(s.curv))
+	ts := s.ts
+	key := gammaKey{ts.maxW, ts.bound(), ts.sc.w, ts.ring.Len()}
+	if key == s.gkey && s.gamma != 0 {
+		return
+	}
+	s.gkey = key
+	g := 1 / (3 * ts.lipschitz(s.curv))
 	if g == s.gamma {
 		return
 	}
@@ -116,12 +163,16 @@ func (s *sagaLearner) setGamma() {
 }
 
 // admit evicts what the new record pushes out (span, then count) and
-// appends it. It draws the first step's record now, so each member reads θ
-// once for the two dot products it needs (the new record's gradient g_a at
-// the current model, and the first step's predictor), and it leaves the
-// update of the sums, S += g_a·x_new − g_o·x_old and G += g_a − g_o (g_o of
-// the record the new one replaces), pending: the first step folds it into
-// its pass (kernel sagaArrive), or settle applies it.
+// appends it. It draws the first step's record now, so that one pass over
+// the features (kernel stdPrep, or stdPrep1 for K = 1) standardizes both
+// records and yields the norms of the smoothness bound, and one more
+// (dot2All) gives each member the two dot products it needs: the new
+// record's gradient g_a at the current model, and the first step's
+// predictor. The scaler takes the swap of records in one pass
+// (scaler.swap). The update of the sums, S += g_a·x_new − g_o·x_old and
+// G += g_a − g_o (g_o of the record the new one replaces), stays pending:
+// the first step folds it into its pass (kernels sagaArrive0,
+// sagaArriveRaw, sagaAll), or settle applies it.
 func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
 	ts := s.ts
 	if s.span > 0 && t != 0 {
@@ -143,24 +194,29 @@ func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
 		}
 		row = ts.row(ts.ring.Slot(pre))
 	}
-	stdRow(s.xa, x, ts.mu, ts.inv)
-	stdRow(s.xt, row, ts.mu, ts.inv)
+	var sqRef, sqWork float64
+	if s.raw {
+		sqRef, sqWork, s.dd[0], s.dd[1] = stdPrep1(s.theta, x, row, ts.mu, ts.inv, ts.refMu, ts.refInv)
+	} else {
+		sqRef, sqWork = stdPrep(s.xa, s.xt, x, row, ts.mu, ts.inv, ts.refMu, ts.refInv)
+		dot2All(s.theta, s.xa, s.xt, s.dd)
+	}
 	slot := -1
 	if full {
 		slot = ts.ring.Slot(0)
 	}
-	for _, m := range s.ms {
-		da, dt := dot2(m.theta, s.xa, s.xt)
-		m.gnew, m.gold = s.finite(w*s.deriv(y, m.b+da)), 0
+	for k, m := range s.ms {
+		da, dt := s.dd[2*k], s.dd[2*k+1]
+		m.gnew, m.gold = s.finite(s.grad(y, w, m.b+da)), 0
 		if full {
 			m.gold = m.g[slot*s.k]
 		}
 		m.eta = m.b + dt
 	}
 	if full {
-		ts.replace(x, y, w, t)
+		ts.replace(x, y, w, t, sqRef, sqWork)
 	} else {
-		slot = ts.push(x, y, w, t)
+		slot = ts.push(x, y, w, t, sqRef, sqWork)
 	}
 	for _, m := range s.ms {
 		m.g[slot*s.k] = m.gnew
@@ -262,108 +318,35 @@ func (s *sagaLearner) refresh() {
 // resync recomputes the scaler and every member's sums S and G from the
 // stored records and gradients, capping the drift of rounding error.
 // O(n·d·K), run once per resyncEvery window lengths of arrivals (see
-// trainset.resyncDue), so O(d·K/4) per record.
+// trainset.resyncDue), so O(d·K/4) per record; S takes one kernel call
+// (sumRows) per run of consecutive slots.
 func (s *sagaLearner) resync() {
 	ts := s.ts
 	ts.recompute()
 	slots := ts.slots[:ts.ring.Len()]
+	clear(s.sums)
 	for _, m := range s.ms {
-		clear(m.s)
 		m.gsum = 0
 		for _, sl := range slots {
 			if g := m.g[sl*s.k]; g != 0 {
-				axpy(g, ts.row(sl), m.s)
 				m.gsum += g
 			}
 		}
 	}
+	// S of every member in one kernel call per run of consecutive slots
+	// (a ring has at most two), in window order: the FMAs of an axpy per
+	// record and member, in the same order.
+	table, d, k := s.ms[0].g, ts.d, s.k
+	for i := 0; i < len(slots); {
+		j := i + 1
+		for j < len(slots) && slots[j] == slots[j-1]+1 {
+			j++
+		}
+		lo, hi := slots[i], slots[j-1]+1
+		sumRows(s.sums, ts.x[lo*d:hi*d], table[lo*k:hi*k], d, k)
+		i = j
+	}
 	s.refresh()
-}
-
-// run takes steps proximal SAGA steps per member, all at the same random
-// records. The index of the next step is drawn, and its record staged,
-// before the current step, so each member's update also returns its dot
-// product with the next record (kernel sagaDot): one pass per member-step.
-// After admit, the first step is at the record admit drew, and it also
-// folds in the pending admission (kernel sagaArrive).
-func (s *sagaLearner) run(steps int) {
-	ts := s.ts
-	n := ts.ring.Len()
-	if n == 0 || steps <= 0 {
-		s.settle()
-		return
-	}
-	c := s.gamma / ts.sc.w
-	i := s.first
-	if !s.pending && !s.primed {
-		if i < 0 {
-			i = s.rng.IntN(n)
-		}
-		s.stage(ts.row(ts.ring.Slot(i)))
-		for _, m := range s.ms {
-			m.eta = s.eta(m)
-		}
-	}
-	s.first, s.primed = -1, false
-	for k := range steps {
-		slot, r := ts.ring.Slot(i), ts.ring.At(i)
-		x := ts.row(slot)
-		if s.pending && i == n-1 {
-			x = s.pend // the new record's row is not stored yet
-		}
-		next := k+1 < steps
-		if next {
-			i = s.rng.IntN(n)
-			stdRow(s.xn, ts.row(ts.ring.Slot(i)), ts.mu, ts.inv)
-			if s.pending && i == n-1 {
-				stdRow(s.xn, s.pend, ts.mu, ts.inv)
-			}
-		}
-		for _, m := range s.ms {
-			s.step(m, slot, x, r.y, r.w, float64(n), c, next)
-		}
-		if s.pending {
-			copy(ts.row(s.pslot), s.pend)
-			s.pending = false
-		}
-		s.xt, s.xn = s.xn, s.xt
-	}
-}
-
-// step is one proximal SAGA step of member m at the record in slot, whose
-// linear predictor is m.eta: with δ = g_new − g_old, the gradient estimate
-// (δ/w̄)(1, x̃) + (G, S̃)/W (w̄ = W/n, S̃ the standardized S) and c = γ/W,
-// the intercept moves by −c(nδ + G) and each θ_j to
-// prox(θ_j − c·v_j(nδ·x_j + S_j − (nδ + G)μ_j)), v_j = 1/s_j; then S += δx
-// and G += δ (kernel sagaGo). With next set, m.eta becomes the predictor
-// on the staged next record s.xn.
-func (s *sagaLearner) step(m *sagaMember, slot int, x []float64, y, w, n, c float64, next bool) {
-	ts := s.ts
-	gn := w * s.deriv(y, m.eta)
-	if math.IsNaN(gn) || math.IsInf(gn, 0) {
-		gn = m.g[slot*s.k] // unreachable with validated input; keeps NaN out of θ
-	}
-	delta := gn - m.g[slot*s.k]
-	if s.pending {
-		m.gsum += m.gnew - m.gold
-	}
-	e := n * delta
-	h := e + m.gsum
-	m.b -= c * h
-	switch {
-	case s.pending:
-		old := s.pend
-		if s.pfull {
-			old = ts.row(s.pslot)
-		}
-		m.eta = m.b + sagaArrive(m.theta, m.s, x, ts.mu, ts.inv, s.pend, old, s.xn, e, h, c, m.thr, m.shrink, delta, m.gnew, -m.gold)
-	case next:
-		m.eta = m.b + sagaDot(m.theta, m.s, x, ts.mu, ts.inv, s.xn, e, h, c, m.thr, m.shrink, delta)
-	default:
-		saga(m.theta, m.s, x, ts.mu, ts.inv, e, h, c, m.thr, m.shrink, delta)
-	}
-	m.gsum += delta
-	m.g[slot*s.k] = gn
 }
 
 // shift re-seats the members after the λ grid moved by k grid steps

@@ -54,6 +54,22 @@ func (s *scaler) remove(x []float64, w, y float64) {
 	s.wy -= w * y
 }
 
+// swap removes a record added before (xo, wo, yo) and adds x with weight
+// w > 0 and label y, in one pass over the features: the same arithmetic, in
+// the same order, as remove followed by add.
+func (s *scaler) swap(xo []float64, wo, yo float64, x []float64, w, y float64) {
+	nw := s.w - wo
+	if !(nw > 0) {
+		s.reset()
+		s.add(x, w, y)
+		return
+	}
+	tw := nw + w
+	welford2(s.mean, s.m2, s.sxy, xo, x, -wo/nw, -wo, -wo*yo, w/tw, w, w*y)
+	s.w = tw
+	s.wy = (s.wy - wo*yo) + w*y
+}
+
 // reset empties the scaler.
 func (s *scaler) reset() {
 	s.w, s.wy = 0, 0

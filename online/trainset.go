@@ -61,35 +61,41 @@ func newTrainset(d, capacity int) *trainset {
 func (ts *trainset) row(s int) []float64 { return ts.x[s*ts.d : (s+1)*ts.d : (s+1)*ts.d] }
 
 // push appends a record (the ring must not be full) and returns its slot.
-// The caller copies x into the slot's row (sagaLearner.settle).
-func (ts *trainset) push(x []float64, y, w float64, t int64) int {
+// The caller stores x in the slot's row (sagaLearner.run or settle). sqRef and
+// sqWork are ‖x‖² standardized with the reference and the working scale
+// (kernel stdPrep).
+func (ts *trainset) push(x []float64, y, w float64, t int64, sqRef, sqWork float64) int {
 	ts.ring.Push(meta{y: y, w: w, t: t})
 	s := ts.ring.Slot(ts.ring.Len() - 1)
-	ts.place(s, x, y, w)
+	ts.sc.add(x, w, y)
+	ts.place(w, sqRef, sqWork)
 	return s
 }
 
 // replace evicts the oldest record of the full ring and puts the new one in
 // its slot, leaving the old row in place until the caller has folded it out
-// of the members' sums and copies x over it (sagaLearner.settle).
-func (ts *trainset) replace(x []float64, y, w float64, t int64) {
+// of the members' sums and stores x over it (sagaLearner.run or settle). The
+// scaler swaps the records in one pass (scaler.swap). sqRef and sqWork are
+// as for push.
+func (ts *trainset) replace(x []float64, y, w float64, t int64, sqRef, sqWork float64) {
 	m, _ := ts.ring.Oldest()
 	s := ts.ring.Slot(0)
 	if ts.ring.Len() == 1 {
 		ts.sc.reset()
+		ts.sc.add(x, w, y)
 	} else {
-		ts.sc.remove(ts.row(s), m.w, m.y)
+		ts.sc.swap(ts.row(s), m.w, m.y, x, w, y)
 	}
 	ts.ring.Push(meta{y: y, w: w, t: t}) // full: the new record takes slot s
-	ts.place(s, x, y, w)
+	ts.place(w, sqRef, sqWork)
 }
 
-// place adds x to the scaler and the maxima of the smoothness bound.
-func (ts *trainset) place(s int, x []float64, y, w float64) {
-	ts.sc.add(x, w, y)
+// place updates the maxima of the smoothness bound for an arrival of weight
+// w and squared standardized norms sqRef and sqWork.
+func (ts *trainset) place(w, sqRef, sqWork float64) {
 	ts.maxW = max(ts.maxW, w)
-	ts.maxWA2 = max(ts.maxWA2, w*stdSq(x, ts.refMu, ts.refInv))
-	ts.sinceMax = max(ts.sinceMax, w*stdSq(x, ts.mu, ts.inv))
+	ts.maxWA2 = max(ts.maxWA2, w*sqRef)
+	ts.sinceMax = max(ts.sinceMax, w*sqWork)
 	ts.arrivals++
 	ts.since++
 }
