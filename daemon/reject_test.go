@@ -67,6 +67,8 @@ func TestRejects(t *testing.T) {
 		{"oversized message", "rej-lin", lin.Subject, big, record.ReasonOversize},
 		{"wrong v length", "rej-lin", lin.Subject, `{"y":1,"v":[1,2]}`, record.ReasonDimension},
 		{"negative weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":-1}`, record.ReasonWeight},
+		{"zero weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":0}`, record.ReasonWeight},
+		{"zero weight, logistic", "rej-log", logit.Subject, `{"y":1,"x":{"a":1},"w":0.0}`, record.ReasonWeight},
 		{"bad time", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":"yesterday"}`, record.ReasonTime},
 		{"missing channel, strict", "rej-strict", strict.Subject, `{"y":1,"x":{"a":1}}`, record.ReasonMissingFeature},
 	}

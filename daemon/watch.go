@@ -94,7 +94,10 @@ const (
 // n_s records have arrived since the reference was taken (so the two
 // samples never overlap), against the reference with window.ShiftReference:
 // a feature whose PSI exceeds drift.psi or whose |standardized mean shift|
-// exceeds drift.mean_shift is named in one data alert.
+// exceeds drift.mean_shift is named in one data alert. (The ring keeps each
+// value's bin against the reference as records arrive, so a comparison
+// does not re-bin the sample; its result is window.ShiftReference.Compare's
+// bit for bit, see featureSample.)
 //
 // Model drift. At every retune the support of the chosen member is
 // compared with the stable support: a feature enters (leaves) when it has
@@ -227,7 +230,7 @@ func (wt *watch) warmUp() {
 // takeReference snapshots the data sample as the reference and, for the
 // squared loss, re-estimates the target scale and restarts the detector.
 func (wt *watch) takeReference() {
-	wt.ref = window.NewShiftReference(wt.sample.cols, 0)
+	wt.ref = wt.sample.reference()
 	wt.shifts = wt.shifts[:0]
 	wt.sinceRef, wt.sinceData, wt.retake = 0, 0, false
 	if !wt.logistic {
@@ -293,7 +296,7 @@ func (wt *watch) checkData() {
 	if wt.ref == nil || wt.sinceRef < n {
 		return
 	}
-	wt.shifts = wt.ref.Compare(wt.sample.cols, wt.shifts)
+	wt.shifts = wt.sample.compare(wt.shifts)
 	wt.dataAlert()
 	if wt.retake {
 		wt.takeReference()

@@ -111,44 +111,6 @@ func (d *lossDetector) width() int {
 	return d.ph.Count()
 }
 
-// featureSample is a ring of the newest train records, stored by column so
-// that window.ShiftReference reads it directly (the order of a sample does
-// not matter to PSI or the mean). Pushing does not allocate.
-type featureSample struct {
-	cols [][]float64 // [feature][capacity]
-	y    []float64
-	pos  int
-	n    int
-}
-
-func newFeatureSample(features, capacity int) *featureSample {
-	s := &featureSample{cols: make([][]float64, features), y: make([]float64, capacity)}
-	back := make([]float64, features*capacity)
-	for j := range s.cols {
-		s.cols[j] = back[j*capacity : (j+1)*capacity : (j+1)*capacity]
-	}
-	return s
-}
-
-// push stores one record, overwriting the oldest when full.
-func (s *featureSample) push(x []float64, y float64) {
-	for j, v := range x {
-		s.cols[j][s.pos] = v
-	}
-	s.y[s.pos] = y
-	if s.pos++; s.pos == len(s.y) {
-		s.pos = 0
-	}
-	if s.n < len(s.y) {
-		s.n++
-	}
-}
-
-func (s *featureSample) full() bool { return s.n == len(s.y) }
-
-// size returns the sample's capacity n_s.
-func (s *featureSample) size() int { return len(s.y) }
-
 // robustScale returns 1.4826·MAD of ys, or their population standard
 // deviation when the MAD is 0 (a target with many ties), or 1 when that is
 // 0 too. It allocates (a sorted copy) and runs at warm-up and re-takes only.

@@ -272,39 +272,43 @@ func TestWatchObserveAllocs(t *testing.T) {
 	}
 }
 
-// BenchmarkWatchObserve measures the watch's per-record cost (the data
-// comparison, once per retune.every train records, is left out).
+// BenchmarkWatchObserve measures the watch's per-record cost, with the
+// data comparison (once per retune.every = 250 train records) and without.
 func BenchmarkWatchObserve(b *testing.B) {
 	for _, d := range []int{3, 64} {
-		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
-			m := driftModel("bench", config.LossLogistic, featureNames(d), 400)
-			h := newHarness(b, m)
-			x := make([]float64, d)
-			rng := rand.New(rand.NewPCG(1, 1))
-			for range 1000 { // warm: the reference is taken
-				for j := range x {
-					x[j] = rng.NormFloat64()
+		for _, compare := range []bool{false, true} {
+			b.Run(fmt.Sprintf("d=%d/compare=%v", d, compare), func(b *testing.B) {
+				m := driftModel("bench", config.LossLogistic, featureNames(d), 400)
+				h := newHarness(b, m)
+				x := make([]float64, d)
+				rng := rand.New(rand.NewPCG(1, 1))
+				for range 1000 { // warm: the reference is taken
+					for j := range x {
+						x[j] = rng.NormFloat64()
+					}
+					h.feed(x, float64(rng.IntN(2)))
 				}
-				h.feed(x, float64(rng.IntN(2)))
-			}
-			wt := h.watch()
-			wt.sinceData = math.MinInt / 2
-			// Losses of the current model on records like the warm-up's.
-			xs := make([][]float64, 1024)
-			ls := make([]float64, len(xs))
-			for i := range xs {
-				xs[i] = make([]float64, d)
-				for j := range xs[i] {
-					xs[i][j] = rng.NormFloat64()
+				wt := h.watch()
+				if !compare {
+					wt.sinceData = math.MinInt / 2
 				}
-				ls[i] = h.w.ladder.Loss().Value(float64(rng.IntN(2)), h.w.ladder.Eta(max(h.w.current(), 0), xs[i]))
-			}
-			b.ReportAllocs()
-			b.ResetTimer()
-			for i := range b.N {
-				k := i & 1023
-				wt.observe(xs[k], 0, ls[k], i%5 == 4)
-			}
-		})
+				// Losses of the current model on records like the warm-up's.
+				xs := make([][]float64, 1024)
+				ls := make([]float64, len(xs))
+				for i := range xs {
+					xs[i] = make([]float64, d)
+					for j := range xs[i] {
+						xs[i][j] = rng.NormFloat64()
+					}
+					ls[i] = h.w.ladder.Loss().Value(float64(rng.IntN(2)), h.w.ladder.Eta(max(h.w.current(), 0), xs[i]))
+				}
+				b.ReportAllocs()
+				b.ResetTimer()
+				for i := range b.N {
+					k := i & 1023
+					wt.observe(xs[k], 0, ls[k], i%5 == 4)
+				}
+			})
+		}
 	}
 }

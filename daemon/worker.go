@@ -202,14 +202,16 @@ func (w *worker) run() {
 		select {
 		case it := <-w.queue:
 			names = it.names
-			w.apply(it)
+			t := w.applyAt(it, time.Now())
 			// A busy stream: apply what is queued without going back to
 			// the four-way select each time (bounded, so ticks still run).
+			// One clock reading per record: the end of one is the start of
+			// the next.
 			for range batch {
 				select {
 				case it = <-w.queue:
 					names = it.names
-					w.apply(it)
+					t = w.applyAt(it, t)
 					continue
 				default:
 				}
@@ -238,11 +240,23 @@ func (w *worker) run() {
 
 // apply routes one record to the holdout or the ladder (test-then-train),
 // counts it, and retunes every retune.every records.
-func (w *worker) apply(it *item) {
-	start := time.Now()
+func (w *worker) apply(it *item) { w.applyAt(it, time.Now()) }
+
+// applyAt is apply for a record whose application started at start (the
+// model goroutine passes the end of the record before it in a burst, so
+// each record costs one clock reading). It observes the time to apply the
+// record (lariat_update_duration_seconds, retunes excluded) and returns the
+// time it finished, after the retune if one ran.
+func (w *worker) applyAt(it *item, start time.Time) time.Time {
 	r := online.Record{X: it.rec.X, Y: it.rec.Y, W: it.rec.W}
 	if it.rec.HasT {
 		r.T = it.rec.T
+	}
+	if r.W == 0 {
+		// record.Decoder reads "w": 0 as 0 (an absent "w" is 1), while
+		// online.Record reads W = 0 as weight 1: a zero weight would
+		// silently count in full.
+		return w.rejectApplied(it, record.ReasonWeight, `"w" is 0: weight must be positive`)
 	}
 	heldOut := w.split.Holdout(w.seq, it.rec.Key)
 	// Test-then-train: the current model's loss on the record before it
@@ -258,9 +272,7 @@ func (w *worker) apply(it *item) {
 		err = w.ladder.Add(r)
 	}
 	if err != nil {
-		w.d.reject(w, it.msg.Subject, learnerReason(err), err.Error(), it.msg.Data)
-		w.done1(it)
-		return
+		return w.rejectApplied(it, learnerReason(err), err.Error())
 	}
 	w.seq++
 	if heldOut {
@@ -272,10 +284,22 @@ func (w *worker) apply(it *item) {
 		o.observe(r.X, r.Y, loss, heldOut)
 	}
 	w.done1(it)
-	w.mm.UpdateSeconds.Observe(time.Since(start).Seconds())
+	end := time.Now()
+	w.mm.UpdateSeconds.Observe(end.Sub(start).Seconds())
 	if w.sinceRetune++; w.sinceRetune >= w.retuneEvery {
 		w.retune()
+		end = time.Now()
 	}
+	return end
+}
+
+// rejectApplied rejects a record on the model goroutine (counted and
+// republished like every reject; the model is untouched), hands its item
+// back and returns the time it finished.
+func (w *worker) rejectApplied(it *item, reason, detail string) time.Time {
+	w.d.reject(w, it.msg.Subject, reason, detail, it.msg.Data)
+	w.done1(it)
+	return time.Now()
 }
 
 // done1 hands an item back to the intake. A durable (JetStream) intake
