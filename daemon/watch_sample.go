@@ -91,7 +91,7 @@ func (s *featureSample) rebin(base int, evict bool) {
 		var b int
 		switch e := s.edges[j]; {
 		case s.searched[j]:
-			b = binSearch(e, v)
+			b = window.Bin(e, v)
 		case len(e) == window.DefaultShiftBins-1:
 			b = countLE9((*[window.DefaultShiftBins - 1]float64)(e), v)
 		default:
@@ -130,23 +130,6 @@ func countLE9(e *[window.DefaultShiftBins - 1]float64, v float64) int {
 }
 
 func signBit(f float64) uint64 { return math.Float64bits(f) >> 63 }
-
-// binSearch is window.ShiftReference's bin: a binary search for the first
-// edge > x. For edges that are not finite and ascending (rounding and
-// overflow corners of the interpolated quantiles of values near ±MaxFloat64)
-// only the same search gives the same bin.
-func binSearch(edges []float64, x float64) int {
-	lo, hi := 0, len(edges)
-	for lo < hi {
-		mid := int(uint(lo+hi) >> 1)
-		if edges[mid] <= x {
-			lo = mid + 1
-		} else {
-			hi = mid
-		}
-	}
-	return lo
-}
 
 // finiteAscending reports whether every edge is finite and none is below
 // the one before.

@@ -89,7 +89,7 @@ func TestFeatureSampleBins(t *testing.T) {
 			vals = append(vals, math.Round(rng.NormFloat64()*40)/8)
 		}
 		for _, v := range vals {
-			want := binSearch(e, v)
+			want := window.Bin(e, v)
 			if got := countLE(e, v); got != want {
 				t.Errorf("edges %d %v: bin of %v is %d, want %d", i, e, v, got, want)
 			}

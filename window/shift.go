@@ -127,8 +127,10 @@ func quantileEdges(sorted []float64, bins int) []float64 {
 	return e
 }
 
-// bin returns the number of edges <= x: the index of x's bin.
-func bin(edges []float64, x float64) int {
+// Bin returns the number of edges <= x, the index of x's bin among the
+// edges of ShiftReference.Edges; callers that keep their own bin counts use
+// it to stay bit-for-bit consistent with Compare.
+func Bin(edges []float64, x float64) int {
 	lo, hi := 0, len(edges)
 	for lo < hi {
 		mid := int(uint(lo+hi) >> 1)
@@ -149,7 +151,7 @@ func (r *ShiftReference) fractions(j int, col, dst []float64) (n int, mean float
 		if math.IsNaN(x) || math.IsInf(x, 0) {
 			continue
 		}
-		dst[bin(r.edges[j], x)]++
+		dst[Bin(r.edges[j], x)]++
 		n++
 		mean += x
 	}
