@@ -17,18 +17,34 @@ import (
 // configured authentication and TLS (external servers only).
 func (d *Daemon) connectOptions() ([]nats.Option, error) {
 	log := d.log.With("component", "nats")
+	// lastConnErr is only touched by nats.go's callbacks, which run one at
+	// a time on the connection's callback goroutine.
+	var lastConnErr string
 	opts := []nats.Option{
 		nats.Name("lariat"),
 		nats.MaxReconnects(-1),
 		nats.ReconnectWait(time.Second),
 		nats.RetryOnFailedConnect(true),
-		nats.ConnectHandler(func(*nats.Conn) { log.Info("NATS connected") }),
+		nats.ConnectHandler(func(*nats.Conn) {
+			lastConnErr = ""
+			log.Info("NATS connected")
+		}),
+		nats.ReconnectErrHandler(func(_ *nats.Conn, err error) {
+			// A failed first connection (a wrong TLS CA, a refused
+			// client certificate, no server yet) and failed dials after
+			// it: each distinct cause is logged once, not every retry.
+			if msg := err.Error(); msg != lastConnErr {
+				lastConnErr = msg
+				log.Warn("NATS connection failed; retrying", "err", err)
+			}
+		}),
 		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
 			if !d.stopping.Load() {
 				log.Warn("NATS disconnected", "err", err)
 			}
 		}),
 		nats.ReconnectHandler(func(nc *nats.Conn) {
+			lastConnErr = ""
 			d.metrics.Reconnected()
 			log.Info("NATS reconnected", "url", nc.ConnectedUrlRedacted())
 		}),

@@ -135,7 +135,7 @@ var _ sink.ThresholdSetter = (*Daemon)(nil)
 
 // SetThresholdTarget changes a logistic model's alert threshold (PUT
 // /v1/models/{name}/threshold): mode "fixed" with the threshold itself as
-// target, in (0, 1), or "fpr" / "precision" with the target rate in [0, 1].
+// target, in (0, 1), or "fpr" / "precision" with the target rate in (0, 1).
 // The change is first saved in data_dir/thresholds.json (atomically), so it
 // survives a restart, then handed to the model goroutine, which re-tunes at
 // once; the model document shows it from the next publication. An unknown
@@ -183,8 +183,8 @@ func checkThreshold(mode string, target float64) error {
 			return fmt.Errorf("%w: fixed threshold %v must be in (0, 1)", errThreshold, target)
 		}
 	case config.ThresholdFPR, config.ThresholdPrecision:
-		if !(target >= 0 && target <= 1) {
-			return fmt.Errorf("%w: target %v must be in [0, 1]", errThreshold, target)
+		if !(target > 0 && target < 1) {
+			return fmt.Errorf("%w: target %v must be in (0, 1)", errThreshold, target)
 		}
 	default:
 		return fmt.Errorf("%w: mode %q (allowed: fixed, fpr, precision)", errThreshold, mode)

@@ -215,8 +215,8 @@ func TestThresholdCheck(t *testing.T) {
 		ok     bool
 	}{
 		{"fixed", 0.5, true}, {"fixed", 0, false}, {"fixed", 1, false},
-		{"fpr", 0, true}, {"fpr", 1, true}, {"fpr", 1.5, false}, {"fpr", math.NaN(), false},
-		{"precision", 0.9, true}, {"precision", -0.1, false}, {"roc", 0.5, false},
+		{"fpr", 0.01, true}, {"fpr", 0, false}, {"fpr", 1, false}, {"fpr", 1.5, false}, {"fpr", math.NaN(), false},
+		{"precision", 0.9, true}, {"precision", 1, false}, {"precision", -0.1, false}, {"roc", 0.5, false},
 	} {
 		err := checkThreshold(tc.mode, tc.target)
 		if (err == nil) != tc.ok {

@@ -89,8 +89,8 @@ func parseThreshold(b []byte) (mode string, target float64, err error) {
 		return "", 0, errors.New("target is required")
 	case req.Mode == "fixed" && !(*t > 0 && *t < 1):
 		return "", 0, fmt.Errorf("fixed threshold %v must be in (0, 1)", *t)
-	case !(*t >= 0 && *t <= 1):
-		return "", 0, fmt.Errorf("target %v must be in [0, 1]", *t)
+	case !(*t > 0 && *t < 1):
+		return "", 0, fmt.Errorf("target %v must be in (0, 1), as in the configuration", *t)
 	}
 	return req.Mode, *t, nil
 }
