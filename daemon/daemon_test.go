@@ -3,6 +3,7 @@ package daemon
 import (
 	"encoding/json"
 	"fmt"
+	"io"
 	"net/http"
 	"sync"
 	"testing"
@@ -296,7 +297,9 @@ func TestGracefulShutdown(t *testing.T) {
 }
 
 // TestConcurrentModels feeds three models at once (run with -race) while
-// HTTP clients read and predict.
+// an HTTP client reads and predicts: every answer is 200 or 503 (a model
+// that has not published yet), and the version a model shows never goes
+// down.
 func TestConcurrentModels(t *testing.T) {
 	const n = 3000
 	tr := sparseTruth(10)
@@ -321,8 +324,46 @@ func TestConcurrentModels(t *testing.T) {
 		})
 	}
 	stopReaders := make(chan struct{})
+	readerErr := make(chan error, 1) // the reader's first failure, if any
 	wg.Go(func() {
 		body := tr.records(1, false, 99)[0]
+		base := "http://" + td.HTTPAddr() + "/v1/models/"
+		seen := map[string]uint64{} // highest version read per model
+		check := func(what string, resp *http.Response) ([]byte, error) {
+			defer resp.Body.Close()
+			b, _ := io.ReadAll(resp.Body)
+			if resp.StatusCode != http.StatusOK && resp.StatusCode != http.StatusServiceUnavailable {
+				return nil, fmt.Errorf("%s: %s: %s (want 200 or 503)", what, resp.Status, b)
+			}
+			if resp.StatusCode != http.StatusOK {
+				return nil, nil
+			}
+			return b, nil
+		}
+		read := func(name string) error {
+			resp, err := http.Get(base + name)
+			if err != nil {
+				return err
+			}
+			b, err := check("GET "+name, resp)
+			if err != nil || b == nil {
+				return err
+			}
+			var doc sink.ModelDoc
+			if err := json.Unmarshal(b, &doc); err != nil {
+				return fmt.Errorf("GET %s: %v", name, err)
+			}
+			if doc.Version < seen[name] {
+				return fmt.Errorf("GET %s: version %d after %d", name, doc.Version, seen[name])
+			}
+			seen[name] = doc.Version
+			resp, err = http.Post(base+name+"/predict", "application/json", bytesReader(body))
+			if err != nil {
+				return err
+			}
+			_, err = check("POST "+name+"/predict", resp)
+			return err
+		}
 		for {
 			select {
 			case <-stopReaders:
@@ -330,10 +371,9 @@ func TestConcurrentModels(t *testing.T) {
 			default:
 			}
 			for _, m := range models {
-				getDoc(td.Daemon, m.Name)
-				resp, err := http.Post("http://"+td.HTTPAddr()+"/v1/models/"+m.Name+"/predict", "application/json", bytesReader(body))
-				if err == nil {
-					resp.Body.Close()
+				if err := read(m.Name); err != nil {
+					readerErr <- err
+					return
 				}
 			}
 			time.Sleep(5 * time.Millisecond)
@@ -350,4 +390,9 @@ func TestConcurrentModels(t *testing.T) {
 	})
 	close(stopReaders)
 	wg.Wait()
+	select {
+	case err := <-readerErr:
+		t.Error(err)
+	default:
+	}
 }

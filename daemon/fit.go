@@ -84,7 +84,7 @@ type FitError struct {
 	File   string // input file, if the error is about it
 	Line   int    // 1-based line in the file (the header is line 1); 0 if none
 	Column string // column name; "" if none
-	Msg    string
+	Msg    string // what is wrong, in words
 }
 
 // Error returns the one-line message.

@@ -189,7 +189,7 @@ func TestFitReference(t *testing.T) {
 					t.Errorf("%s: in support %v, reference %v (θ_ref = %g)", name, ok, want != 0, want)
 				}
 				dev = max(dev, math.Abs(got-want))
-				// Raw units: θ_j / s_j (DESIGN.md, "The objective").
+				// Raw units: θ_j / s_j (README.md, "The objective").
 				if raw := d.Coefficients[name]; math.Abs(raw-got/ds.Std[j]) > 1e-9*max(1, math.Abs(raw)) {
 					t.Errorf("%s: raw coefficient %g, θ/s = %g", name, raw, got/ds.Std[j])
 				}

@@ -44,6 +44,7 @@ type PlantOptions struct {
 
 // Publisher is the part of a NATS connection the plant needs.
 type Publisher interface {
+	// Publish sends data on subject, as nats.Conn.Publish does.
 	Publish(subject string, data []byte) error
 }
 

@@ -96,21 +96,21 @@ func TestScoringAllocs(t *testing.T) {
 	}
 }
 
-// TestScoringBucket: a burst over the threshold is cut to the bucket and
-// the rest counted.
+// TestScoringBucket: a burst over the threshold is cut to the bucket of 10
+// (README.md, "Alert thresholds (logistic models)") and the rest counted.
 func TestScoringBucket(t *testing.T) {
 	d, s := scoringFixture(t)
 	over := &nats.Msg{Subject: "test.score.unlabeled", Data: []byte(`{"v": [3, 3, 3, 3, 3, 3, 3]}`)}
 	for range 25 {
 		s.handle(over)
 	}
-	if n := len(d.store.Alerts("score")); n != predictionBurst {
-		t.Errorf("%d alerts from a burst of 25, want %d", n, predictionBurst)
+	if n := len(d.store.Alerts("score")); n != 10 {
+		t.Errorf("%d alerts from a burst of 25, want 10", n)
 	}
 	if got := metricValue(t, d, "lariat_prediction_alerts_suppressed_total", map[string]string{"model": "score"}); got != 15 {
 		t.Errorf("suppressed %v, want 15", got)
 	}
-	if got := metricValue(t, d, "lariat_alerts_total", map[string]string{"model": "score", "kind": "prediction"}); got != predictionBurst {
+	if got := metricValue(t, d, "lariat_alerts_total", map[string]string{"model": "score", "kind": "prediction"}); got != 10 {
 		t.Errorf("lariat_alerts_total{kind=prediction} = %v", got)
 	}
 }

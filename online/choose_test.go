@@ -56,7 +56,10 @@ func TestChoose(t *testing.T) {
 }
 
 // TestChooseByLambda checks that "largest λ" is read from Score.Lambda, not
-// from the position, when the two disagree (definition of this package).
+// from the position, when the two disagree. Source: the one-SE rule picks
+// the largest λ, the most regularized model, within one standard error of
+// the best (Hastie, Tibshirani & Friedman, Elements of Statistical Learning,
+// 2nd ed., 2009, §7.10); a position on the ladder is only bookkeeping.
 func TestChooseByLambda(t *testing.T) {
 	s := []Score{
 		{Index: 2, Lambda: 0.25, Loss: 2, SE: 1},
@@ -96,9 +99,11 @@ func TestParseRule(t *testing.T) {
 	}
 }
 
-// TestChooserHysteresis checks the hysteresis of DESIGN.md ("move λ* only
-// when the new choice wins on two consecutive retunes"; definition of this
-// project): each letter is the winner of one Update.
+// TestChooserHysteresis checks the hysteresis rule (README.md, "How λ is
+// chosen and how to read alerts": a new choice must win two consecutive
+// retunes before λ* moves; the two-win rule is this product's choice,
+// hysteresis itself is common practice, no single source): each letter is the
+// winner of one Update.
 func TestChooserHysteresis(t *testing.T) {
 	tests := []struct {
 		winners string

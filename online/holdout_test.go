@@ -8,7 +8,7 @@ import (
 )
 
 // holdoutBadRecords are records every Add must reject, with the sentinel each one
-// wraps (the validation rules of CONTRACT.md's Record and Ladder.Add).
+// wraps (the validation rules of Record and Ladder.Add in this package).
 func holdoutBadRecords() []struct {
 	name string
 	r    Record
@@ -150,7 +150,7 @@ func TestHoldoutAddAllocs(t *testing.T) {
 }
 
 // TestHoldoutValidationMatchesLadder feeds the same bad records to a Ladder
-// and a Holdout: the contract says Holdout.Add validates as Ladder.Add does.
+// and a Holdout: Holdout.Add must validate exactly as Ladder.Add does.
 func TestHoldoutValidationMatchesLadder(t *testing.T) {
 	for _, loss := range []Loss{Squared{}, Logistic{}} {
 		l, err := NewLadder(&Options{Loss: loss, Features: 2, Size: 2})

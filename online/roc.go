@@ -9,7 +9,7 @@ import (
 // Threshold": the true-positive rate, false-positive rate and precision of
 // the alarms it raises (Fawcett 2006, "An introduction to ROC analysis").
 type ROCPoint struct {
-	Threshold float64
+	Threshold float64 // the probability threshold p of this point
 	TPR       float64 // (weighted) fraction of positives with p ≥ Threshold
 	FPR       float64 // (weighted) fraction of negatives with p ≥ Threshold
 	Precision float64 // positives among the alarms; 1 when there are no alarms

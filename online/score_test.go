@@ -164,7 +164,10 @@ func TestScoreWeightedSE(t *testing.T) {
 
 // TestScoreSEScaleInvariant checks that multiplying every weight by a
 // constant changes neither the mean loss nor its SE, and that unit weights
-// and the default weight 0 agree (properties of reliability weights).
+// and the default weight 0 agree. Source: with reliability weights (GSL's
+// gsl_stats_wvariance, value from memory) L = Σwℓ/W, s² = Σw(ℓ−L)²/(W − Σw²/W)
+// and SE = √(Σw²·s²)/W are each of degree 0 in w, so scaling w by c leaves
+// them unchanged.
 func TestScoreSEScaleInvariant(t *testing.T) {
 	l, h := scoreFixture(t, Squared{}, 4, 3, 200, 80, false)
 	base := l.Score(h, nil)
@@ -183,6 +186,13 @@ func TestScoreSEScaleInvariant(t *testing.T) {
 	}
 }
 
+// TestScoreEdgeCases checks Score on an empty holdout and the conventions
+// that keep NaN out of it. Sources: AUC 0.5 when a class is missing (the
+// chance-level value; common practice, no single source); SE 0 for a single
+// record, whose reliability-weight denominator W − Σw²/W is 0 (GSL's
+// gsl_stats_wvariance, value from memory); R² = 1 − SSE/SST, and for constant
+// labels 1 for a perfect fit and 0 otherwise (scikit-learn 1.2.1 r2_score
+// with force_finite=True, value from memory).
 func TestScoreEdgeCases(t *testing.T) {
 	l, err := NewLadder(&Options{Loss: Logistic{}, Features: 2, Size: 3})
 	if err != nil {

@@ -27,7 +27,8 @@ type selectRun struct {
 }
 
 // streamFriedman streams n records of Friedman #1 with p features through a
-// lasso ladder, every 5th record held out (the DESIGN.md default), and
+// lasso ladder, every 5th record held out (the default holdout.every of
+// README.md, "How λ is chosen and how to read alerts"), and
 // retunes with the one-SE rule and hysteresis every `every` records, after
 // the daemon's default idle steps and, if converge is set, a full
 // convergence (a quiet stream).

@@ -25,8 +25,8 @@ func sameFit(t *testing.T, a, b *Ladder, tol float64) {
 // TestSlidingEqualsBatch: after the window slides (count eviction, then
 // span eviction), the converged streaming ladder equals a fresh ladder fed
 // only the window's current records and converged — the windowed objective
-// is exactly F on the window (DESIGN.md, Learners; the fresh batch fit is
-// the reference).
+// is exactly F on the window (README.md, "The objective"; the fresh batch
+// fit is the reference).
 func TestSlidingEqualsBatch(t *testing.T) {
 	for _, tc := range []struct {
 		name     string
@@ -199,7 +199,8 @@ func TestMissingImputed(t *testing.T) {
 }
 
 // TestConstantFeature: a constant feature gets coefficient 0 and no
-// division by zero (DESIGN.md, Numerics).
+// division by zero: a feature with s_j = 0 carries no information and its
+// raw coefficient θ_j / s_j is defined as 0 rather than computed.
 func TestConstantFeature(t *testing.T) {
 	p := makeProblem(16, 200, 4, 4, false, false)
 	for i := range p.x {

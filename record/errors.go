@@ -16,7 +16,7 @@ const (
 	ReasonTooManyFeatures = "too_many_features" // a new channel name past DecoderOptions.MaxFeatures
 	ReasonMissingFeature  = "missing_feature"   // neither "x" nor "v", or a missing channel under the reject policy
 	ReasonDimension       = "dimension"         // "v" has the wrong length, or there is no fixed feature list
-	ReasonWeight          = "weight"            // "w" is negative
+	ReasonWeight          = "weight"            // "w" is negative (the Decoder); the daemon also rejects "w": 0
 	ReasonTime            = "time"              // "t" is neither RFC 3339 nor integer Unix milliseconds
 )
 
@@ -38,7 +38,9 @@ func Reasons() []string { return append([]string(nil), reasons[:]...) }
 //	var e *record.Error
 //	if errors.As(err, &e) { rejected.WithLabelValues(e.Reason).Inc() }
 type Error struct {
+	// Reason is one of the Reason constants, such as ReasonLabel.
 	Reason string
+	// Detail says in words what was wrong with the record.
 	Detail string
 }
 

@@ -64,8 +64,8 @@ func checkFor(t *testing.T, total, every time.Duration, f func() error) {
 
 // testModel builds a consistent online.Model snapshot from standardized
 // coefficients theta, scale mean/std and standardized intercept b, with the
-// raw-unit mapping of DESIGN.md: coef = θ/s (0 where s == 0) and
-// intercept = b − Σ θ μ/s.
+// raw-unit mapping of README.md, "The objective": coef = θ/s (0 where
+// s == 0) and intercept = b − Σ θ μ/s.
 func testModel(loss string, theta, mean, std []float64, b float64) *online.Model {
 	coef := make([]float64, len(theta))
 	intercept := b

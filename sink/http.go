@@ -53,6 +53,7 @@ var (
 // the request body (a record in the wire format). Errors wrapping
 // ErrUnknownModel give 404, ErrNotReady 503, any other error 400.
 type Predictor interface {
+	// Predict decodes body as a record and scores it with the named model.
 	Predict(model string, body []byte) (*Prediction, error)
 }
 
@@ -60,8 +61,9 @@ type Predictor interface {
 // PUT /v1/models/{name}/threshold. mode is "fixed" (target is the
 // probability threshold itself), "fpr" or "precision" (target is the rate
 // to reach on the held-out ring). Errors wrapping ErrUnknownModel give 404,
-// any other error 400.
+// ErrNotReady 503, any other error 400.
 type ThresholdSetter interface {
+	// SetThresholdTarget sets the named model's threshold mode and target.
 	SetThresholdTarget(model, mode string, target float64) error
 }
 

@@ -30,7 +30,7 @@ func TestNewModelDoc(t *testing.T) {
 			if got := slices.Sorted(maps.Keys(doc.Coefficients)); !slices.Equal(got, []string{"a", "c"}) {
 				t.Errorf("coefficient support = %v, want [a c]", got)
 			}
-			// Raw coefficient of a = θ/s = 0.5/2 (the mapping of DESIGN.md).
+			// Raw coefficient of a = θ/s = 0.5/2 (README.md, "The objective").
 			if doc.Coefficients["a"] != 0.25 || doc.Standardized["c"] != -1.25 {
 				t.Errorf("coefficients = %v, standardized = %v", doc.Coefficients, doc.Standardized)
 			}
@@ -126,7 +126,9 @@ func TestModelDocJSON(t *testing.T) {
 	if err := json.Unmarshal(b1, &fields); err != nil {
 		t.Fatal(err)
 	}
-	// The field list of the model JSON in CONTRACT.md and DESIGN.md.
+	// The fields of the model JSON that README.md names ("How λ is chosen and
+	// how to read alerts": penalty, lambda_index, holdout, ladder, threshold)
+	// plus the identity, coefficient and bookkeeping fields clients read.
 	for _, k := range []string{"model", "version", "loss", "penalty", "lambda_index", "intercept", "coefficients",
 		"standardized", "scale", "holdout", "ladder", "records", "threshold", "updated"} {
 		if _, ok := fields[k]; !ok {

@@ -2,10 +2,14 @@ package sink
 
 import (
 	"encoding/xml"
+	"maps"
 	"math"
+	"regexp"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"lariat/online"
 )
@@ -124,5 +128,167 @@ func TestPMMLHeader(t *testing.T) {
 		if !strings.Contains(s, want) {
 			t.Errorf("PMML lacks %s:\n%s", want, s)
 		}
+	}
+}
+
+// rawElement is one start tag of an XML document read from its text alone:
+// its path from the root ("PMML/RegressionModel/RegressionTable") and its
+// attributes.
+type rawElement struct {
+	path  string
+	attrs map[string]string
+}
+
+var (
+	rawTag  = regexp.MustCompile(`<(/?)([A-Za-z_][-\w.]*)((?:\s+[A-Za-z_:][-\w.:]*="[^"]*")*)\s*(/?)>`)
+	rawAttr = regexp.MustCompile(`([A-Za-z_:][-\w.:]*)="([^"]*)"`)
+)
+
+// rawElements lists the start tags of s in document order. It reads the
+// text with regular expressions, not with encoding/xml and the structs that
+// wrote it, so that a golden check does not depend on them.
+func rawElements(t *testing.T, s string) []rawElement {
+	t.Helper()
+	var out []rawElement
+	var stack []string
+	for _, m := range rawTag.FindAllStringSubmatch(s, -1) {
+		if m[1] == "/" {
+			if len(stack) == 0 || stack[len(stack)-1] != m[2] {
+				t.Fatalf("unbalanced </%s> in\n%s", m[2], s)
+			}
+			stack = stack[:len(stack)-1]
+			continue
+		}
+		e := rawElement{path: strings.Join(append(stack, m[2]), "/"), attrs: map[string]string{}}
+		for _, a := range rawAttr.FindAllStringSubmatch(m[3], -1) {
+			e.attrs[a[1]] = a[2]
+		}
+		out = append(out, e)
+		if m[4] != "/" {
+			stack = append(stack, m[2])
+		}
+	}
+	if len(stack) != 0 {
+		t.Fatalf("unclosed elements %v in\n%s", stack, s)
+	}
+	return out
+}
+
+// TestPMMLGolden checks the raw XML of a tiny linear and a tiny logistic
+// model (features a and b; θ = (0.5, −1), mean (1, 4), std (1, 2), standardized
+// intercept 0.25, so raw coefficients 0.5 and −0.5 and intercept
+// 0.25 − (0.5·1/1 − 1·4/2) = 1.75) against the element and attribute names of
+// a PMML 4.4 RegressionModel. Source: PMML 4.4, Data Mining Group, value
+// from memory: root PMML with version="4.4" and
+// xmlns="http://www.dmg.org/PMML-4_4"; Header, DataDictionary and the model
+// in that order; DataField name/optype/dataType (Value children for a
+// categorical field); RegressionModel functionName "regression" or
+// "classification" with normalizationMethod "logit" for the logistic
+// model; MiningSchema before the RegressionTables, with MiningField
+// usageType "active" or "target"; RegressionTable intercept (and
+// targetCategory for classification, the second category's table with
+// intercept 0 and no predictors); NumericPredictor name/exponent/coefficient.
+func TestPMMLGolden(t *testing.T) {
+	type el struct {
+		path  string
+		attrs map[string]string // these attributes, with these values
+		exact bool              // and no others
+	}
+	const (
+		root  = "PMML"
+		dd    = root + "/DataDictionary"
+		model = root + "/RegressionModel"
+		ms    = model + "/MiningSchema"
+		table = model + "/RegressionTable"
+		np    = table + "/NumericPredictor"
+	)
+	common := []el{
+		{root, map[string]string{"version": "4.4", "xmlns": "http://www.dmg.org/PMML-4_4"}, true},
+		{root + "/Header", map[string]string{}, false},
+		{dd, map[string]string{"numberOfFields": "3"}, true},
+		{dd + "/DataField", map[string]string{"name": "a", "optype": "continuous", "dataType": "double"}, true},
+		{dd + "/DataField", map[string]string{"name": "b", "optype": "continuous", "dataType": "double"}, true},
+	}
+	mining := []el{
+		{ms, map[string]string{}, true},
+		{ms + "/MiningField", map[string]string{"name": "a", "usageType": "active", "missingValueReplacement": "1", "missingValueTreatment": "asMean"}, true},
+		{ms + "/MiningField", map[string]string{"name": "b", "usageType": "active", "missingValueReplacement": "4", "missingValueTreatment": "asMean"}, true},
+		{ms + "/MiningField", map[string]string{"name": "y", "usageType": "target"}, true},
+	}
+	predictors := []el{
+		{np, map[string]string{"name": "a", "exponent": "1", "coefficient": "0.5"}, true},
+		{np, map[string]string{"name": "b", "exponent": "1", "coefficient": "-0.5"}, true},
+	}
+	for _, tc := range []struct {
+		loss string
+		want []el // in document order, among the elements of the paths listed
+	}{
+		{"squared", slices.Concat(common,
+			[]el{
+				{dd + "/DataField", map[string]string{"name": "y", "optype": "continuous", "dataType": "double"}, true},
+				{model, map[string]string{"functionName": "regression", "normalizationMethod": "none"}, false},
+			},
+			mining,
+			[]el{{table, map[string]string{"intercept": "1.75"}, true}},
+			predictors)},
+		{"logistic", slices.Concat(common,
+			[]el{
+				{dd + "/DataField", map[string]string{"name": "y", "optype": "categorical", "dataType": "integer"}, true},
+				{dd + "/DataField/Value", map[string]string{"value": "0"}, true},
+				{dd + "/DataField/Value", map[string]string{"value": "1"}, true},
+				{model, map[string]string{"functionName": "classification", "normalizationMethod": "logit"}, false},
+			},
+			mining,
+			[]el{{table, map[string]string{"intercept": "1.75", "targetCategory": "1"}, true}},
+			predictors,
+			[]el{{table, map[string]string{"intercept": "0", "targetCategory": "0"}, true}})},
+	} {
+		t.Run(tc.loss, func(t *testing.T) {
+			m := testModel(tc.loss, []float64{0.5, -1}, []float64{1, 4}, []float64{1, 2}, 0.25)
+			doc, err := NewModelDoc(&DocInput{Name: "tiny", Version: 3, Features: []string{"a", "b"}, Model: m,
+				Updated: time.Date(2026, 1, 2, 3, 4, 5, 0, time.UTC)})
+			if err != nil {
+				t.Fatal(err)
+			}
+			b, err := PMML(doc)
+			if err != nil {
+				t.Fatal(err)
+			}
+			s := string(b)
+			if !strings.HasPrefix(s, `<?xml version="1.0" encoding="UTF-8"?>`) {
+				t.Errorf("no XML declaration:\n%s", s)
+			}
+			paths := map[string]bool{}
+			for _, w := range tc.want {
+				paths[w.path] = true
+			}
+			var got []rawElement
+			for _, e := range rawElements(t, s) {
+				if paths[e.path] {
+					got = append(got, e)
+				}
+			}
+			if len(got) != len(tc.want) {
+				t.Fatalf("%d elements on the checked paths, want %d:\n%s", len(got), len(tc.want), s)
+			}
+			for i, w := range tc.want {
+				g := got[i]
+				if g.path != w.path {
+					t.Errorf("element %d is %s, want %s", i, g.path, w.path)
+					continue
+				}
+				if w.exact && !maps.Equal(g.attrs, w.attrs) {
+					t.Errorf("%s: attributes %v, want exactly %v", w.path, g.attrs, w.attrs)
+				}
+				for k, v := range w.attrs {
+					if g.attrs[k] != v {
+						t.Errorf("%s: %s=%q, want %q", w.path, k, g.attrs[k], v)
+					}
+				}
+			}
+			if t.Failed() {
+				t.Logf("PMML:\n%s", s)
+			}
+		})
 	}
 }

@@ -232,6 +232,12 @@ func TestADWINIgnoresNonFinite(t *testing.T) {
 	}
 }
 
+// TestADWINOptionsAndReset checks the defaults, the replacement of invalid
+// options and Reset. Source of the expected defaults: M = 5 from Bifet &
+// Gavaldà (2007), "Learning from time-changing data with adaptive
+// windowing", SDM; δ 0.002 is common practice, no single source (value from
+// memory), and clock 32 is this package's own choice; Range 1 is
+// the paper's assumption of values in [0, 1].
 func TestADWINOptionsAndReset(t *testing.T) {
 	tests := []struct {
 		name string

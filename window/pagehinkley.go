@@ -2,7 +2,10 @@ package window
 
 import "math"
 
-// Defaults of PageHinkleyOptions.
+// Defaults of PageHinkleyOptions. δ = 0.005, λ = 50, α = 0.9999 and 30
+// values before a signal are widely used settings (value from memory); the
+// Page-Hinkley papers fix none of them, so they are common practice, no
+// single source. The tests measure what they give on this package's data.
 const (
 	DefaultPHDelta        = 0.005
 	DefaultPHThreshold    = 50

@@ -179,6 +179,10 @@ func TestPageHinkleyHandComputed(t *testing.T) {
 	}
 }
 
+// TestPageHinkleyOptions checks the defaults and the replacement of invalid
+// options. Source of the expected defaults δ 0.005, λ 50, α 0.9999, 30:
+// widely used settings, value from memory (common practice, no single
+// source).
 func TestPageHinkleyOptions(t *testing.T) {
 	tests := []struct {
 		name string
