@@ -2,7 +2,6 @@ package online
 
 import (
 	"fmt"
-	"math"
 	"slices"
 )
 
@@ -98,28 +97,16 @@ func hasNaN(x []float64) bool {
 	return false
 }
 
-// checkHeldOut validates r by the rules of Ladder.Add (ladder.go's check,
-// same bounds and messages); loss nil skips the label-domain check. The
-// test TestHoldoutValidationMatchesLadder keeps the two in step.
+// checkHeldOut validates r with the checks Ladder.Add uses (checkFeatures,
+// checkLabel); loss nil skips the label-domain check.
 func checkHeldOut(r *Record, d int, loss Loss) error {
 	if len(r.X) != d {
 		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), d)
 	}
-	for j, v := range r.X {
-		if v == v && !(math.Abs(v) <= maxValue) {
-			return fmt.Errorf("%w: feature %d is %v (limit ±%g)", ErrNotFinite, j, v, maxValue)
-		}
+	if err := checkFeatures(r.X); err != nil {
+		return err
 	}
-	if !(math.Abs(r.Y) <= maxValue) {
-		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
-	}
-	if _, ok := loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
-		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
-	}
-	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
-		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)
-	}
-	return nil
+	return checkLabel(r, loss)
 }
 
 // Len returns the number of records held.

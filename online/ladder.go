@@ -217,22 +217,32 @@ func (l *Ladder) check(r *Record) error {
 		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), l.d)
 	}
 	if l.saga != nil && impute(l.xbuf, r.X, l.saga.ts.sc.mean, maxValue) {
-		return l.checkLabel(r)
+		return checkLabel(r, l.opt.Loss)
 	}
-	for j, v := range r.X {
+	if err := checkFeatures(r.X); err != nil {
+		return err
+	}
+	return checkLabel(r, l.opt.Loss)
+}
+
+// checkFeatures returns an ErrNotFinite error for the first feature that is
+// neither missing (NaN) nor within ±maxValue.
+func checkFeatures(x []float64) error {
+	for j, v := range x {
 		if !(v != v || (v <= maxValue && v >= -maxValue)) {
 			return fmt.Errorf("%w: feature %d is %v (limit ±%g)", ErrNotFinite, j, v, maxValue)
 		}
 	}
-	return l.checkLabel(r)
+	return nil
 }
 
-// checkLabel validates the label and weight of r.
-func (l *Ladder) checkLabel(r *Record) error {
+// checkLabel validates the label and weight of r for loss; the Ladder and
+// the Holdout share it, so both reject exactly the same records.
+func checkLabel(r *Record, loss Loss) error {
 	if !(math.Abs(r.Y) <= maxValue) {
 		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
 	}
-	if _, ok := l.opt.Loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
+	if _, ok := loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
 		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
 	}
 	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
