@@ -24,6 +24,7 @@ type Decoder struct {
 	unlabeled bool
 
 	names []string       // feature order; never reordered, only appended
+	plain []bool         // plain[j]: names[j] is valid UTF-8 without '"', '\\' or control bytes, so it appears verbatim in a string
 	index map[string]int // name -> position in names
 	mark  int            // len(names) before the current Decode
 	seen  []uint32       // seen[j] == gen: feature j occurred in this record
@@ -64,6 +65,7 @@ func NewDecoder(o *DecoderOptions) *Decoder {
 			d.index[name] = len(d.names)
 			d.names = append(d.names, name)
 			d.seen = append(d.seen, 0)
+			d.plain = append(d.plain, isPlain(name))
 		}
 	}
 	return d
@@ -142,6 +144,7 @@ func (d *Decoder) rollback() {
 	clear(d.names[d.mark:]) // drop references for the collector
 	d.names = d.names[:d.mark]
 	d.seen = d.seen[:d.mark]
+	d.plain = d.plain[:d.mark]
 	if len(d.over) > 64 {
 		d.over = nil // do not keep a large map for a hostile record
 	}

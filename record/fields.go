@@ -3,6 +3,7 @@ package record
 import (
 	"math"
 	"strconv"
+	"unicode/utf8"
 )
 
 // field parses the value of top-level field f (0: unknown, skipped). It adds
@@ -153,21 +154,48 @@ func (d *Decoder) named(r *Record) bool {
 		return true
 	}
 	for {
-		if s.peek() != '"' {
-			return s.fail("looking for a channel name")
+		var name []byte // on the fast path, only made when needed
+		var j int
+		at, fast := s.i, false
+		if g := d.guess; g < len(d.names) && d.plain[g] && s.match(d.names[g]) {
+			// Fast path: the channel expected next, verbatim in the input.
+			// str would return the same bytes, and lookup the same index.
+			j, fast = g, true
+			d.guess = g + 1
+			if d.seen[j] == d.gen {
+				d.duplicate(s.b[at+1 : s.i-1])
+			}
+			d.seen[j] = d.gen
+		} else {
+			if s.peek() != '"' {
+				return s.fail("looking for a channel name")
+			}
+			var ok bool
+			if name, ok = s.str(); !ok {
+				return false
+			}
+			j = d.lookup(name, r)
 		}
-		name, ok := s.str()
-		if !ok {
-			return false
+		if s.i < len(s.b) && s.b[s.i] == ':' {
+			s.i++
+		} else {
+			s.ws()
+			if !s.expect(':', "after a channel name") {
+				return false
+			}
 		}
-		j := d.lookup(name, r)
 		s.ws()
-		if !s.expect(':', "after a channel name") {
-			return false
-		}
-		s.ws()
-		if !d.value(j, name, 0, r) {
-			return false
+		if f, ok := s.quick(); ok { // value's fast path, without the call
+			if j >= 0 {
+				r.X[j] = f
+			}
+		} else {
+			if fast {
+				name = s.b[at+1 : at+1+len(d.names[j])]
+			}
+			if !d.value(j, name, 0, r) {
+				return false
+			}
 		}
 		s.ws()
 		if s.peek() == ',' {
@@ -177,6 +205,18 @@ func (d *Decoder) named(r *Record) bool {
 		}
 		return s.expect('}', `after a value in "x"`)
 	}
+}
+
+// isPlain reports whether a channel name appears verbatim, unescaped, in
+// the JSON string that encodes it: valid UTF-8 with no quote, backslash or
+// control byte.
+func isPlain(name string) bool {
+	for i := 0; i < len(name); i++ {
+		if c := name[i]; c < 0x20 || c == '"' || c == '\\' {
+			return false
+		}
+	}
+	return utf8.ValidString(name)
 }
 
 // lookup returns the index of a channel name, learning it if it is new and
@@ -205,6 +245,7 @@ func (d *Decoder) learn(name []byte, r *Record) int {
 		d.names = append(d.names, n)
 		d.index[n] = j
 		d.seen = append(d.seen, d.gen)
+		d.plain = append(d.plain, isPlain(n))
 		d.guess = j + 1
 		r.X = append(r.X, math.NaN())
 		return j
@@ -239,6 +280,12 @@ func (d *Decoder) value(j int, name []byte, pos int, r *Record) bool {
 	case c == 'n':
 		return s.literal("null")
 	case c == '-' || ('0' <= c && c <= '9'):
+		if f, ok := s.quick(); ok {
+			if j >= 0 {
+				r.X[j] = f
+			}
+			return true
+		}
 		f, text, _, ok := s.number()
 		if ok && math.IsInf(f, 0) {
 			d.semantic(ReasonNotFinite, "%s is %s, beyond float64", where(name, pos), quote(text))

@@ -50,6 +50,13 @@ func (s *scanner) fail(what string) bool {
 
 // ws skips JSON whitespace.
 func (s *scanner) ws() {
+	if s.i < len(s.b) && s.b[s.i] > ' ' {
+		return // the common case: no whitespace at all
+	}
+	s.wsSlow()
+}
+
+func (s *scanner) wsSlow() {
 	b, i := s.b, s.i
 	for i < len(b) && (b[i] == ' ' || b[i] == '\t' || b[i] == '\n' || b[i] == '\r') {
 		i++
@@ -72,6 +79,19 @@ func (s *scanner) expect(c byte, what string) bool {
 		return true
 	}
 	return s.fail(what)
+}
+
+// match consumes the string "n" at the cursor if it is there verbatim
+// (the opening quote, the bytes of n, the closing quote) and reports
+// whether it did. n must hold no quote, backslash or control byte.
+func (s *scanner) match(n string) bool {
+	i := s.i + 1
+	e := i + len(n)
+	if e >= len(s.b) || s.b[s.i] != '"' || s.b[e] != '"' || string(s.b[i:e]) != n {
+		return false
+	}
+	s.i = e + 1
+	return true
 }
 
 // literal consumes true, false or null, whose first byte is at the cursor.
@@ -259,13 +279,17 @@ func (s *scanner) number() (f float64, text []byte, integer, ok bool) {
 	case i < len(b) && b[i] == '0':
 		i++
 	case i < len(b) && '1' <= b[i] && b[i] <= '9':
-		for ; i < len(b) && '0' <= b[i] && b[i] <= '9'; i++ {
-			if nd < 19 {
-				mant = mant*10 + uint64(b[i]-'0')
-			} else {
-				exp++
+		j := i
+		for ; i < len(b) && b[i]-'0' < 10; i++ {
+			mant = mant*10 + uint64(b[i]-'0') // may wrap past 19 digits; redone below
+		}
+		nd = i - j
+		if nd > 19 {
+			mant = 0
+			for k := j; k < j+19; k++ {
+				mant = mant*10 + uint64(b[k]-'0')
 			}
-			nd++
+			exp = nd - 19
 		}
 	default:
 		s.i = i
@@ -278,6 +302,15 @@ func (s *scanner) number() (f float64, text []byte, integer, ok bool) {
 		if i == len(b) || b[i] < '0' || b[i] > '9' {
 			s.i = i
 			return 0, nil, false, s.fail("after a decimal point")
+		}
+		if nd > 0 && nd < 19 {
+			// The common case: the digits extend a nonzero mantissa.
+			j := i
+			for ; i < len(b) && b[i]-'0' < 10 && i-j < 19-nd; i++ {
+				mant = mant*10 + uint64(b[i]-'0')
+			}
+			exp -= i - j
+			nd += i - j
 		}
 		for ; i < len(b) && '0' <= b[i] && b[i] <= '9'; i++ {
 			d := b[i] - '0'
@@ -316,6 +349,17 @@ func (s *scanner) number() (f float64, text []byte, integer, ok bool) {
 	}
 	s.i = i
 	text = b[start:i]
+	if nd <= 19 && mant <= 1<<53 && uint(-exp) < uint(len(pow10)) {
+		// Inline fastFloat for 0 ≥ exp ≥ -22, the usual case.
+		f := float64(mant)
+		if exp != 0 {
+			f /= pow10[-exp]
+		}
+		if neg {
+			f = -f
+		}
+		return f, text, integer, true
+	}
 	if nd <= 19 {
 		if f, exact := fastFloat(mant, exp); exact {
 			if neg {
@@ -331,6 +375,51 @@ func (s *scanner) number() (f float64, text []byte, integer, ok bool) {
 		return 0, nil, false, s.fail("in a number")
 	}
 	return f, text, integer, true
+}
+
+// quick consumes the most common numbers, -?(0|[1-9][0-9]*)(\.[0-9]+)?
+// with at most 15 digits in all, and returns their value; for anything else
+// it returns false without moving the cursor, and the caller falls back to
+// number. With at most 15 digits the mantissa is below 2^53 and the scale
+// at most 10^14, both exact, so the one division rounds correctly (the
+// fast path of fastFloat) and the value is finite.
+func (s *scanner) quick() (float64, bool) {
+	b, i := s.b, s.i
+	neg := false
+	if i < len(b) && b[i] == '-' {
+		neg = true
+		i++
+	}
+	start := i
+	var mant uint64
+	for ; i < len(b) && b[i]-'0' < 10; i++ {
+		mant = mant*10 + uint64(b[i]-'0')
+	}
+	n := i - start
+	if n == 0 || n > 15 || (n > 1 && b[start] == '0') {
+		return 0, false
+	}
+	f := float64(mant)
+	if i < len(b) && b[i] == '.' {
+		i++
+		fs := i
+		for ; i < len(b) && b[i]-'0' < 10; i++ {
+			mant = mant*10 + uint64(b[i]-'0')
+		}
+		e := i - fs
+		if e == 0 || n+e > 15 {
+			return 0, false
+		}
+		f = float64(mant) / pow10[e]
+	}
+	if i < len(b) && (b[i] == 'e' || b[i] == 'E') {
+		return 0, false
+	}
+	if neg {
+		f = -f
+	}
+	s.i = i
+	return f, true
 }
 
 // skip consumes one JSON value of any kind (the cursor is on its first
