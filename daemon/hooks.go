@@ -6,7 +6,8 @@ import (
 )
 
 // observer watches one model from inside its goroutine; it is the hook for
-// the drift watch, threshold tuning and scoring (issue 4, files watch*.go).
+// the drift watch, threshold tuning and scoring (files watch*.go,
+// threshold*.go, scoring.go).
 // Every method runs on the model goroutine, so an observer may keep state
 // without locks but must not block: alerts go out through d.pub (publish is
 // buffered by nats.go) and d.store.AddAlert.
