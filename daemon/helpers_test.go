@@ -75,6 +75,14 @@ func startDaemon(t testing.TB, cfg *config.Config, opts ...Option) *testDaemon {
 	if err != nil {
 		t.Fatal(err)
 	}
+	return runDaemon(t, d)
+}
+
+// runDaemon runs a daemon already built with New (so a test can adjust its
+// internals first) and waits until it has started; it is stopped at the
+// end of the test.
+func runDaemon(t testing.TB, d *Daemon) *testDaemon {
+	t.Helper()
 	ctx, cancel := context.WithCancel(context.Background())
 	td := &testDaemon{Daemon: d, cancel: cancel, errc: make(chan error, 1)}
 	go func() { td.errc <- d.Run(ctx) }()
@@ -299,10 +307,17 @@ func sameBits(a, b []online.Model) error {
 // or given port, no logs, no signal handling, JetStream in a temp dir.
 func runServer(t testing.TB, port int) *server.Server {
 	t.Helper()
-	s, err := server.NewServer(&server.Options{
+	return runServerOpts(t, &server.Options{
 		Host: "127.0.0.1", Port: port, NoLog: true, NoSigs: true,
 		JetStream: true, StoreDir: t.TempDir(),
 	})
+}
+
+// runServerOpts starts a NATS server with o and waits until it accepts
+// connections; it is shut down at the end of the test.
+func runServerOpts(t testing.TB, o *server.Options) *server.Server {
+	t.Helper()
+	s, err := server.NewServer(o)
 	if err != nil {
 		t.Fatal(err)
 	}

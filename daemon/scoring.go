@@ -144,11 +144,7 @@ func (s *scorer) handle(m *nats.Msg) {
 		s.known = len(snap.names)
 	}
 	if err := s.dec.Decode(m.Data, &s.rec); err != nil {
-		reason, detail := record.ReasonMalformed, err.Error()
-		var re *record.Error
-		if errors.As(err, &re) {
-			reason, detail = re.Reason, re.Detail
-		}
+		reason, detail := decodeReason(err)
 		s.d.reject(w, m.Subject, reason, detail, m.Data)
 		return
 	}

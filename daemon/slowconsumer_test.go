@@ -2,7 +2,6 @@ package daemon
 
 import (
 	"bufio"
-	"context"
 	"fmt"
 	"log/slog"
 	"net/http"
@@ -14,25 +13,6 @@ import (
 
 	"lariat/config"
 )
-
-// runDaemon runs a daemon already built with New (so a test can adjust its
-// internals first) and waits until it has started; it is stopped at the
-// end of the test. startDaemon is New followed by runDaemon.
-func runDaemon(t testing.TB, d *Daemon) *testDaemon {
-	t.Helper()
-	ctx, cancel := context.WithCancel(context.Background())
-	td := &testDaemon{Daemon: d, cancel: cancel, errc: make(chan error, 1)}
-	go func() { td.errc <- d.Run(ctx) }()
-	select {
-	case <-d.Started():
-	case err := <-td.errc:
-		t.Fatalf("daemon did not start: %v", err)
-	case <-time.After(10 * time.Second):
-		t.Fatal("daemon did not start within 10s")
-	}
-	t.Cleanup(func() { td.stop(t) })
-	return td
-}
 
 // stallIntake makes the model's subscription callback block while the
 // model goroutine is held: the queue between them becomes unbuffered, so

@@ -143,20 +143,11 @@ func runTLSServer(t testing.TB, p *testPKI, verify bool) *server.Server {
 	if err != nil {
 		t.Fatal(err)
 	}
-	s, err := server.NewServer(&server.Options{
+	return runServerOpts(t, &server.Options{
 		Host: "127.0.0.1", Port: -1, NoLog: true, NoSigs: true,
 		JetStream: true, StoreDir: t.TempDir(),
 		TLS: true, TLSVerify: verify, TLSConfig: tc, TLSTimeout: 2,
 	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	go s.Start()
-	if !s.ReadyForConnections(10 * time.Second) {
-		t.Fatal("NATS server did not start")
-	}
-	t.Cleanup(s.Shutdown)
-	return s
 }
 
 // readyz returns the status code and body of /readyz, with a client

@@ -170,11 +170,7 @@ func (w *worker) intake(m *nats.Msg) {
 	}
 	if err := w.dec.Decode(m.Data, &it.rec); err != nil {
 		w.free <- it
-		reason, detail := record.ReasonMalformed, err.Error()
-		var re *record.Error
-		if errors.As(err, &re) {
-			reason, detail = re.Reason, re.Detail
-		}
+		reason, detail := decodeReason(err)
 		w.d.reject(w, m.Subject, reason, detail, m.Data)
 		return
 	}
@@ -485,4 +481,14 @@ func (w *worker) wait(ctx context.Context) error {
 	case <-ctx.Done():
 		return fmt.Errorf("daemon: model %s did not stop: %w", w.name, ctx.Err())
 	}
+}
+
+// decodeReason returns the reject reason and detail of a decoding error:
+// the record package's reason token, or "malformed" for any other error.
+func decodeReason(err error) (reason, detail string) {
+	var re *record.Error
+	if errors.As(err, &re) {
+		return re.Reason, re.Detail
+	}
+	return record.ReasonMalformed, err.Error()
 }

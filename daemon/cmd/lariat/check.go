@@ -1,7 +1,6 @@
 package main
 
 import (
-	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -14,8 +13,19 @@ import (
 // stderr is where main prints a failing command's error.
 var stderr io.Writer = os.Stderr
 
-// errCheckFailed is returned by check after printing the problems.
-var errCheckFailed = errors.New("configuration has errors")
+// loadChecked loads and checks the configuration file; on any problem it
+// prints every one to the command's stderr and returns an exit status 1.
+func loadChecked(cmd *cobra.Command, file string) (*config.Config, error) {
+	cfg, err := config.Load(file)
+	if err == nil {
+		err = cfg.Check()
+	}
+	if err != nil {
+		fmt.Fprintln(cmd.ErrOrStderr(), err)
+		return nil, &exitError{code: 1}
+	}
+	return cfg, nil
+}
 
 func newCheckCmd() *cobra.Command {
 	var file string
@@ -27,13 +37,9 @@ secrets and files it names, and prints every problem, one per line, as
 file:line: field: what is wrong. It exits 1 if there is any.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			cfg, err := config.Load(file)
-			if err == nil {
-				err = cfg.Check()
-			}
+			cfg, err := loadChecked(cmd, file)
 			if err != nil {
-				fmt.Fprintln(cmd.ErrOrStderr(), err)
-				return &exitError{code: 1, err: nil}
+				return err
 			}
 			_, err = fmt.Fprintf(cmd.OutOrStdout(), "%s: ok (%d models)\n", file, len(cfg.Models))
 			return err

@@ -1,11 +1,8 @@
 package main
 
 import (
-	"fmt"
-
 	"github.com/spf13/cobra"
 
-	"lariat/config"
 	"lariat/daemon"
 )
 
@@ -20,13 +17,9 @@ models entry, the HTTP API. It runs until SIGINT or SIGTERM, then stops
 intake, applies every queued record, publishes the final models and exits.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			cfg, err := config.Load(file)
-			if err == nil {
-				err = cfg.Check()
-			}
+			cfg, err := loadChecked(cmd, file)
 			if err != nil {
-				fmt.Fprintln(cmd.ErrOrStderr(), err)
-				return &exitError{code: 1}
+				return err
 			}
 			log, err := lf.logger(cmd.ErrOrStderr(), cfg.Log.Level, cfg.Log.Format)
 			if err != nil {
