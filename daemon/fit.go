@@ -2,20 +2,16 @@ package daemon
 
 // This file is the batch side of the daemon: `lariat fit` reads one CSV file,
 // makes the whole file the window and runs the same learner the daemon runs
-// on a stream (online.Ladder) until its KKT conditions hold. It is longer
-// than the usual 500 lines because the command's options, CSV reading,
-// fitting and printing are kept together in one file that one person owns.
+// on a stream (online.Ladder) until its KKT conditions hold. Reading and
+// checking the CSV file is in fit_csv.go.
 
 import (
 	"bytes"
 	"cmp"
-	"encoding/csv"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"slices"
 	"strconv"
 	"strings"
@@ -184,173 +180,6 @@ func orDefault(s, def string) string {
 		return def
 	}
 	return s
-}
-
-// table is a CSV file parsed for fitting: X is row-major, n × len(names);
-// NaN marks a missing value.
-type table struct {
-	names   []string // feature columns in file order
-	skipped []string // columns with no number in them
-	x, y    []float64
-	lines   []int // file line of each row
-}
-
-func (t *table) rows() int { return len(t.y) }
-
-func (t *table) row(i int) []float64 {
-	d := len(t.names)
-	return t.x[i*d : (i+1)*d]
-}
-
-// readTable reads and checks the whole CSV file.
-func readTable(path, label string, logistic bool) (*table, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, &FitError{Msg: err.Error()}
-	}
-	defer f.Close()
-	header, cells, lines, err := readCells(f, path)
-	if err != nil {
-		return nil, err
-	}
-	li := slices.Index(header, label)
-	if li < 0 {
-		return nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("no label column %q (columns: %s)", label, strings.Join(header, ", "))}
-	}
-	t := &table{lines: lines}
-	var cols []int
-	for j, name := range header {
-		switch {
-		case j == li:
-		case hasNumber(cells, j):
-			cols = append(cols, j)
-			t.names = append(t.names, name)
-		default:
-			t.skipped = append(t.skipped, name)
-		}
-	}
-	if len(cols) == 0 {
-		return nil, &FitError{File: path, Msg: fmt.Sprintf("no numeric feature columns besides the label %q", label)}
-	}
-	t.x = make([]float64, 0, len(cells)*len(cols))
-	t.y = make([]float64, len(cells))
-	for i, rec := range cells {
-		if t.y[i], err = parseLabel(rec[li], logistic); err != nil {
-			return nil, &FitError{File: path, Line: lines[i], Column: label, Msg: err.Error()}
-		}
-		for k, j := range cols {
-			v, err := parseCell(rec[j])
-			if err != nil {
-				return nil, &FitError{File: path, Line: lines[i], Column: t.names[k], Msg: err.Error()}
-			}
-			t.x = append(t.x, v)
-		}
-	}
-	return t, nil
-}
-
-// readCells returns the header, the data rows and each row's line number.
-func readCells(r io.Reader, path string) (header []string, cells [][]string, lines []int, err error) {
-	cr := csv.NewReader(r)
-	header, err = cr.Read()
-	if err == io.EOF {
-		return nil, nil, nil, &FitError{File: path, Msg: "empty file"}
-	}
-	if err != nil {
-		return nil, nil, nil, csvError(path, err)
-	}
-	header[0] = strings.TrimPrefix(header[0], "\ufeff") // byte-order mark of some spreadsheet exports
-	seen := make(map[string]bool, len(header))
-	for i, h := range header {
-		h = strings.TrimSpace(h)
-		switch {
-		case h == "":
-			return nil, nil, nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("column %d has no name", i+1)}
-		case seen[h]:
-			return nil, nil, nil, &FitError{File: path, Line: 1, Column: h, Msg: "appears twice in the header"}
-		}
-		header[i], seen[h] = h, true
-	}
-	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, nil, nil, csvError(path, err)
-		}
-		line, _ := cr.FieldPos(0)
-		cells = append(cells, rec)
-		lines = append(lines, line)
-	}
-	if len(cells) == 0 {
-		return nil, nil, nil, &FitError{File: path, Msg: "no data rows after the header"}
-	}
-	return header, cells, lines, nil
-}
-
-func csvError(path string, err error) error {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		return &FitError{File: path, Line: pe.Line, Msg: pe.Err.Error()}
-	}
-	return &FitError{File: path, Msg: err.Error()}
-}
-
-// isMissing reports whether a cell is an explicit missing value.
-func isMissing(s string) bool {
-	switch strings.ToLower(s) {
-	case "", "na", "nan":
-		return true
-	}
-	return false
-}
-
-func hasNumber(cells [][]string, j int) bool {
-	for _, rec := range cells {
-		if v, err := parseCell(rec[j]); err == nil && !math.IsNaN(v) {
-			return true
-		}
-	}
-	return false
-}
-
-// parseCell returns the cell's number, NaN for a missing value, or an error.
-func parseCell(s string) (float64, error) {
-	s = strings.TrimSpace(s)
-	if isMissing(s) {
-		return math.NaN(), nil
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	switch {
-	case err != nil && !errors.Is(err, strconv.ErrRange):
-		return 0, fmt.Errorf("not a number %q", s)
-	case err != nil || math.IsInf(v, 0):
-		return 0, fmt.Errorf("not finite %q", s)
-	}
-	return v, nil
-}
-
-func parseLabel(s string, logistic bool) (float64, error) {
-	s = strings.TrimSpace(s)
-	if logistic {
-		switch strings.ToLower(s) {
-		case "true":
-			return 1, nil
-		case "false":
-			return 0, nil
-		}
-	}
-	v, err := parseCell(s)
-	switch {
-	case err != nil:
-		return 0, err
-	case math.IsNaN(v):
-		return 0, errors.New("missing label")
-	case logistic && v != 0 && v != 1:
-		return 0, fmt.Errorf("logistic label must be 0 or 1 (or true/false), got %q", s)
-	}
-	return v, nil
 }
 
 // fitDoc is Fit's JSON document. Its field names follow the model document
