@@ -6,7 +6,7 @@ import (
 	"testing"
 	"time"
 
-	"lariat/record"
+	"lariat/daemon/record"
 )
 
 // TestPlantRecords decodes the plant's records with the wire decoder and

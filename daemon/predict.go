@@ -6,7 +6,7 @@ import (
 
 	"lariat/config"
 	"lariat/online"
-	"lariat/record"
+	"lariat/daemon/record"
 	"lariat/sink"
 )
 

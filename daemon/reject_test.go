@@ -9,7 +9,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
-	"lariat/record"
+	"lariat/daemon/record"
 	"lariat/sink"
 )
 

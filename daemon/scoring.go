@@ -12,7 +12,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 
 	"lariat/online"
-	"lariat/record"
+	"lariat/daemon/record"
 	"lariat/sink"
 )
 

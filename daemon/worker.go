@@ -16,7 +16,7 @@ import (
 
 	"lariat/config"
 	"lariat/online"
-	"lariat/record"
+	"lariat/daemon/record"
 	"lariat/sink"
 	"lariat/window"
 )
@@ -244,16 +244,7 @@ func (w *worker) apply(it *item) { w.applyAt(it, time.Now()) }
 // record (lariat_update_duration_seconds, retunes excluded) and returns the
 // time it finished, after the retune if one ran.
 func (w *worker) applyAt(it *item, start time.Time) time.Time {
-	r := online.Record{X: it.rec.X, Y: it.rec.Y, W: it.rec.W}
-	if it.rec.HasT {
-		r.T = it.rec.T
-	}
-	if r.W == 0 {
-		// record.Decoder reads "w": 0 as 0 (an absent "w" is 1), while
-		// online.Record reads W = 0 as weight 1: a zero weight would
-		// silently count in full.
-		return w.rejectApplied(it, record.ReasonWeight, `"w" is 0: weight must be positive`)
-	}
+	r := it.rec.Learn()
 	heldOut := w.split.Holdout(w.seq, it.rec.Key)
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).

@@ -1,15 +1,31 @@
 package record
 
-import "math"
+import (
+	"math"
+
+	"lariat/online"
+)
 
 // Record is one decoded record. Decode reuses the capacity of X and Key.
 type Record struct {
 	X    []float64 // by the decoder's feature order (Names); NaN = missing
 	Y    float64   // label: finite; 0 or 1 for a logistic decoder; NaN when unlabeled
-	W    float64   // weight: finite and ≥ 0; 1 when absent
+	W    float64   // weight: finite and > 0 from Decode, 1 when absent; 0 (the zero value) reads as 1, as in online.Record
 	T    int64     // Unix milliseconds; valid when HasT
 	Key  []byte    // "key", empty when absent
 	HasT bool      // "t" was present
+}
+
+// Learn returns r as the learner's record: the one place where the wire
+// record becomes an online.Record. X is shared, not copied. The weight has
+// one meaning on both sides: positive, with 0 (Go's zero value) read as 1.
+// T is r.T when the record carried a time and 0 (no time) otherwise.
+func (r *Record) Learn() online.Record {
+	o := online.Record{X: r.X, Y: r.Y, W: r.W}
+	if r.HasT {
+		o.T = r.T
+	}
+	return o
 }
 
 // Decoder decodes wire records into caller-owned Records. It learns channel

@@ -44,8 +44,8 @@ func (d *Decoder) field(f fields, r *Record, have *fields) bool {
 		return d.label(r)
 	default: // fieldW
 		w, ok, isNum := d.float("w")
-		if ok && isNum && !(w >= 0) {
-			d.semantic(ReasonWeight, `"w" is %g, want ≥ 0`, w)
+		if ok && isNum && !(w > 0) {
+			d.semantic(ReasonWeight, `"w" is %g, want > 0 (absent means 1)`, w)
 		}
 		r.W = w
 		return ok

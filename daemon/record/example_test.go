@@ -4,7 +4,7 @@ import (
 	"errors"
 	"fmt"
 
-	"lariat/record"
+	"lariat/daemon/record"
 )
 
 func Example() {

@@ -12,7 +12,8 @@ import (
 //
 // JSON has no NaN or infinity, so non-finite values are left out: a
 // non-finite X[j] omits the channel (missing), a non-finite Y omits "y" (an
-// unlabeled record) and a non-finite W omits "w". W = 1, the default, is
+// unlabeled record) and a non-finite W omits "w". W = 1, the default, and
+// W = 0, Go's zero value that Record and online.Record both read as 1, are
 // omitted too, as are an empty Key and T when HasT is false. T is written
 // as an RFC 3339 string in UTC with milliseconds, or as integer Unix
 // milliseconds outside the years 0000-9999. Numbers use the shortest text
@@ -59,7 +60,7 @@ func AppendJSON(dst []byte, names []string, r *Record) []byte {
 		dst = appendFloat(dst, v)
 	}
 	dst = append(dst, '}')
-	if finite(r.W) && r.W != 1 {
+	if finite(r.W) && r.W != 1 && r.W != 0 {
 		dst = append(dst, `,"w":`...)
 		dst = appendFloat(dst, r.W)
 	}

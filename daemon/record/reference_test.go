@@ -234,7 +234,7 @@ func (d *refDecoder) decode(msg []byte) (Record, map[string]bool) {
 			w, ok := refNumber(raw)
 			if !ok {
 				bad[ReasonNotFinite] = true
-			} else if w < 0 {
+			} else if !(w > 0) {
 				bad[ReasonWeight] = true
 			}
 			rec.W = w

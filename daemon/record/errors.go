@@ -16,7 +16,7 @@ const (
 	ReasonTooManyFeatures = "too_many_features" // a new channel name past DecoderOptions.MaxFeatures
 	ReasonMissingFeature  = "missing_feature"   // neither "x" nor "v", or a missing channel under the reject policy
 	ReasonDimension       = "dimension"         // "v" has the wrong length, or there is no fixed feature list
-	ReasonWeight          = "weight"            // "w" is negative (the Decoder); the daemon also rejects "w": 0
+	ReasonWeight          = "weight"            // "w" is 0 or negative (a weight must be positive; absent means 1)
 	ReasonTime            = "time"              // "t" is neither RFC 3339 nor integer Unix milliseconds
 )
 

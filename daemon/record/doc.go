@@ -22,7 +22,8 @@
 //     fraction, Z or ±HH:MM offset) or integer Unix milliseconds.
 //   - "y": required unless DecoderOptions.Unlabeled; a number, or for a
 //     logistic decoder 0, 1, true or false (ReasonLabel otherwise).
-//   - "w": optional weight, a number ≥ 0; 1 when absent.
+//   - "w": optional weight, a number > 0; 1 when absent ("w": 0 is rejected
+//     with ReasonWeight, so a zero never counts as a full weight).
 //   - "key": optional string, copied into Record.Key.
 //
 // Every other top-level key is ignored; its value, whatever it is, is
