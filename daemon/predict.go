@@ -5,8 +5,8 @@ import (
 	"math"
 
 	"lariat/config"
-	"lariat/online"
 	"lariat/daemon/record"
+	"lariat/online"
 	"lariat/sink"
 )
 

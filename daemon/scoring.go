@@ -11,8 +11,8 @@ import (
 	"github.com/nats-io/nats.go"
 	"github.com/prometheus/client_golang/prometheus"
 
-	"lariat/online"
 	"lariat/daemon/record"
+	"lariat/online"
 	"lariat/sink"
 )
 

@@ -15,8 +15,8 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
-	"lariat/online"
 	"lariat/daemon/record"
+	"lariat/online"
 	"lariat/sink"
 	"lariat/window"
 )
