@@ -281,13 +281,15 @@ func TestGracefulShutdown(t *testing.T) {
 	if accepted+rejected != n {
 		t.Errorf("accepted %v + rejected %v != published %d", accepted, rejected, n)
 	}
-	if got := w.ladder.Seen() + w.held; float64(got) != accepted {
-		t.Errorf("ladder seen %d + held out %d = %d, accepted %v", w.ladder.Seen(), w.held, got, accepted)
+	seen := w.pipe.Ladder().Seen()
+	_, held := w.pipe.Counts()
+	if got := seen + held; float64(got) != accepted {
+		t.Errorf("ladder seen %d + held out %d = %d, accepted %v", seen, held, got, accepted)
 	}
 	// The final document went out before the connection closed.
 	var last *sink.ModelDoc
 	timeout := time.After(5 * time.Second)
-	for last == nil || last.Records.Seen != w.ladder.Seen() {
+	for last == nil || last.Records.Seen != seen {
 		select {
 		case last = <-final:
 		case <-timeout:

@@ -269,14 +269,39 @@ func checkSupport(doc *sink.ModelDoc, tr truth) error {
 	return nil
 }
 
+// driftModel is a model with a fixed feature list, no cooldown (every
+// detection is an alert) and a retune every 250 records (the pipeline's
+// drift tests use the same settings).
+func driftModel(name, loss string, features []string, window int) config.Model {
+	m := config.DefaultModel()
+	m.Name, m.Subject, m.Loss = name, "test."+name, loss
+	m.Features = features
+	m.MaxFeatures = len(features)
+	m.Window.Records = window
+	m.Holdout.Records = window / 4
+	m.Retune.Every = 250
+	m.Drift.Cooldown = 0
+	return m
+}
+
+// featureNames returns n feature names x01..xn.
+func featureNames(n int) []string {
+	out := make([]string, n)
+	for i := range out {
+		out[i] = fmt.Sprintf("x%02d", i+1)
+	}
+	return out
+}
+
 // snapshotLadder returns every ladder member's snapshot, read on the model
 // goroutine.
 func snapshotLadder(t testing.TB, w *worker) []online.Model {
 	t.Helper()
 	var ms []online.Model
 	if !w.exec(func() {
-		for i := range w.ladder.Size() {
-			ms = append(ms, w.ladder.Model(i))
+		l := w.pipe.Ladder()
+		for i := range l.Size() {
+			ms = append(ms, l.Model(i))
 		}
 	}) {
 		t.Fatal("model goroutine stopped")

@@ -31,15 +31,15 @@ func TestPlantStreamFinite(t *testing.T) {
 		w.intake(&nats.Msg{Subject: subj, Data: append([]byte(nil), msg...)})
 		w.apply(<-w.queue)
 		if i%50 == 0 {
-			w.ladder.Idle(64)
+			w.pipe.Idle(64)
 		}
-		for _, s := range w.scores {
+		for _, s := range w.pipe.Scores() {
 			if math.IsNaN(s.Loss) {
 				t.Fatalf("record %d: NaN score %+v", i, s)
 			}
 		}
-		for k := range w.ladder.Size() {
-			m := w.ladder.Model(k)
+		for k := range w.pipe.Ladder().Size() {
+			m := w.pipe.Ladder().Model(k)
 			for j, c := range m.Coef {
 				if math.IsNaN(c) || math.IsInf(c, 0) {
 					t.Fatalf("record %d: member %d coef %d = %v", i, k, j, c)

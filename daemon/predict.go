@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"lariat/config"
+	"lariat/daemon/pipeline"
 	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
@@ -32,8 +33,8 @@ func (p predictor) Predict(model string, body []byte) (*sink.Prediction, error) 
 		return nil, fmt.Errorf("%w: %s has no published version yet", sink.ErrNotReady, model)
 	}
 	dec := record.NewDecoder(&record.DecoderOptions{
-		Features:    s.names,
-		MaxFeatures: max(w.dim, len(s.names)),
+		Features:    s.Names,
+		MaxFeatures: max(w.dim, len(s.Names)),
 		Missing:     w.cfg.Missing,
 		Unlabeled:   true,
 		MaxBytes:    int(p.d.cfg.HTTP.MaxBodyBytes),
@@ -42,16 +43,16 @@ func (p predictor) Predict(model string, body []byte) (*sink.Prediction, error) 
 	if err := dec.Decode(body, &r); err != nil {
 		return nil, err
 	}
-	x := r.X[:len(s.names)] // names unknown to the model contribute nothing
+	x := r.X[:len(s.Names)] // names unknown to the model contribute nothing
 	return predict(model, s, x), nil
 }
 
-// predict evaluates a snapshot on x (len(x) == len(s.names)).
-func predict(model string, s *snapshot, x []float64) *sink.Prediction {
-	m := s.model
+// predict evaluates a snapshot on x (len(x) == len(s.Names)).
+func predict(model string, s *pipeline.Snapshot, x []float64) *sink.Prediction {
+	m := s.Model
 	out := &sink.Prediction{
 		Model:         model,
-		Version:       s.doc.Version,
+		Version:       s.Doc.Version,
 		Eta:           m.Eta(x),
 		Contributions: make(map[string]float64),
 	}
@@ -63,12 +64,12 @@ func predict(model string, s *snapshot, x []float64) *sink.Prediction {
 		if math.IsNaN(v) {
 			v = m.Mean[j]
 		}
-		out.Contributions[s.names[j]] = c * v
+		out.Contributions[s.Names[j]] = c * v
 	}
 	if m.Loss == config.LossLogistic {
 		prob := online.Sigmoid(out.Eta)
 		out.Probability = &prob
-		if t := s.doc.Threshold; t != nil {
+		if t := s.Doc.Threshold; t != nil {
 			v := t.Value
 			pos := prob >= v
 			out.Threshold, out.Positive = &v, &pos

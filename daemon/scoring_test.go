@@ -8,6 +8,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon/pipeline"
 	"lariat/online"
 	"lariat/sink"
 )
@@ -15,7 +16,7 @@ import (
 // scoringFixture returns a daemon (not run) with one logistic model that
 // scores, its scorer, and a published snapshot with 7 features of which 6
 // have a nonzero coefficient, means 1 and threshold 0.6.
-func scoringFixture(t *testing.T) (*Daemon, *scorer) {
+func scoringFixture(t *testing.T) (*Daemon, *scoring) {
 	t.Helper()
 	m := driftModel("score", config.LossLogistic, featureNames(7), 1000)
 	m.ScoreSubject = "test.score.unlabeled"
@@ -35,8 +36,8 @@ func scoringFixture(t *testing.T) (*Daemon, *scorer) {
 	}
 	doc := &sink.ModelDoc{Model: "score", Version: 3, Loss: config.LossLogistic,
 		Threshold: &sink.Threshold{Value: 0.6, Mode: "fixed", Target: 0.6}, Records: sink.RecordCounts{Window: 800, Holdout: 200}}
-	w.snap.Store(&snapshot{doc: doc, model: model, names: names})
-	s := scorerOf(w)
+	w.snap.Store(&pipeline.Snapshot{Doc: doc, Model: model, Names: names})
+	s := w.scoring
 	if s == nil {
 		t.Fatal("no scorer")
 	}
@@ -126,8 +127,8 @@ func BenchmarkScoring(b *testing.B) {
 	}
 	w := d.byName["score"]
 	model := &online.Model{Loss: config.LossLogistic, Coef: make([]float64, 7), Mean: make([]float64, 7), Std: make([]float64, 7)}
-	w.snap.Store(&snapshot{doc: &sink.ModelDoc{Threshold: &sink.Threshold{Value: 0.9}}, model: model, names: featureNames(7)})
-	s := scorerOf(w)
+	w.snap.Store(&pipeline.Snapshot{Doc: &sink.ModelDoc{Threshold: &sink.Threshold{Value: 0.9}}, Model: model, Names: featureNames(7)})
+	s := w.scoring
 	msg := &nats.Msg{Data: []byte(`{"x": {"x01": 1, "x02": 2, "x03": 3, "x04": 4, "x05": 5, "x06": 6, "x07": 7}}`)}
 	b.ReportAllocs()
 	for b.Loop() {

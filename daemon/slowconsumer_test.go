@@ -155,7 +155,7 @@ func TestSlowConsumer(t *testing.T) {
 			}
 			// No accepted record is lost: each is in the ladder or the holdout.
 			var seen, held uint64
-			if !w.exec(func() { seen, held = w.ladder.Seen(), w.held }) {
+			if !w.exec(func() { seen = w.pipe.Ladder().Seen(); _, held = w.pipe.Counts() }) {
 				t.Fatal("model goroutine stopped")
 			}
 			if float64(seen+held) != accepted {

@@ -5,10 +5,14 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
+	"log/slog"
 	"os"
 	"path/filepath"
 	"sync"
 	"time"
+
+	"lariat/config"
+	"lariat/daemon/pipeline"
 )
 
 // thresholdFile is the file in data_dir that keeps the threshold changes
@@ -56,29 +60,29 @@ func readThresholdOverrides(dir string) (map[string]thresholdOverride, error) {
 	return f.Models, nil
 }
 
-// thresholdOverrideFor returns the valid saved override of w's model, or
-// nil; a problem with the file or the entry is logged and the configured
-// threshold is used.
-func thresholdOverrideFor(w *worker) *thresholdOverride {
-	if !w.cfg.Logistic() {
+// thresholdOverrideFor returns the valid saved override of model m in
+// dir, or nil; a problem with the file or the entry is logged and the
+// configured threshold is used.
+func thresholdOverrideFor(dir string, m *config.Model, log *slog.Logger) *pipeline.Threshold {
+	if !m.Logistic() {
 		return nil
 	}
-	all, err := readThresholdOverrides(w.d.cfg.DataDir)
+	all, err := readThresholdOverrides(dir)
 	if err != nil {
-		w.log.Error("threshold overrides ignored; using the configured threshold", "err", err)
+		log.Error("threshold overrides ignored; using the configured threshold", "err", err)
 		return nil
 	}
-	ov, ok := all[w.name]
+	ov, ok := all[m.Name]
 	if !ok {
 		return nil
 	}
-	if err := checkThreshold(ov.Mode, ov.Target); err != nil {
-		w.log.Error("saved threshold override ignored; using the configured threshold",
-			"file", filepath.Join(w.d.cfg.DataDir, thresholdFile), "err", err)
+	if err := pipeline.CheckThreshold(ov.Mode, ov.Target); err != nil {
+		log.Error("saved threshold override ignored; using the configured threshold",
+			"file", filepath.Join(dir, thresholdFile), "err", err)
 		return nil
 	}
-	w.log.Info("threshold from the saved override", "mode", ov.Mode, "target", ov.Target, "updated", ov.Updated)
-	return &ov
+	log.Info("threshold from the saved override", "mode", ov.Mode, "target", ov.Target, "updated", ov.Updated)
+	return &pipeline.Threshold{Mode: ov.Mode, Target: ov.Target}
 }
 
 // saveThresholdOverride sets model's entry in dir's threshold file. The

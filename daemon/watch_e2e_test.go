@@ -18,6 +18,8 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon/pipeline"
+	"lariat/online"
 	"lariat/sink"
 )
 
@@ -175,19 +177,13 @@ func TestAlertEndToEnd(t *testing.T) {
 	// goes out within the hour (of record time: the 1500 shifted records
 	// span 25 minutes).
 	w := td.byName[name]
-	var st watchStats
-	w.exec(func() {
-		for _, o := range w.obs {
-			if wt, ok := o.(*watch); ok {
-				st = wt.stats
-			}
-		}
-	})
+	var st pipeline.DriftCounts
+	w.exec(func() { st = w.pipe.DriftCounts() })
 	time.Sleep(200 * time.Millisecond) // let any stray alert arrive
 	got, _ = alerts.of(sink.KindData)
-	t.Logf("data drift detected %d times, %d suppressed by the cooldown, %d published", st.detected[1], st.suppressed[1], len(got))
-	if len(got) != 1 || st.suppressed[1] < 1 {
-		t.Errorf("published %d data alerts with %d suppressed; want 1 published and the repeats suppressed", len(got), st.suppressed[1])
+	t.Logf("data drift detected %d times, %d suppressed by the cooldown, %d published", st.Data.Detected, st.Data.Suppressed, len(got))
+	if len(got) != 1 || st.Data.Suppressed < 1 {
+		t.Errorf("published %d data alerts with %d suppressed; want 1 published and the repeats suppressed", len(got), st.Data.Suppressed)
 	}
 	if c := metricValue(t, td.Daemon, "lariat_alerts_total", map[string]string{"model": name, "kind": "data"}); c != 1 {
 		t.Errorf("lariat_alerts_total{kind=data} = %v, want 1", c)
@@ -280,13 +276,22 @@ func putThreshold(t *testing.T, addr, name, token, body string) int {
 	return resp.StatusCode
 }
 
-// logisticRecords returns n labeled records of logitStream over names.
+// logisticRecords returns n labeled records over names of a sparse
+// logistic stream: x ~ N(0, I_d), y ~ Bernoulli(σ(−1 + 1.5x1 − 1.2x2 +
+// 0.8x3)) (a constructed stream, no published source; the pipeline's
+// threshold tests use the same one).
 func logisticRecords(names []string, n int, seed uint64) [][]byte {
-	s := &logitStream{rng: rand.New(rand.NewPCG(seed, 9))}
+	rng := rand.New(rand.NewPCG(seed, 9))
 	x := make([]float64, len(names))
 	out := make([][]byte, n)
 	for i := range out {
-		y := s.next(x)
+		for j := range x {
+			x[j] = rng.NormFloat64()
+		}
+		y := 0.0
+		if rng.Float64() < online.Sigmoid(-1+1.5*x[0]-1.2*x[1]+0.8*x[2]) {
+			y = 1
+		}
 		out[i] = namedRecord(names, x, y, true, int64(i))
 	}
 	return out

@@ -1,4 +1,4 @@
-package daemon
+package pipeline
 
 import (
 	"fmt"
@@ -58,9 +58,9 @@ func TestWatchRobustScale(t *testing.T) {
 // clock, its independence between kinds, and a cooldown of 0.
 func TestWatchAlertGate(t *testing.T) {
 	now := time.Unix(1000, 0)
-	g := alertGate{cooldown: (10 * time.Minute).Milliseconds(), now: func() time.Time { return now }}
+	g := alertGate{cooldown: (10 * time.Minute).Milliseconds()}
 	var st watchStats
-	w := &worker{}
+	w := &moment{}
 	steps := []struct {
 		after time.Duration
 		kind  sink.AlertKind
@@ -75,6 +75,7 @@ func TestWatchAlertGate(t *testing.T) {
 	}
 	for i, s := range steps {
 		now = now.Add(s.after)
+		w.now = now
 		if got := g.allow(s.kind, w, &st); got != s.want {
 			t.Errorf("step %d (%s after %s): allow %v, want %v", i, s.kind, s.after, got, s.want)
 		}
@@ -82,7 +83,7 @@ func TestWatchAlertGate(t *testing.T) {
 	if st.detected[1] != 4 || st.suppressed[1] != 2 || st.suppressed[2] != 1 {
 		t.Errorf("stats %+v", st)
 	}
-	open := alertGate{now: g.now}
+	open := alertGate{}
 	for range 3 {
 		if !open.allow(sink.KindData, w, nil) {
 			t.Error("cooldown 0 suppressed an alert")
@@ -94,8 +95,8 @@ func TestWatchAlertGate(t *testing.T) {
 // their own time; a switch to records without t (wall clock) ends it.
 func TestWatchAlertGateRecordTime(t *testing.T) {
 	wall := time.Unix(5000, 0)
-	g := alertGate{cooldown: time.Hour.Milliseconds(), now: func() time.Time { return wall }}
-	w := &worker{}
+	g := alertGate{cooldown: time.Hour.Milliseconds()}
+	w := &moment{now: wall}
 	rec := time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC)
 	steps := []struct {
 		rec  time.Duration // record time after the start; −1: no t
@@ -160,15 +161,19 @@ func TestWatchTokenBucket(t *testing.T) {
 	}
 }
 
-// TestWatchKeepNewestHeldOut keeps the newest records in order.
+// TestWatchKeepNewestHeldOut: the drift watch's shrink of the held-out ring
+// keeps the newest records in order.
 func TestWatchKeepNewestHeldOut(t *testing.T) {
-	h := online.NewHoldout(2, 10)
+	m := driftModel("keep", config.LossSquared, featureNames(2), 100)
+	m.Holdout.Records = 10
+	p := newHarness(t, m).p
+	h := p.hold
 	for i := range 25 {
 		if err := h.Add(online.Record{X: []float64{float64(i), -float64(i)}, Y: float64(i)}); err != nil {
 			t.Fatal(err)
 		}
 	}
-	keepNewestHeldOut(h, 4)
+	trainWindow{p}.KeepNewestHeldOut(4)
 	if h.Len() != 4 {
 		t.Fatalf("len %d", h.Len())
 	}
@@ -208,13 +213,13 @@ func TestWatchDataDrift(t *testing.T) {
 	}
 	h.publish()
 	wt := h.watch()
-	if !wt.warm || len(alertsOf(h.d, "data", sink.KindData)) != 0 {
-		t.Fatalf("warm %v, alerts %v", wt.warm, h.d.store.Alerts("data"))
+	if !wt.warm || len(h.alertsOf(sink.KindData)) != 0 {
+		t.Fatalf("warm %v, alerts %v", wt.warm, h.store.Alerts("data"))
 	}
 	for range 700 {
 		h.feed(x, next(4, 1))
 	}
-	as := alertsOf(h.d, "data", sink.KindData)
+	as := h.alertsOf(sink.KindData)
 	if len(as) == 0 {
 		t.Fatal("no data alert after a 4σ mean shift")
 	}
@@ -252,24 +257,24 @@ func TestWatchPerformanceAlert(t *testing.T) {
 			break
 		}
 	}
-	as := alertsOf(h.d, "perf", sink.KindPerformance)
+	as := h.alertsOf(sink.KindPerformance)
 	if len(as) != 1 || wt.stats.adaptations != 1 {
 		t.Fatalf("alerts %v, adaptations %d", as, wt.stats.adaptations)
 	}
 	a := as[0]
 	t.Logf("alert: %+v", a)
-	if a.Model != "perf" || a.Statistic <= 0 || a.Threshold != m.Drift.Delta || a.Seq != h.w.seq || a.Windows.Detector <= 0 {
+	if a.Model != "perf" || a.Statistic <= 0 || a.Threshold != m.Drift.Delta || a.Seq != h.p.seq || a.Windows.Detector <= 0 {
 		t.Errorf("alert fields %+v", a)
 	}
 	if kept := wt.det.width(); kept != 256 {
 		t.Errorf("ADWIN kept %d values after the cut, want 256", kept)
 	}
 	// max(50, round(256·4/5)) = 205.
-	if n := h.w.ladder.Len(); n != 205 {
+	if n := h.p.ladder.Len(); n != 205 {
 		t.Errorf("train window %d after the adaptation, want 205", n)
 	}
 	// max(50, round(256/5)) = 51.
-	if n := h.w.hold.Len(); n != 51 {
+	if n := h.p.hold.Len(); n != 51 {
 		t.Errorf("held-out ring %d after the adaptation, want 51", n)
 	}
 }
@@ -328,7 +333,7 @@ func BenchmarkWatchObserve(b *testing.B) {
 					for j := range xs[i] {
 						xs[i][j] = rng.NormFloat64()
 					}
-					ls[i] = h.w.ladder.Loss().Value(float64(rng.IntN(2)), h.w.ladder.Eta(max(h.w.current(), 0), xs[i]))
+					ls[i] = h.p.ladder.Loss().Value(float64(rng.IntN(2)), h.p.ladder.Eta(max(h.p.current(), 0), xs[i]))
 				}
 				b.ReportAllocs()
 				b.ResetTimer()

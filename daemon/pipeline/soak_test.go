@@ -1,6 +1,6 @@
 //go:build soak
 
-package daemon
+package pipeline
 
 import (
 	"fmt"

@@ -1,11 +1,10 @@
-package daemon
+package pipeline
 
 import (
 	"fmt"
 	"math"
 	"slices"
 	"strings"
-	"time"
 
 	"lariat/sink"
 	"lariat/window"
@@ -28,14 +27,14 @@ func alertKindIndex(k sink.AlertKind) int {
 // held back while less than the cooldown has passed since the last one of
 // that kind that went out. The clock is the triggering record's time when
 // it carries one ("t"), so a replayed or back-filled stream is rate-limited
-// in its own time, and the wall clock otherwise. A switch between the two
-// clocks (a stream that starts or stops carrying "t") ends the cooldown,
-// because the two times cannot be compared; so does a record time that goes
-// backwards by more than the cooldown. A cooldown of 0 lets every alert out.
+// in its own time, and the wall-clock time the caller passed in otherwise.
+// A switch between the two clocks (a stream that starts or stops carrying
+// "t") ends the cooldown, because the two times cannot be compared; so does
+// a record time that goes backwards by more than the cooldown. A cooldown of
+// 0 lets every alert out.
 type alertGate struct {
 	cooldown int64 // milliseconds
 	last     [4]gateStamp
-	now      func() time.Time // wall clock; nil = time.Now (tests set it)
 }
 
 type gateStamp struct {
@@ -44,14 +43,14 @@ type gateStamp struct {
 	set    bool
 }
 
-// allow reports whether an alert of kind may go out now, and if so starts
+// allow reports whether an alert of kind may go out at m, and if so starts
 // its cooldown; it counts the detection in st either way.
-func (g *alertGate) allow(kind sink.AlertKind, w *worker, st *watchStats) bool {
+func (g *alertGate) allow(kind sink.AlertKind, m *moment, st *watchStats) bool {
 	i := alertKindIndex(kind)
 	if st != nil {
 		st.detected[i]++
 	}
-	at, rec := g.stamp(w)
+	at, rec := m.stamp()
 	last := &g.last[i]
 	if g.cooldown > 0 && last.set && last.record == rec {
 		if el := at - last.at; el < g.cooldown && el > -g.cooldown {
@@ -63,47 +62,6 @@ func (g *alertGate) allow(kind sink.AlertKind, w *worker, st *watchStats) bool {
 	}
 	*last = gateStamp{at: at, record: rec, set: true}
 	return true
-}
-
-// stamp returns the gate's clock for the record being applied.
-func (g *alertGate) stamp(w *worker) (at int64, record bool) {
-	if t := recordTimeOf(w); !t.IsZero() {
-		return t.UnixMilli(), true
-	}
-	now := time.Now
-	if g.now != nil {
-		now = g.now
-	}
-	return now().UnixMilli(), false
-}
-
-// recordTimeOf returns the time of the record w is applying (or applied
-// last), or the zero time when it carries none.
-func recordTimeOf(w *worker) time.Time {
-	if w.recT == 0 {
-		return time.Time{}
-	}
-	return time.UnixMilli(w.recT).UTC()
-}
-
-// sendAlert validates a, keeps it in the store (GET /v1/alerts), counts it
-// (lariat_alerts_total{model,kind}) and publishes it on
-// <prefix>.alert.<model>. It is safe from any goroutine; publication goes
-// through nats.go's buffer and does not wait for the server.
-func (d *Daemon) sendAlert(w *worker, a *sink.Alert) {
-	if err := a.Validate(); err != nil {
-		w.log.Error("alert dropped", "kind", a.Kind, "err", err)
-		return
-	}
-	d.store.AddAlert(*a)
-	w.mm.Alert(a.Kind)
-	w.log.Info("alert", "kind", a.Kind, "severity", a.Severity, "statistic", a.Statistic,
-		"threshold", a.Threshold, "features", a.Features, "seq", a.Seq, "message", a.Message)
-	if p := d.pub.Load(); p != nil {
-		if err := p.PublishAlert(a); err != nil {
-			w.log.Warn("alert not published", "kind", a.Kind, "err", err)
-		}
-	}
 }
 
 // featureName returns the name of column j, or "#j" when the model has not

@@ -1,4 +1,4 @@
-package daemon
+package pipeline
 
 import (
 	"math"
@@ -179,11 +179,11 @@ func (s *featureSample) reference() *window.ShiftReference {
 // setReference bins every stored value against ref's edges from now on.
 func (s *featureSample) setReference(ref *window.ShiftReference) {
 	if ref.Features() != s.d {
-		panic("daemon: featureSample: reference width differs from the sample")
+		panic("pipeline: featureSample: reference width differs from the sample")
 	}
 	s.ref, s.bins = ref, ref.Bins()
 	if s.bins > binMissing {
-		panic("daemon: featureSample: too many bins")
+		panic("pipeline: featureSample: too many bins")
 	}
 	s.edges = s.edges[:0]
 	s.searched = s.searched[:0]

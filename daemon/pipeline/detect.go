@@ -1,11 +1,10 @@
-package daemon
+package pipeline
 
 import (
 	"math"
 	"slices"
 
 	"lariat/config"
-	"lariat/online"
 	"lariat/window"
 )
 
@@ -153,28 +152,4 @@ func median(v []float64) float64 {
 		return v[n/2]
 	}
 	return (v[n/2-1] + v[n/2]) / 2
-}
-
-// keepNewestHeldOut keeps only the newest n records of h (for a drift
-// adaptation): it copies them out, resets h and adds them back, oldest
-// first. It allocates and runs only at an adaptation.
-func keepNewestHeldOut(h *online.Holdout, n int) {
-	total := h.Len()
-	if n >= total {
-		return
-	}
-	d := h.Features()
-	xs := make([]float64, n*d)
-	ys := make([]float64, n)
-	ws := make([]float64, n)
-	for i := range n {
-		x, y, w := h.At(total - n + i)
-		copy(xs[i*d:(i+1)*d], x)
-		ys[i], ws[i] = y, w
-	}
-	h.Reset()
-	for i := range n {
-		// The records were validated when first added; Add cannot fail.
-		_ = h.Add(online.Record{X: xs[i*d : (i+1)*d], Y: ys[i], W: ws[i]})
-	}
 }

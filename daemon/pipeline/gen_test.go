@@ -1,4 +1,4 @@
-package daemon
+package pipeline
 
 import (
 	"math"
@@ -6,9 +6,9 @@ import (
 	"testing"
 	"time"
 
-	"github.com/nats-io/nats.go"
-
 	"lariat/config"
+	"lariat/daemon/record"
+	"lariat/sink"
 )
 
 // Stream generators of the drift tests. Each names its source.
@@ -129,68 +129,89 @@ func (s *switchStream) next(x []float64) float64 {
 	return 2*x[s.k] + 0.5*s.rng.NormFloat64()
 }
 
-// harness drives one model's worker without its goroutine or NATS: the
-// records go through worker.apply exactly as the model goroutine applies
-// them (test-then-train loss, holdout split, retunes, observers).
+// harness drives one model's Pipeline as the daemon's worker does, without
+// NATS or goroutines: every record goes through Pipeline.Apply
+// (test-then-train loss, holdout split, retunes, drift watch, threshold
+// tuning), and what it raised is kept in a sink.Store as the daemon keeps
+// it (the store holds the newest 100 alerts per model).
 type harness struct {
 	t     testing.TB
-	d     *Daemon
-	w     *worker
+	p     *Pipeline
+	store *sink.Store
 	names []string
-	msg   *nats.Msg
+	rec   record.Record
 	now   time.Time
 }
 
-// newHarness builds a daemon (not run) for m alone and returns the
-// harness of its model. m.Features must be set.
+// newHarness builds the pipeline of m (validated with the daemon's
+// defaults). m.Features must be set.
 func newHarness(t testing.TB, m config.Model) *harness {
 	t.Helper()
-	cfg := testConfig(t, m)
-	d, err := New(cfg)
+	cfg := config.Default()
+	cfg.DataDir = t.TempDir()
+	cfg.Models = []config.Model{m}
+	if err := cfg.Validate(); err != nil {
+		t.Fatalf("test config: %v", err)
+	}
+	p, err := New(Options{Model: &cfg.Models[0]})
 	if err != nil {
 		t.Fatal(err)
 	}
-	w := d.byName[m.Name]
-	return &harness{t: t, d: d, w: w, names: m.Features, msg: &nats.Msg{Subject: m.Subject}, now: time.Unix(1e9, 0)}
+	st := sink.NewStore()
+	st.Register(m.Name)
+	return &harness{t: t, p: p, store: st, names: m.Features, now: time.Unix(1e9, 0)}
 }
 
-// feed applies one record with features x (len ≤ dim) and label y.
+// feed applies one record with features x (len ≤ width) and label y; a
+// rejected record fails the test.
 func (h *harness) feed(x []float64, y float64) {
-	it := <-h.w.free
-	it.rec.X = append(it.rec.X[:0], x...)
-	for len(it.rec.X) < h.w.dim {
-		it.rec.X = append(it.rec.X, math.NaN())
+	h.rec.X = append(h.rec.X[:0], x...)
+	for len(h.rec.X) < h.p.Width() {
+		h.rec.X = append(h.rec.X, math.NaN())
 	}
-	it.rec.Y, it.rec.W, it.rec.HasT, it.rec.T = y, 1, false, 0
-	it.names = h.names
-	it.msg = h.msg
-	h.w.apply(it)
+	h.rec.Y, h.rec.W, h.rec.HasT, h.rec.T = y, 1, false, 0
+	st, err := h.p.Apply(&h.rec, h.names, h.now)
+	if err != nil {
+		h.t.Fatalf("record rejected: %v", err)
+	}
+	for _, a := range st.Alerts {
+		h.store.AddAlert(a)
+	}
+	if st.ROC != nil {
+		h.store.SetROC(h.p.Name(), st.ROC)
+	}
 }
 
-// publish publishes the current model (so alerts can name features).
-func (h *harness) publish() {
+// publish publishes the current model, forced, a second after the last.
+func (h *harness) publish() *Snapshot {
 	h.now = h.now.Add(time.Second)
-	h.w.publish(h.now, h.names, true)
+	s, err := h.p.Publish(h.now, 0, true)
+	if err != nil {
+		h.t.Fatal(err)
+	}
+	return s
+}
+
+// alertsOf returns the stored alerts of kind.
+func (h *harness) alertsOf(kind sink.AlertKind) []sink.Alert {
+	var out []sink.Alert
+	for _, a := range h.store.Alerts(h.p.Name()) {
+		if a.Kind == kind {
+			out = append(out, a)
+		}
+	}
+	return out
 }
 
 // watch returns the model's drift watch.
-func (h *harness) watch() *watch {
-	for _, o := range h.w.obs {
-		if wt, ok := o.(*watch); ok {
-			return wt
-		}
-	}
-	h.t.Fatal("no watch")
-	return nil
-}
+func (h *harness) watch() *watch { return h.p.watch }
 
 // tuner returns the model's threshold tuner.
 func (h *harness) tuner() *tuner {
-	t := tunerOf(h.w)
-	if t == nil {
+	if h.p.tuner == nil {
 		h.t.Fatal("no tuner")
 	}
-	return t
+	return h.p.tuner
 }
 
 // driftModel is the model configuration of the drift tests: fixed feature

@@ -1,10 +1,9 @@
-package daemon
+package pipeline
 
 import (
 	"math"
 
 	"lariat/config"
-	"lariat/online"
 	"lariat/sink"
 	"lariat/window"
 )
@@ -116,10 +115,13 @@ const (
 // drift.mean_shift; model, the move of λ* in ladder steps and 1.5, or the
 // number of support changes and 0.
 type watch struct {
-	w        *worker
-	cfg      config.Drift
-	logistic bool
-	fillAt   int // train records that make the window "filled"
+	model       string
+	win         watchedWindow
+	at          *moment // the record being applied (owned by the Pipeline)
+	retuneEvery int
+	cfg         config.Drift
+	logistic    bool
+	fillAt      int // train records that make the window "filled"
 
 	det  *lossDetector // nil when drift.performance is off
 	warm bool
@@ -142,6 +144,29 @@ type watch struct {
 
 	gate  alertGate
 	stats watchStats
+
+	// alerts raised by the current call, drained by the Pipeline.
+	alerts []sink.Alert
+	// adapted is set when the current call shrank the window.
+	adapted bool
+}
+
+// watchedWindow is what the drift watch needs from the model it watches:
+// the sizes of the train window and the held-out ring, and the operations
+// that keep only their newest records. The Pipeline implements it over its
+// ladder and held-out ring.
+type watchedWindow interface {
+	// TrainLen is the number of records in the train window.
+	TrainLen() int
+	// HeldOutLen is the number of records in the held-out ring (0 without one).
+	HeldOutLen() int
+	// HoldoutPeriod is k of "every k-th record is held out", or 0 without a
+	// held-out ring.
+	HoldoutPeriod() int
+	// KeepNewestTrain keeps only the newest n records of the train window.
+	KeepNewestTrain(n int)
+	// KeepNewestHeldOut keeps only the newest n records of the held-out ring.
+	KeepNewestHeldOut(n int)
 }
 
 // watchStats counts what the watch detected, whether or not the cooldown
@@ -154,23 +179,25 @@ type watchStats struct {
 	minor       int // ADWIN cuts on an increase below minRise
 }
 
-var _ observer = (*watch)(nil)
-
-// newWatch returns the drift watch of w.
-func newWatch(w *worker) *watch {
-	dc := w.cfg.Drift
-	n := min(shiftSampleMax, max(shiftSampleMin, w.cfg.Window.Records/4))
+// newWatch returns the drift watch of model m (dim columns wide) over win;
+// at is the Pipeline's view of the record being applied.
+func newWatch(m *config.Model, dim int, win watchedWindow, at *moment) *watch {
+	dc := m.Drift
+	n := min(shiftSampleMax, max(shiftSampleMin, m.Window.Records/4))
 	wt := &watch{
-		w:        w,
-		cfg:      dc,
-		logistic: w.cfg.Logistic(),
-		fillAt:   w.cfg.Window.Records,
-		sample:   newFeatureSample(w.dim, n),
-		support:  make([]bool, w.dim),
-		streak:   make([]int, w.dim),
-		gate:     alertGate{cooldown: dc.Cooldown.Std().Milliseconds()},
+		model:       m.Name,
+		win:         win,
+		at:          at,
+		retuneEvery: m.Retune.Every,
+		cfg:         dc,
+		logistic:    m.Logistic(),
+		fillAt:      m.Window.Records,
+		sample:      newFeatureSample(dim, n),
+		support:     make([]bool, dim),
+		streak:      make([]int, dim),
+		gate:        alertGate{cooldown: dc.Cooldown.Std().Milliseconds()},
 	}
-	if w.cfg.Window.Span > 0 || w.cfg.Learner.Kind == config.LearnerDecay {
+	if m.Window.Span > 0 || m.Learner.Kind == config.LearnerDecay {
 		wt.fillAt = n
 	}
 	wt.det = newLossDetector(dc)
@@ -186,12 +213,12 @@ func (wt *watch) observe(x []float64, y, loss float64, heldOut bool) {
 		wt.sinceData++
 	}
 	if !wt.warm {
-		if heldOut || wt.w.ladder.Len() < wt.fillAt || !wt.sample.full() {
+		if heldOut || wt.win.TrainLen() < wt.fillAt || !wt.sample.full() {
 			return
 		}
 		wt.warmUp()
 	}
-	if !heldOut && wt.sinceData >= wt.w.retuneEvery {
+	if !heldOut && wt.sinceData >= wt.retuneEvery {
 		wt.sinceData = 0
 		wt.checkData()
 	}
@@ -210,16 +237,16 @@ func (wt *watch) observe(x []float64, y, loss float64, heldOut bool) {
 	}
 }
 
-// retuned checks the support and λ* of the chosen member.
-func (wt *watch) retuned(_ []online.Score, chosen int, _ bool) {
-	if !wt.warm || chosen < 0 {
+// retuned checks the support and λ* of the chosen member: standardized
+// are its standardized coefficients (read during the call only), lambda
+// its λ and step the ladder's step |ln ε|/(K−1) in ln λ (0 for a
+// single-member ladder).
+func (wt *watch) retuned(standardized []float64, lambda, step float64) {
+	if !wt.warm {
 		return
 	}
-	wt.checkModel(chosen)
+	wt.checkModel(standardized, lambda, step)
 }
-
-// annotate leaves the document as it is.
-func (wt *watch) annotate(*sink.ModelDoc) {}
 
 // warmUp takes the first reference and starts watching.
 func (wt *watch) warmUp() {
@@ -257,7 +284,7 @@ func (wt *watch) performanceDrift(c lossChange) {
 	if c.after >= 2*c.before && wt.det.adwin != nil {
 		sev = sink.SeverityCritical
 	}
-	if wt.gate.allow(sink.KindPerformance, wt.w, &wt.stats) {
+	if wt.gate.allow(sink.KindPerformance, wt.at, &wt.stats) {
 		wt.emit(sink.KindPerformance, sev, c.stat, c.threshold, c.width, nil, perfMessage(wt.det, c))
 	}
 	if wt.cfg.Adapt {
@@ -268,25 +295,23 @@ func (wt *watch) performanceDrift(c lossChange) {
 // adapt shrinks the train window and the held-out ring to the records
 // judged post-change (see watch).
 func (wt *watch) adapt(kept int) {
-	w := wt.w
-	k := w.split.Period()
+	k := wt.win.HoldoutPeriod()
 	train, held := kept, 0
-	if k >= 2 && w.hold != nil {
+	if k >= 2 {
 		train = int(math.Round(float64(kept) * float64(k-1) / float64(k)))
 		held = max(adaptFloor, int(math.Round(float64(kept)/float64(k))))
 	}
 	train = max(adaptFloor, train)
-	if train < w.ladder.Len() {
-		w.ladder.Shrink(train)
+	if train < wt.win.TrainLen() {
+		wt.win.KeepNewestTrain(train)
 	}
-	if held > 0 && held < w.hold.Len() {
-		keepNewestHeldOut(w.hold, held)
+	if held > 0 && held < wt.win.HeldOutLen() {
+		wt.win.KeepNewestHeldOut(held)
 	}
 	wt.stats.adaptations++
+	wt.adapted = true
 	wt.retake = true
 	wt.sinceRef = 0
-	w.log.Info("drift adaptation: window shrunk to post-change records",
-		"train", w.ladder.Len(), "holdout", w.holdLen())
 }
 
 // checkData compares the newest sample with the reference (see watch) and
@@ -321,7 +346,7 @@ func (wt *watch) dataAlert() {
 	if worstPSI <= wt.cfg.PSI {
 		stat, thr = worstShift, wt.cfg.MeanShift
 	}
-	if !wt.gate.allow(sink.KindData, wt.w, &wt.stats) {
+	if !wt.gate.allow(sink.KindData, wt.at, &wt.stats) {
 		return
 	}
 	names, msg := dataMessage(wt.shifts, wt.shifted, wt.names())
@@ -335,19 +360,16 @@ func (wt *watch) shifted(s window.FeatureShift) bool {
 
 // checkModel updates the stable support and raises a model alert when it
 // changed or λ* moved by more than one ladder step.
-func (wt *watch) checkModel(chosen int) {
-	l := wt.w.ladder
-	m := l.Model(chosen)
-	lambda := l.Lambda(chosen)
+func (wt *watch) checkModel(standardized []float64, lambda, step float64) {
 	if !wt.seenRaw {
-		for j, v := range m.Standardized {
+		for j, v := range standardized {
 			wt.support[j] = v != 0
 		}
 		wt.seenRaw, wt.baseLambda = true, lambda
 		return
 	}
 	var entered, left []int
-	for j, v := range m.Standardized {
+	for j, v := range standardized {
 		if (v != 0) == wt.support[j] {
 			wt.streak[j] = 0
 			continue
@@ -363,7 +385,7 @@ func (wt *watch) checkModel(chosen int) {
 			left = append(left, j)
 		}
 	}
-	steps := ladderSteps(l, wt.baseLambda, lambda)
+	steps := ladderSteps(step, wt.baseLambda, lambda)
 	moved := steps >= lambdaMoveSteps
 	if len(entered) == 0 && len(left) == 0 && !moved {
 		return
@@ -376,54 +398,38 @@ func (wt *watch) checkModel(chosen int) {
 	if moved {
 		stat, thr = steps, lambdaMoveSteps
 	}
-	if !wt.gate.allow(sink.KindModel, wt.w, &wt.stats) {
+	if !wt.gate.allow(sink.KindModel, wt.at, &wt.stats) {
 		return
 	}
 	names, msg := modelMessage(wt.names(), entered, left, moved, from, lambda, steps)
-	wt.emit(sink.KindModel, sink.SeverityInfo, stat, thr, l.Len(), names, msg)
+	wt.emit(sink.KindModel, sink.SeverityInfo, stat, thr, wt.win.TrainLen(), names, msg)
 }
 
-// ladderSteps returns |ln(to/from)| in ladder steps |ln ε|/(K−1); 0 for a
-// single-member ladder or a non-positive λ.
-func ladderSteps(l *online.Ladder, from, to float64) float64 {
-	k := l.Size()
-	if k < 2 || !(from > 0) || !(to > 0) || l.Lambda(k-1) <= 0 {
-		return 0
-	}
-	step := math.Log(l.Lambda(0)/l.Lambda(k-1)) / float64(k-1)
-	if !(step > 0) {
+// ladderSteps returns |ln(to/from)| in ladder steps of step (in ln λ); 0
+// for a zero step or a non-positive λ.
+func ladderSteps(step, from, to float64) float64 {
+	if !(step > 0) || !(from > 0) || !(to > 0) {
 		return 0
 	}
 	return math.Abs(math.Log(to/from)) / step
 }
 
-// emit sends an alert that passed the gate.
+// emit queues an alert that passed the gate for the Pipeline.
 func (wt *watch) emit(kind sink.AlertKind, sev sink.Severity, stat, thr float64, detector int, features []string, msg string) {
-	w := wt.w
-	a := &sink.Alert{
-		Model:     w.name,
+	wt.alerts = append(wt.alerts, sink.Alert{
+		Model:     wt.model,
 		Kind:      kind,
 		Severity:  sev,
 		Statistic: stat,
 		Threshold: thr,
-		Windows:   sink.AlertWindows{Train: w.ladder.Len(), Holdout: w.holdLen(), Detector: detector},
+		Windows:   sink.AlertWindows{Train: wt.win.TrainLen(), Holdout: wt.win.HeldOutLen(), Detector: detector},
 		Features:  features,
-		Time:      recordTimeOf(w),
-		Seq:       w.seq,
+		Time:      wt.at.recordTime(),
+		Seq:       wt.at.seq,
 		Message:   msg,
-	}
-	w.d.sendAlert(w, a)
+	})
 }
 
 // names returns the model's feature names as of the record being applied
-// (the published snapshot's as a fallback; alerts name a column without a
-// name "#j").
-func (wt *watch) names() []string {
-	if n := wt.w.recNames; n != nil {
-		return n
-	}
-	if s := wt.w.snap.Load(); s != nil {
-		return s.names
-	}
-	return nil
-}
+// (alerts name a column without a name "#j").
+func (wt *watch) names() []string { return wt.at.names }

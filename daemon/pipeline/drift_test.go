@@ -1,4 +1,4 @@
-package daemon
+package pipeline
 
 import (
 	"fmt"
@@ -10,17 +10,6 @@ import (
 	"lariat/config"
 	"lariat/sink"
 )
-
-// alertsOf returns the stored alerts of kind for model.
-func alertsOf(d *Daemon, model string, kind sink.AlertKind) []sink.Alert {
-	var out []sink.Alert
-	for _, a := range d.store.Alerts(model) {
-		if a.Kind == kind {
-			out = append(out, a)
-		}
-	}
-	return out
-}
 
 // seaRun feeds a SEA stream (Street & Kim 2001) through a logistic model's
 // real watch: warm records on the first concept θ = 8, then each later
@@ -37,7 +26,7 @@ func seaRun(t testing.TB, perf string, seed uint64, noise float64, warm, per int
 	for range warm {
 		h.feed(x, s.next(x))
 	}
-	early = len(alertsOf(h.d, "sea", sink.KindPerformance))
+	early = len(h.alertsOf(sink.KindPerformance))
 	for c := 1; c < len(seaThetas); c++ {
 		s.theta = seaThetas[c]
 		// Alerts are counted on the watch (the store keeps only the last 100).
@@ -209,10 +198,10 @@ func TestDriftSupportAdapts(t *testing.T) {
 		s.k = 2
 		for i := 1; i <= after; i++ {
 			h.feed(x, s.next(x))
-			if i%h.w.retuneEvery != 0 {
+			if i%h.p.cfg.Retune.Every != 0 {
 				continue
 			}
-			m := h.w.ladder.Model(h.w.current())
+			m := h.p.ladder.Model(h.p.current())
 			if m.Coef[2] != 0 && m.Coef[0] == 0 {
 				return i, h.watch()
 			}
@@ -256,8 +245,8 @@ func TestDriftHyperplane(t *testing.T) {
 		var cnt int
 		for i := range n {
 			y := g.next(x)
-			if c := h.w.current(); c >= 0 && i >= 10000 {
-				p := 1 / (1 + math.Exp(-h.w.ladder.Eta(c, x)))
+			if c := h.p.current(); c >= 0 && i >= 10000 {
+				p := 1 / (1 + math.Exp(-h.p.ladder.Eta(c, x)))
 				sum += (p - y) * (p - y)
 				cnt++
 			}

@@ -1,0 +1,524 @@
+package pipeline
+
+import (
+	"errors"
+	"fmt"
+	"hash/fnv"
+	"math"
+	"slices"
+	"time"
+
+	"lariat/config"
+	"lariat/daemon/record"
+	"lariat/online"
+	"lariat/sink"
+	"lariat/window"
+)
+
+// DefaultMinPublish is Options.MinPublish when it is 0.
+const DefaultMinPublish = time.Second
+
+// Options configures a Pipeline; only Model is required.
+type Options struct {
+	// Model is the model's configuration, validated (config.Load or
+	// config.DefaultModel with its fields set). It must not change
+	// afterwards.
+	Model *config.Model
+	// MinPublish is the least time between two versions that Publish does
+	// not force (the heartbeat and a forced publication always go out);
+	// default DefaultMinPublish.
+	MinPublish time.Duration
+	// Threshold replaces the configured threshold mode and target of a
+	// logistic model (a change saved at runtime); nil keeps the
+	// configuration's.
+	Threshold *Threshold
+}
+
+// Pipeline is everything one model knows: the ladder, the held-out ring and
+// its splitter, the λ chooser, the drift watch, the threshold tuner, the
+// version and the last published document. It has no goroutines, no I/O and
+// no clock of its own: time comes from the record or is passed in. It is
+// not safe for concurrent use; one goroutine owns it.
+type Pipeline struct {
+	cfg        *config.Model
+	name       string
+	dim        int
+	minPublish time.Duration
+
+	ladder  *online.Ladder
+	hold    *online.Holdout // nil when the holdout is off
+	chooser online.Chooser
+	split   window.Splitter
+
+	seq         uint64 // records applied (train + held out)
+	held        uint64 // records applied to the holdout
+	sinceRetune int
+	scores      []online.Score
+
+	at    moment
+	watch *watch
+	tuner *tuner // nil for a squared-loss model
+
+	version uint64
+	last    *sink.ModelDoc
+	lastPub time.Time
+
+	step Step
+}
+
+// moment is what the policies know of the record being applied: its time,
+// the wall-clock time passed in, its sequence number and the feature names.
+type moment struct {
+	recT  int64 // Unix ms of the record; 0 without "t"
+	now   time.Time
+	seq   uint64
+	names []string
+}
+
+// stamp returns the alert clock: the record's time when it has one, else
+// the wall-clock time passed in.
+func (m *moment) stamp() (at int64, record bool) {
+	if m.recT != 0 {
+		return m.recT, true
+	}
+	return m.now.UnixMilli(), false
+}
+
+// recordTime returns the record's time, or the zero time without one.
+func (m *moment) recordTime() time.Time {
+	if m.recT == 0 {
+		return time.Time{}
+	}
+	return time.UnixMilli(m.recT).UTC()
+}
+
+// Step is what applying one record did. Its slices are reused by the next
+// call to Apply.
+type Step struct {
+	// HeldOut is set when the record went to the held-out ring.
+	HeldOut bool
+	// Retuned is set when the ladder was rescored on the held-out ring.
+	Retuned bool
+	// Moved is set when the retune moved λ*.
+	Moved bool
+	// ROC is the chosen member's new ROC table on the held-out ring
+	// (logistic models, after a retune); nil otherwise.
+	ROC []online.ROCPoint
+	// Adapted is set when a confirmed performance drift shrank the train
+	// window and the held-out ring to their post-change records.
+	Adapted bool
+	// Alerts are the drift alerts the record raised (already past their
+	// cooldown).
+	Alerts []sink.Alert
+}
+
+// Width returns the number of columns of model m's ladder and records: its
+// feature cap, or its fixed feature list if that is longer.
+func Width(m *config.Model) int { return max(m.MaxFeatures, len(m.Features)) }
+
+// New returns the pipeline of o.Model, empty.
+func New(o Options) (*Pipeline, error) {
+	m := o.Model
+	if m == nil {
+		return nil, errors.New("pipeline: no model")
+	}
+	loss, ok := online.LossByName(m.Loss)
+	if !ok {
+		return nil, fmt.Errorf("pipeline: model %s: unknown loss %q", m.Name, m.Loss)
+	}
+	rule, err := online.ParseRule(m.Retune.Rule)
+	if err != nil {
+		return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
+	}
+	if o.Threshold != nil {
+		if err := CheckThreshold(o.Threshold.Mode, o.Threshold.Target); err != nil {
+			return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
+		}
+	}
+	dim := Width(m)
+	h := fnv.New64a()
+	h.Write([]byte(m.Name))
+	lad, err := online.NewLadder(&online.Options{
+		Loss:     loss,
+		Penalty:  &online.Penalty{Mix: m.PenaltyMix()},
+		Features: dim,
+		Window:   m.Window.Records,
+		Span:     m.Window.Span.Std(),
+		Size:     m.Ladder.Size,
+		Floor:    m.Ladder.Floor,
+		Lambda:   m.Lambda,
+		Steps:    m.Learner.Steps,
+		Seed:     h.Sum64(),
+		Learner:  m.Learner.Kind,
+		HalfLife: m.Learner.HalfLife,
+	})
+	if err != nil {
+		return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
+	}
+	p := &Pipeline{
+		cfg:        m,
+		name:       m.Name,
+		dim:        dim,
+		minPublish: o.MinPublish,
+		ladder:     lad,
+		chooser:    online.Chooser{Rule: rule},
+		split:      window.Splitter{Every: m.Holdout.Every, ByKey: m.Holdout.ByKey},
+	}
+	if p.minPublish <= 0 {
+		p.minPublish = DefaultMinPublish
+	}
+	if m.HoldoutOff() {
+		p.split.Every = -1 // window.Splitter: < 2 (and not 0) disables the split
+	} else {
+		p.hold = online.NewHoldout(dim, m.Holdout.Records)
+	}
+	p.watch = newWatch(m, dim, trainWindow{p}, &p.at)
+	p.tuner = newTuner(m, o.Threshold)
+	return p, nil
+}
+
+// Name returns the model's name.
+func (p *Pipeline) Name() string { return p.name }
+
+// Width returns the number of columns of the pipeline's records.
+func (p *Pipeline) Width() int { return p.dim }
+
+// Apply applies one decoded record: the held-out ring takes every k-th
+// record and the ladder the others, after the current model's
+// test-then-train loss on it has fed the drift watch; every retune.every
+// records the ladder is rescored, λ* chosen and the threshold tuned. names
+// is the decoder's feature order when rec was decoded (len(rec.X) must be
+// Width(); trailing columns not yet named are NaN), and now the wall-clock
+// time that stands in for the record's own time when it has none (alert
+// cooldowns). A record the learner refuses leaves the model untouched and
+// gives an error whose *record.Error carries the reject reason.
+func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
+	st := &p.step
+	*st = Step{Alerts: st.Alerts[:0]}
+	p.at.names = names
+	r := rec.Learn()
+	heldOut := p.split.Holdout(p.seq, rec.Key)
+	// Test-then-train: the current model's loss on the record before it
+	// learns from it (an honest out-of-sample loss for the drift watch).
+	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(max(p.current(), 0), r.X))
+	var err error
+	if heldOut {
+		err = p.hold.Add(r)
+	} else {
+		err = p.ladder.Add(r)
+	}
+	if err != nil {
+		return st, &record.Error{Reason: learnerReason(err), Detail: err.Error()}
+	}
+	p.seq++
+	if heldOut {
+		p.held++
+	}
+	st.HeldOut = heldOut
+	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
+	p.watch.observe(r.X, r.Y, loss, heldOut)
+	p.collect()
+	if p.sinceRetune++; p.sinceRetune >= p.cfg.Retune.Every {
+		p.retune()
+	}
+	return st, nil
+}
+
+// collect moves what the watch raised during a call into the step.
+func (p *Pipeline) collect() {
+	st := &p.step
+	st.Alerts = append(st.Alerts, p.watch.alerts...)
+	p.watch.alerts = p.watch.alerts[:0]
+	if p.watch.adapted {
+		st.Adapted, p.watch.adapted = true, false
+	}
+}
+
+// learnerReason maps the ladder's validation errors onto reject reasons.
+func learnerReason(err error) string {
+	switch {
+	case errors.Is(err, online.ErrDimension):
+		return record.ReasonDimension
+	case errors.Is(err, online.ErrNotFinite):
+		return record.ReasonNotFinite
+	case errors.Is(err, online.ErrLabel):
+		return record.ReasonLabel
+	case errors.Is(err, online.ErrWeight):
+		return record.ReasonWeight
+	}
+	return "invalid"
+}
+
+// retune scores the ladder on the held-out ring and lets the chooser move
+// λ* (with hysteresis), then lets the drift watch check the chosen model
+// and the tuner re-tune the threshold. A fixed-λ model or an empty holdout
+// skips it.
+func (p *Pipeline) retune() {
+	p.sinceRetune = 0
+	if p.hold == nil || p.hold.Len() == 0 || p.ladder.Len() == 0 {
+		return
+	}
+	p.scores = p.ladder.Score(p.hold, p.scores[:0])
+	idx, changed := p.chooser.Update(p.scores)
+	p.step.Retuned, p.step.Moved = true, changed
+	if idx >= 0 && p.watch.warm {
+		m := p.ladder.Model(idx)
+		p.watch.retuned(m.Standardized, p.ladder.Lambda(idx), p.gridStep())
+		p.collect()
+	}
+	if p.tuner != nil {
+		p.tuner.tune(p, idx)
+		p.step.ROC = p.tuner.roc
+	}
+}
+
+// gridStep returns the ladder's step in ln λ, ln(λ_0/λ_{K−1})/(K−1), or 0
+// for a single-member ladder.
+func (p *Pipeline) gridStep() float64 {
+	l := p.ladder
+	k := l.Size()
+	if k < 2 || !(l.Lambda(k-1) > 0) {
+		return 0
+	}
+	return math.Log(l.Lambda(0)/l.Lambda(k-1)) / float64(k-1)
+}
+
+// Idle runs steps stochastic steps per ladder member on the current window
+// (spare time converges a quiet stream); it does nothing on an empty window.
+func (p *Pipeline) Idle(steps int) {
+	if steps > 0 && p.ladder.Len() > 0 {
+		p.ladder.Idle(steps)
+	}
+}
+
+// current returns the ladder index of the current model: the chooser's
+// choice, 0 for a single-member (fixed λ) ladder, or −1 before the first
+// retune has chosen (nothing is published until then).
+func (p *Pipeline) current() int {
+	if c := p.chooser.Current(); c >= 0 {
+		return c
+	}
+	if p.ladder.Size() == 1 {
+		return 0
+	}
+	return -1
+}
+
+// Current returns the ladder index of the current model, or −1 before the
+// first retune of a ladder has chosen λ*.
+func (p *Pipeline) Current() int { return p.current() }
+
+// Snapshot is one immutable model version: its document and the model it
+// describes, trimmed to the named features. Readers on other goroutines
+// may share it.
+type Snapshot struct {
+	// Doc is the model document (HTTP, bus, key-value bucket).
+	Doc *sink.ModelDoc
+	// Model is the chosen ladder member, trimmed to len(Names) features.
+	Model *online.Model
+	// Names are the feature names in model order.
+	Names []string
+}
+
+// Publish decides whether a new version is due at now and returns it, or
+// nil: a version goes out when the model changed beyond publish.tolerance
+// (sink.Changed) and at least MinPublish has passed since the last, when the
+// heartbeat is due, or when force is set (final publication). Nothing is
+// published before λ* has been chosen (a fixed-λ model publishes from its
+// first record) or before a feature has a name. rejected is the model's
+// count of rejected records for the document. An error means the current
+// model could not be written as a document (for example a non-finite
+// value); nothing is published then.
+func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapshot, error) {
+	if !force && now.Sub(p.lastPub) < p.minPublish {
+		return nil, nil // a busy stream moves coefficients all the time
+	}
+	s, err := p.build(now, p.version+1, rejected)
+	if s == nil || err != nil {
+		return nil, err
+	}
+	heartbeat := p.cfg.Publish.Heartbeat.Std()
+	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) &&
+		(heartbeat <= 0 || now.Sub(p.lastPub) < heartbeat) {
+		return nil, nil
+	}
+	p.version = s.Doc.Version
+	p.last = s.Doc
+	p.lastPub = now
+	return s, nil
+}
+
+// Document returns the current model at now as an unpublished snapshot with
+// the current version number (lariat fit, replay, tests); nil before λ* has
+// been chosen or before a feature has a name.
+func (p *Pipeline) Document(now time.Time, rejected uint64) (*Snapshot, error) {
+	return p.build(now, p.version, rejected)
+}
+
+// build writes the current model as a snapshot of the given version.
+func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, error) {
+	cur := p.current()
+	names := p.at.names
+	if cur < 0 || p.ladder.Len() == 0 || len(names) == 0 {
+		return nil, nil
+	}
+	m := p.ladder.Model(cur)
+	trim(&m, len(names))
+	var th *sink.Threshold
+	if p.tuner != nil {
+		th = p.tuner.threshold()
+	}
+	doc, err := sink.NewModelDoc(&sink.DocInput{
+		Name:      p.name,
+		Version:   version,
+		Features:  names,
+		Model:     &m,
+		Scores:    p.ladderNow(),
+		Holdout:   p.HeldOutLen(),
+		Rejected:  rejected,
+		Threshold: th,
+		Updated:   now,
+	})
+	if err != nil {
+		return nil, err
+	}
+	return &Snapshot{Doc: doc, Model: &m, Names: names}, nil
+}
+
+// RaiseVersion makes the next version at least v+1 (versions stay monotone
+// across restarts: v is the last version found in the key-value bucket).
+func (p *Pipeline) RaiseVersion(v uint64) { p.version = max(p.version, v) }
+
+// Version returns the last published version (0 before the first).
+func (p *Pipeline) Version() uint64 { return p.version }
+
+// ladderNow returns the last retune's scores with each member's current λ
+// and support size: the ladder re-anchors as the window moves, so the λ
+// grid of the document must be the one the published model belongs to,
+// while the held-out metrics are those of the last retune.
+func (p *Pipeline) ladderNow() []online.Score {
+	if len(p.scores) == 0 {
+		return nil
+	}
+	out := slices.Clone(p.scores)
+	for i := range out {
+		if j := out[i].Index; j >= 0 && j < p.ladder.Size() {
+			out[i].Lambda, out[i].Nonzero = p.ladder.Lambda(j), p.ladder.Nonzero(j)
+		}
+	}
+	return out
+}
+
+// trim cuts a model to its first n features (the names learned so far; the
+// columns past them have never seen a value and have coefficient 0).
+func trim(m *online.Model, n int) {
+	if n >= len(m.Coef) {
+		return
+	}
+	m.Coef = m.Coef[:n]
+	m.Standardized = m.Standardized[:n]
+	m.Mean = m.Mean[:n]
+	m.Std = m.Std[:n]
+}
+
+// SetThreshold changes a logistic model's threshold mode and target and
+// re-tunes at once; the next document shows it. It returns an error
+// wrapping ErrThreshold for an invalid mode or target, or for a model that
+// is not logistic.
+func (p *Pipeline) SetThreshold(mode string, target float64) error {
+	if p.tuner == nil {
+		return fmt.Errorf("%w: model %s is not logistic and has no threshold", ErrThreshold, p.name)
+	}
+	if err := CheckThreshold(mode, target); err != nil {
+		return err
+	}
+	p.tuner.set(mode, target, p, p.current())
+	return nil
+}
+
+// ROC returns the chosen member's ROC table on the held-out ring from the
+// last threshold tuning (nil before one, and for a squared-loss model).
+func (p *Pipeline) ROC() []online.ROCPoint {
+	if p.tuner == nil {
+		return nil
+	}
+	return p.tuner.roc
+}
+
+// DriftCounts counts what the drift watch detected since the pipeline was
+// built, whether or not the cooldown let the alert out.
+type DriftCounts struct {
+	// Performance, Data and Model count the detections of each kind.
+	Performance, Data, Model KindCounts
+	// Adaptations counts the drift adaptations (train window shrunk).
+	Adaptations int
+}
+
+// KindCounts counts the detections of one alert kind.
+type KindCounts struct {
+	// Detected counts every detection.
+	Detected int
+	// Suppressed counts the detections the cooldown held back.
+	Suppressed int
+}
+
+// DriftCounts returns the drift watch's counts.
+func (p *Pipeline) DriftCounts() DriftCounts {
+	st := &p.watch.stats
+	kc := func(i int) KindCounts { return KindCounts{Detected: st.detected[i], Suppressed: st.suppressed[i]} }
+	return DriftCounts{Performance: kc(0), Data: kc(1), Model: kc(2), Adaptations: st.adaptations}
+}
+
+// Logistic reports whether the model has a threshold (a logistic loss).
+func (p *Pipeline) Logistic() bool { return p.tuner != nil }
+
+// Counts returns the records applied (train and held out) and, of those,
+// held out.
+func (p *Pipeline) Counts() (applied, heldOut uint64) { return p.seq, p.held }
+
+// Ladder returns the pipeline's ladder for reading (tools and tests); it
+// belongs to the pipeline's goroutine like the pipeline itself.
+func (p *Pipeline) Ladder() *online.Ladder { return p.ladder }
+
+// Holdout returns the held-out ring for reading (nil when the holdout is
+// off); it belongs to the pipeline's goroutine like the pipeline itself.
+func (p *Pipeline) Holdout() *online.Holdout { return p.hold }
+
+// Scores returns the last retune's held-out scores (shared, read-only).
+func (p *Pipeline) Scores() []online.Score { return p.scores }
+
+// HeldOutLen returns the number of records in the held-out ring.
+func (p *Pipeline) HeldOutLen() int {
+	if p.hold == nil {
+		return 0
+	}
+	return p.hold.Len()
+}
+
+// HeldOutScores implements heldOutScorer for the threshold tuner.
+func (p *Pipeline) HeldOutScores(member int, probs, labels []float64) ([]float64, []float64) {
+	if p.hold == nil || p.hold.Len() == 0 {
+		return probs[:0], labels[:0]
+	}
+	return p.ladder.HoldoutPredictions(member, p.hold, probs), p.hold.Labels(labels)
+}
+
+var _ heldOutScorer = (*Pipeline)(nil)
+
+// trainWindow is the drift watch's view of the pipeline (watchedWindow).
+type trainWindow struct{ p *Pipeline }
+
+var _ watchedWindow = trainWindow{}
+
+func (t trainWindow) TrainLen() int   { return t.p.ladder.Len() }
+func (t trainWindow) HeldOutLen() int { return t.p.HeldOutLen() }
+
+func (t trainWindow) HoldoutPeriod() int {
+	if t.p.hold == nil {
+		return 0
+	}
+	return t.p.split.Period()
+}
+
+func (t trainWindow) KeepNewestTrain(n int)   { t.p.ladder.Shrink(n) }
+func (t trainWindow) KeepNewestHeldOut(n int) { t.p.hold.KeepNewest(n) }
