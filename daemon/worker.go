@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
-	"math"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -124,9 +123,6 @@ func (w *worker) intake(m *nats.Msg) {
 		return
 	}
 	it.names = w.dec.Names()
-	for len(it.rec.X) < w.dim { // names not learned yet are missing
-		it.rec.X = append(it.rec.X, math.NaN())
-	}
 	it.msg = m
 	w.queue <- it // never blocks: at most cap(queue) items exist
 }

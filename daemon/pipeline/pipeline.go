@@ -187,15 +187,23 @@ func (p *Pipeline) Width() int { return p.dim }
 // record and the ladder the others, after the current model's
 // test-then-train loss on it has fed the drift watch; every retune.every
 // records the ladder is rescored, λ* chosen and the threshold tuned. names
-// is the decoder's feature order when rec was decoded (len(rec.X) must be
-// Width(); trailing columns not yet named are NaN), and now the wall-clock
+// is the decoder's feature order when rec was decoded; rec.X is extended to
+// Width() columns with NaN (missing) for the names not seen yet, in its own
+// capacity when it has room. now is the wall-clock
 // time that stands in for the record's own time when it has none (alert
-// cooldowns). A record the learner refuses leaves the model untouched and
-// gives an error whose *record.Error carries the reject reason.
+// cooldowns). A record of the wrong width or one the learner refuses leaves
+// the model untouched and gives a *record.Error with the reject reason.
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
 	p.at.names = names
+	if len(rec.X) > p.dim {
+		return st, &record.Error{Reason: record.ReasonDimension,
+			Detail: fmt.Sprintf("record has %d columns, the model %d", len(rec.X), p.dim)}
+	}
+	for len(rec.X) < p.dim { // names not learned yet are missing
+		rec.X = append(rec.X, math.NaN())
+	}
 	r := rec.Learn()
 	heldOut := p.split.Holdout(p.seq, rec.Key)
 	// Test-then-train: the current model's loss on the record before it
