@@ -1,8 +1,11 @@
 package daemon
 
 import (
+	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -55,10 +58,18 @@ func TestExternalAuth(t *testing.T) {
 				waitFor(t, 10*time.Second, td.Ready)
 				return
 			}
-			time.Sleep(time.Second)
-			if err := td.Ready(); err == nil {
-				t.Error("ready with a wrong password")
-			}
+			// Not ready, and saying why: the server's authorization
+			// violation (nats.go keeps it as the connection's last error).
+			waitFor(t, 10*time.Second, func() error {
+				err := td.Ready()
+				if err == nil {
+					return errors.New("ready with a wrong password")
+				}
+				if !strings.Contains(err.Error(), "uthorization") {
+					return fmt.Errorf("not ready, but not for the password: %v", err)
+				}
+				return nil
+			})
 		})
 	}
 }
