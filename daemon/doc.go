@@ -1,9 +1,11 @@
 // Package daemon wires lariat together and runs it: an embedded or external
 // NATS connection, one subscription per model subject, the bounded queues,
-// one goroutine per model that owns all of its state (ladder, holdout,
-// chooser, splitter), publication of the current models on NATS, into the
-// key-value bucket and over HTTP, metrics, and the lifecycle. The lariat
-// command lives in daemon/cmd/lariat; the simulated demo plant in plant.go.
+// one goroutine per model that owns the model's pipeline.Pipeline (every
+// piece of per-model state and policy lives there), publication of the
+// current models on NATS, into the key-value bucket and over HTTP, metrics,
+// and the lifecycle. It holds wiring only: the per-model logic is
+// daemon/pipeline, the wire record daemon/record, and the lariat command
+// with its tools daemon/cmd/lariat.
 //
 // # Data path
 //
@@ -12,9 +14,11 @@
 // owns, and puts the record on the model's bounded queue without blocking.
 // Rejected records (bad input, a full queue) are counted by model and reason
 // and republished with the reason on <prefix>.reject.<model>; they never
-// reach a model. The model goroutine sends every k-th record to the holdout
-// and trains the ladder on the rest, rescores the ladder every
-// retune.every records, and every 100 ms runs learner.idle_steps idle steps
+// reach a model. The model goroutine is a thin loop: it hands each record
+// to its pipeline (pipeline.Pipeline.Apply: every k-th record to the
+// holdout, the rest to the ladder, a retune every retune.every records,
+// the drift watch and the threshold), sends the alerts the record raised,
+// and every 100 ms runs learner.idle_steps idle steps
 // if its queue is empty (spare time goes into converging on the current
 // window, so a quiet stream converges fully and a busy one spends nothing)
 // and checks whether to publish.
