@@ -14,6 +14,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon/plant"
 )
 
 // DemoOptions configures RunDemo; the zero value gives the defaults shown.
@@ -147,12 +148,12 @@ func freeOr(addr, what string, notes []string) (string, []string) {
 
 // startPlant connects a plain NATS client and publishes the simulated plant
 // until ctx is done; the count of records sent arrives on the channel.
-func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptions) (*Plant, <-chan uint64, error) {
+func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptions) (*plant.Plant, <-chan uint64, error) {
 	nc, err := nats.Connect(url, nats.Name("lariat-demo-plant"))
 	if err != nil {
 		return nil, nil, fmt.Errorf("daemon: demo plant: %w", err)
 	}
-	po := &PlantOptions{Rate: o.Rate, FaultAfter: o.FaultAfter, Seed: o.Seed}
+	po := &plant.Options{Rate: o.Rate, FaultAfter: o.FaultAfter, Seed: o.Seed}
 	if m, ok := cfg.Model(demoTrip); ok {
 		po.TripSubject = subjectFor(m.Subject)
 		if m.ScoreSubject != "" {
@@ -162,10 +163,10 @@ func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptio
 	if m, ok := cfg.Model(demoBearing); ok {
 		po.TempSubject = subjectFor(m.Subject)
 	}
-	plant := NewPlant(po, time.Now())
+	p := plant.New(po, time.Now())
 	sent := make(chan uint64, 1)
 	go func() { // owned by RunDemo: ends with ctx, reports on sent
-		n, err := plant.Run(ctx, nc)
+		n, err := p.Run(ctx, nc)
 		if err != nil && o.Logger != nil {
 			o.Logger.Error("plant stopped", "err", err)
 		}
@@ -173,7 +174,7 @@ func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptio
 		nc.Close()
 		sent <- n
 	}()
-	return plant, sent, nil
+	return p, sent, nil
 }
 
 // subjectFor maps a model's subscription pattern onto a concrete subject per
@@ -194,7 +195,7 @@ func subjectFor(pattern string) func(pump string) string {
 	}
 }
 
-func printBanner(w io.Writer, d *Daemon, p *Plant, notes []string) {
+func printBanner(w io.Writer, d *Daemon, p *plant.Plant, notes []string) {
 	po := p.Options()
 	http := "http://" + d.HTTPAddr()
 	fmt.Fprintf(w, "lariat demo: an INVENTED pumping station (simulated data, not a real plant)\n")

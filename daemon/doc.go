@@ -3,7 +3,8 @@
 // one goroutine per model that owns all of its state (ladder, holdout,
 // chooser, splitter), publication of the current models on NATS, into the
 // key-value bucket and over HTTP, metrics, and the lifecycle. The lariat
-// command lives in daemon/cmd/lariat; the simulated demo plant in plant.go.
+// command lives in daemon/cmd/lariat; the simulated demo plant is package
+// daemon/plant.
 //
 // # Data path
 //
