@@ -1,4 +1,4 @@
-package daemon
+package main
 
 import (
 	"bytes"
@@ -15,12 +15,12 @@ func TestRunDemo(t *testing.T) {
 		t.Skip("demo: a few seconds")
 	}
 	var out bytes.Buffer
-	err := RunDemo(context.Background(), DemoOptions{
+	err := runDemo(context.Background(), demoOptions{
 		Duration: 4 * time.Second, Rate: 400, FaultAfter: -1, Out: &out,
 		Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: "127.0.0.1:0",
 	})
 	if err != nil {
-		t.Fatalf("RunDemo: %v\n%s", err, out.String())
+		t.Fatalf("runDemo: %v\n%s", err, out.String())
 	}
 	s := out.String()
 	for _, want := range []string{"INVENTED", "lariat pull pump-trip --from http://127.0.0.1:", "pump-trip", "bearing-temp", "version"} {
