@@ -2,10 +2,8 @@
 // NATS connection, one subscription per model subject, the bounded queues,
 // one goroutine per model that owns all of its state (ladder, holdout,
 // chooser, splitter), publication of the current models on NATS, into the
-// key-value bucket and over HTTP, metrics, and the lifecycle. The tools are
-// elsewhere: the lariat command, with the demo runner and `lariat pull`, in
-// daemon/cmd/lariat; `lariat fit` in package daemon/fit; the simulated demo
-// plant in package daemon/plant.
+// key-value bucket and over HTTP, metrics, and the lifecycle. The lariat
+// command lives in daemon/cmd/lariat; the simulated demo plant in plant.go.
 //
 // # Data path
 //
