@@ -238,9 +238,9 @@ func (p *Plant) tripLabel(ps *pumpState) float64 {
 
 // encode writes the record of pump ps with label y (NaN: an unlabeled
 // reading) at time t with record.AppendJSON, the one encoder of the wire
-// format, into the plant's reused buffer. The values are rounded as a
-// sensor gateway would send them, channels to 3 decimals and labels to 6
-// significant digits.
+// format, into the plant's reused buffer. The values are rounded first,
+// channels to 3 decimals and labels to 6 significant digits, so the records
+// read as the short, fixed-precision readings the demo has always sent.
 func (p *Plant) encode(ps *pumpState, y float64, t time.Time) []byte {
 	r := &p.rec
 	for k, v := range ps.x {

@@ -132,7 +132,7 @@ func TestPlantScoreTwin(t *testing.T) {
 }
 
 // TestPlantEncoding checks the plant's records against the wire encoder and
-// the rounding a sensor gateway applies: each message is exactly what
+// the plant's rounding: each message is exactly what
 // record.AppendJSON writes for its decoded record (so the plant has no
 // encoder of its own), channels carry 3 decimals and labels 6 significant
 // digits, and the time is the plant's clock in milliseconds.
