@@ -8,6 +8,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon/plant"
 )
 
 // TestPlantStreamFinite feeds the demo configuration's trip model 10k plant
@@ -22,7 +23,7 @@ func TestPlantStreamFinite(t *testing.T) {
 		t.Fatal(err)
 	}
 	w := d.byName["pump-trip"]
-	p := NewPlant(&PlantOptions{Seed: 1, TripSubject: func(string) string { return "trip" }, TempSubject: func(string) string { return "temp" }}, time.Unix(0, 0))
+	p := plant.New(&plant.Options{Seed: 1, TripSubject: func(string) string { return "trip" }, TempSubject: func(string) string { return "temp" }}, time.Unix(0, 0))
 	for i := range 20000 {
 		subj, msg := p.Next()
 		if subj != "trip" {

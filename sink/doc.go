@@ -1,7 +1,8 @@
 // Package sink owns everything that leaves the lariat process: the model
 // document (JSON) and its PMML 4.4 form, alerts, rejected records, the NATS
 // publisher with its JetStream key-value bucket of latest models, the HTTP
-// API with its status page, and the Prometheus metrics.
+// API with its status page, and the Prometheus metrics. It decodes no wire
+// records: the HTTP API hands predict bodies to the caller's Predictor.
 //
 // Concurrency: Store, Publisher, Metrics, ModelMetrics and the handler
 // returned by NewHandler are safe for concurrent use; a ModelDoc or Alert
@@ -22,9 +23,13 @@
 //
 // # Known limitations
 //
-// Checkpoints (persisting ladder state for exact resume) are not part of
-// this package yet; they belong to a later issue. Until then a restarted
-// daemon starts its versions again at 1, so an HTTP client holding an old
-// ETag may see a spurious 304 for a model whose version counter has been
-// reset to the same number.
+// Checkpoints (persisting the learner's state, which the model JSON does
+// not carry, for an exact resume) are not implemented: a restarted daemon
+// learns again from the stream. Versions do continue across restarts: the daemon reads
+// each model's last version back from the key-value bucket when its
+// publisher opens, and the next version follows it. Without the bucket
+// (JetStream unavailable, so models go to core NATS only, or the entry
+// missing or unreadable) a restarted daemon starts its versions again at 1,
+// so an HTTP client holding an old ETag may see a spurious 304 for a model
+// whose version counter has come back to the same number.
 package sink

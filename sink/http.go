@@ -26,7 +26,7 @@ import (
 //	GET     /v1/models/{name}/ladder      {model, version, lambda_index, ladder}  404, 503
 //	GET     /v1/models/{name}/threshold   {model, version, threshold, roc}        404 (unknown or not logistic), 503
 //	PUT     /v1/models/{name}/threshold   202 {model, mode, target}    400, 401, 403 (no admin token), 404, 413, 501
-//	POST    /v1/models/{name}/predict     Prediction                   400, 404, 413, 503
+//	POST    /v1/models/{name}/predict     Prediction                   400, 404, 413, 501 (no Predictor), 503
 //	GET     /v1/alerts?model=             {"alerts": [Alert…]}         404 (unknown model)
 //	GET     /healthz                      {"status": "ok"}
 //	GET     /readyz                       {"status": "ready"}          503 {"status": "not ready", "error": reason}
@@ -45,13 +45,17 @@ var (
 	// ErrNotReady marks an error about a model that cannot answer yet;
 	// Predictor errors wrapping it give 503.
 	ErrNotReady = errors.New("sink: model not ready")
-	// ErrBadRecord is returned by StorePredictor for a body it cannot use.
+	// ErrBadRecord marks a record that cannot be scored; Predict returns
+	// it when the prediction is not finite. Predictor errors wrapping it
+	// give 400, as any error not wrapping ErrUnknownModel or ErrNotReady.
 	ErrBadRecord = errors.New("sink: bad record")
 )
 
 // Predictor scores one record for POST /v1/models/{name}/predict. body is
-// the request body (a record in the wire format). Errors wrapping
-// ErrUnknownModel give 404, ErrNotReady 503, any other error 400.
+// the request body (a record in the wire format); decoding it is the
+// Predictor's job, so the process has one record decoder (the daemon's
+// Predictor uses package record). Errors wrapping ErrUnknownModel give 404,
+// ErrNotReady 503, any other error 400.
 type Predictor interface {
 	// Predict decodes body as a record and scores it with the named model.
 	Predict(model string, body []byte) (*Prediction, error)
@@ -87,14 +91,18 @@ type Prediction struct {
 	Contributions map[string]float64 `json:"contributions"`
 }
 
-// HandlerOptions configures NewHandler. Only Store is required.
+// HandlerOptions configures NewHandler. Store is required, and Predictor is
+// required to serve predictions.
 type HandlerOptions struct {
 	// Store holds the models served; required.
 	Store *Store
 	// AdminToken is the bearer token of state-changing calls; empty
 	// refuses them with 403.
 	AdminToken string
-	// Predictor scores records; nil uses StorePredictor{Store}.
+	// Predictor decodes and scores the records of predict calls; required
+	// for predictions: nil answers POST /v1/models/{name}/predict with 501
+	// Not Implemented (after 404 for an unknown model), as Thresholds does
+	// for threshold changes.
 	Predictor Predictor
 	// Thresholds applies threshold changes; nil answers PUT with 501.
 	Thresholds ThresholdSetter
@@ -118,13 +126,10 @@ type handler struct {
 }
 
 // NewHandler returns the HTTP API (see the endpoint table above). It panics
-// if o.Store is nil.
+// if o.Store is nil; without o.Predictor, predict calls answer 501.
 func NewHandler(o HandlerOptions) http.Handler {
 	if o.Store == nil {
 		panic("sink: NewHandler without a Store")
-	}
-	if o.Predictor == nil {
-		o.Predictor = StorePredictor{Store: o.Store}
 	}
 	if o.MaxBodyBytes <= 0 {
 		o.MaxBodyBytes = DefaultMaxBodyBytes
@@ -373,6 +378,10 @@ func (h *handler) predict(w http.ResponseWriter, r *http.Request) {
 	name := r.PathValue("name")
 	if _, known := h.o.Store.Model(name); !known {
 		writeError(w, http.StatusNotFound, fmt.Sprintf("unknown model %q", name))
+		return
+	}
+	if h.o.Predictor == nil {
+		writeError(w, http.StatusNotImplemented, "predictions are not supported by this server (no Predictor)")
 		return
 	}
 	b, ok := h.readBody(w, r)

@@ -37,6 +37,44 @@ func (f *fakeThresholds) SetThresholdTarget(model, mode string, target float64) 
 	return nil
 }
 
+// fakePredictor scores predict calls with Predict on the store's published
+// documents. It does not decode records: decoding the wire format is the
+// Predictor's job (the daemon's uses package record, and its decoding over
+// HTTP is tested in package daemon and in the command's demo test), so each
+// body these tests send maps to the feature values it stands for.
+type fakePredictor struct {
+	store  *Store
+	values map[string]map[string]float64 // request body -> feature values by name
+}
+
+var _ Predictor = fakePredictor{}
+
+// Predict implements Predictor; a body not in the table is a bad record.
+func (p fakePredictor) Predict(model string, body []byte) (*Prediction, error) {
+	doc, known := p.store.Model(model)
+	switch {
+	case !known:
+		return nil, fmt.Errorf("%w %q", ErrUnknownModel, model)
+	case doc == nil:
+		return nil, fmt.Errorf("%w: %q has not published a version yet", ErrNotReady, model)
+	}
+	x, ok := p.values[string(body)]
+	if !ok {
+		return nil, fmt.Errorf("%w: the test predictor does not know the body %s", ErrBadRecord, body)
+	}
+	return Predict(doc, x)
+}
+
+// testPredictor is the fakePredictor of the predict cases of
+// TestHTTPEndpoints.
+func testPredictor(s *Store) fakePredictor {
+	return fakePredictor{store: s, values: map[string]map[string]float64{
+		`{"x":{"a":11,"c":-2,"unknown":5}}`:                         {"a": 11, "c": -2, "unknown": 5},
+		`{"x":{"a":100,"b":null},"y":1,"t":"2026-03-04T05:06:07Z"}`: {"a": 100},
+		`{"x":{"a":1e308,"c":-1e308}}`:                              {"a": 1e308, "c": -1e308},
+	}}
+}
+
 // testAPI builds a store with a squared model "lin" (version 3), a logistic
 // model "clf" (version 5) with a ROC table and alerts, and a registered
 // model "pending" without a version.
@@ -65,7 +103,7 @@ func testAPI(t *testing.T) (*Store, *fakeThresholds, *prometheus.Registry) {
 
 func TestHTTPEndpoints(t *testing.T) {
 	store, setter, reg := testAPI(t)
-	h := NewHandler(HandlerOptions{Store: store, AdminToken: testToken, Thresholds: setter, Gatherer: reg, MaxBodyBytes: 256})
+	h := NewHandler(HandlerOptions{Store: store, AdminToken: testToken, Predictor: testPredictor(store), Thresholds: setter, Gatherer: reg, MaxBodyBytes: 256})
 	bearer := map[string]string{"Authorization": "Bearer " + testToken}
 	lin, _ := store.Model("lin")
 	linEta, _ := lin.Eta(map[string]float64{"a": 11, "c": -2})
@@ -171,10 +209,8 @@ func TestHTTPEndpoints(t *testing.T) {
 					t.Errorf("probability %v, σ(η) = %v", *p.Probability, want)
 				}
 			}},
-		{name: "predict by array", method: "POST", path: "/v1/models/lin/predict", body: `{"v":[11,null,-2]}`, status: 200,
-			want: []string{fmt.Sprintf(`"eta":%s`, mustJSON(linEta))}},
-		{name: "predict array wrong length", method: "POST", path: "/v1/models/lin/predict", body: `{"v":[1,2]}`, status: 400, want: []string{"3 features"}},
-		{name: "predict malformed", method: "POST", path: "/v1/models/lin/predict", body: `{"x":{"a":"hot"}}`, status: 400},
+		{name: "predict refused", method: "POST", path: "/v1/models/lin/predict", body: `{"x":{"a":"hot"}}`, status: 400,
+			want: []string{`sink: bad record: the test predictor does not know the body {\"x\":{\"a\":\"hot\"}}`}},
 		{name: "predict overflow", method: "POST", path: "/v1/models/lin/predict", body: `{"x":{"a":1e308,"c":-1e308}}`, status: 400, want: []string{"overflows"}},
 		{name: "predict too large", method: "POST", path: "/v1/models/lin/predict", body: `{"x":{"a":1}}` + strings.Repeat(" ", 300), status: 413},
 		{name: "predict too large chunked", method: "POST", path: "/v1/models/lin/predict", body: `{"x":{"a":1}}` + strings.Repeat(" ", 300), chunked: true, status: 413},
@@ -245,14 +281,6 @@ func TestHTTPEndpoints(t *testing.T) {
 	}
 }
 
-func mustJSON(v any) string {
-	b, err := json.Marshal(v)
-	if err != nil {
-		panic(err)
-	}
-	return string(b)
-}
-
 func TestHTTPThresholdDisabled(t *testing.T) {
 	store, setter, _ := testAPI(t)
 	for _, tc := range []struct {
@@ -276,6 +304,32 @@ func TestHTTPThresholdDisabled(t *testing.T) {
 	}
 	if len(setter.calls) != 0 {
 		t.Errorf("setter called: %v", setter.calls)
+	}
+}
+
+// TestHTTPPredictDisabled checks predict calls without a Predictor: 501
+// with a JSON error for a known model, still 404 for an unknown one, and
+// the body is not read.
+func TestHTTPPredictDisabled(t *testing.T) {
+	store, _, _ := testAPI(t)
+	h := NewHandler(HandlerOptions{Store: store, MaxBodyBytes: 16})
+	for _, tc := range []struct {
+		model  string
+		status int
+		want   string
+	}{
+		{"lin", 501, `{"error":"predictions are not supported by this server (no Predictor)"}`},
+		{"pending", 501, "no Predictor"},
+		{"nope", 404, `unknown model \"nope\"`},
+	} {
+		t.Run(tc.model, func(t *testing.T) {
+			req := httptest.NewRequest("POST", "/v1/models/"+tc.model+"/predict", strings.NewReader(`{"x":{"a":1}}`+strings.Repeat(" ", 100)))
+			rec := httptest.NewRecorder()
+			h.ServeHTTP(rec, req)
+			if rec.Code != tc.status || !strings.Contains(rec.Body.String(), tc.want) {
+				t.Errorf("status %d body %s, want %d %s", rec.Code, rec.Body, tc.status, tc.want)
+			}
+		})
 	}
 }
 

@@ -4,12 +4,10 @@ import (
 	"time"
 
 	"github.com/spf13/cobra"
-
-	"lariat/daemon"
 )
 
 func newDemoCmd(lf *logFlags) *cobra.Command {
-	var o daemon.DemoOptions
+	var o demoOptions
 	cmd := &cobra.Command{
 		Use:   "demo",
 		Short: "Run the daemon on a simulated (invented) pumping station",
@@ -26,7 +24,7 @@ It runs until Ctrl-C, or for --duration.`,
 				return err
 			}
 			o.Out, o.Logger, o.Version = cmd.OutOrStdout(), log, version
-			return daemon.RunDemo(cmd.Context(), o)
+			return runDemo(cmd.Context(), o)
 		},
 	}
 	f := cmd.Flags()

@@ -3,13 +3,13 @@ package main
 import (
 	"github.com/spf13/cobra"
 
-	"lariat/daemon"
+	"lariat/daemon/fit"
 )
 
 // newFitCmd returns the `lariat fit` command: one CSV file, one penalized
 // model, fitted to convergence by the daemon's own learner.
 func newFitCmd() *cobra.Command {
-	var o daemon.FitOptions
+	var o fit.Options
 	cmd := &cobra.Command{
 		Use:   "fit --input FILE.csv --label COLUMN [flags]",
 		Short: "Fit one penalized model to a CSV file and print it",
@@ -33,7 +33,7 @@ or, with --json, the model as JSON; --ladder adds the selection ladder.`,
 		Args:         cobra.NoArgs,
 		SilenceUsage: true,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			return daemon.Fit(cmd.OutOrStdout(), o)
+			return fit.Run(cmd.OutOrStdout(), o)
 		},
 	}
 	f := cmd.Flags()
@@ -46,8 +46,8 @@ or, with --json, the model as JSON; --ladder adds the selection ladder.`,
 	f.StringVar(&o.Rule, "rule", "one-se", "λ selection rule without --lambda: one-se | min")
 	f.BoolVar(&o.JSON, "json", false, "print the model as JSON")
 	f.BoolVar(&o.Ladder, "ladder", false, "also print the selection ladder (λ, nonzero, held-out loss)")
-	f.Float64Var(&o.Tol, "tol", daemon.DefaultFitTol, "KKT tolerance (standardized scale)")
-	f.IntVar(&o.MaxEpochs, "max-epochs", daemon.DefaultFitEpochs, "epoch budget per ladder member")
+	f.Float64Var(&o.Tol, "tol", fit.DefaultTol, "KKT tolerance (standardized scale)")
+	f.IntVar(&o.MaxEpochs, "max-epochs", fit.DefaultEpochs, "epoch budget per ladder member")
 	f.Uint64Var(&o.Seed, "seed", 1, "learner seed")
 	return cmd
 }

@@ -1,17 +1,23 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
+	"io"
 	"net/http"
+	"net/url"
+	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
 
-	"lariat/daemon"
 	"lariat/sink"
 )
 
+// newPullCmd returns the `lariat pull` command: one model fetched from a
+// running daemon's HTTP API, printed as a table or as its JSON.
 func newPullCmd() *cobra.Command {
 	var (
 		from    string
@@ -27,7 +33,7 @@ held-out metrics as a table, or with --json the model JSON unchanged.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			client := &http.Client{Timeout: timeout}
-			body, err := daemon.Pull(cmd.Context(), client, from, args[0])
+			body, err := fetchModel(cmd.Context(), client, from, args[0])
 			if err != nil {
 				return err
 			}
@@ -39,11 +45,51 @@ held-out metrics as a table, or with --json the model JSON unchanged.`,
 			if err := json.Unmarshal(body, &doc); err != nil {
 				return fmt.Errorf("decoding the model: %w", err)
 			}
-			return daemon.WriteModel(cmd.OutOrStdout(), &doc)
+			return writeModel(cmd.OutOrStdout(), &doc)
 		},
 	}
 	cmd.Flags().StringVar(&from, "from", "http://127.0.0.1:8080", "base URL of the daemon's HTTP API")
 	cmd.Flags().BoolVar(&raw, "json", false, "print the model JSON unchanged")
 	cmd.Flags().DurationVar(&timeout, "timeout", 10*time.Second, "HTTP timeout")
 	return cmd
+}
+
+// errPull is wrapped by fetchModel for an HTTP answer other than 200.
+var errPull = errors.New("pull failed")
+
+// fetchModel fetches a model document from a running daemon's HTTP API at base
+// (e.g. "http://127.0.0.1:8080") and returns its JSON unchanged.
+func fetchModel(ctx context.Context, client *http.Client, base, name string) ([]byte, error) {
+	if client == nil {
+		client = http.DefaultClient
+	}
+	u, err := url.JoinPath(strings.TrimRight(base, "/"), "v1", "models", url.PathEscape(name))
+	if err != nil {
+		return nil, fmt.Errorf("pull: %w", err)
+	}
+	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u, nil)
+	if err != nil {
+		return nil, fmt.Errorf("pull: %w", err)
+	}
+	req.Header.Set("Accept", "application/json")
+	resp, err := client.Do(req)
+	if err != nil {
+		return nil, fmt.Errorf("pull: %w", err)
+	}
+	defer resp.Body.Close()
+	body, err := io.ReadAll(io.LimitReader(resp.Body, 64<<20))
+	if err != nil {
+		return nil, fmt.Errorf("pull: %w", err)
+	}
+	if resp.StatusCode != http.StatusOK {
+		var e struct {
+			Error string `json:"error"`
+		}
+		msg := strings.TrimSpace(string(body))
+		if json.Unmarshal(body, &e) == nil && e.Error != "" {
+			msg = e.Error
+		}
+		return nil, fmt.Errorf("%w: %s: %s: %s", errPull, u, resp.Status, msg)
+	}
+	return body, nil
 }

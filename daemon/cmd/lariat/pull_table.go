@@ -1,14 +1,12 @@
-package daemon
+package main
+
+// This file prints a model document as `lariat pull` shows it; fetching
+// it is in pull.go.
 
 import (
-	"context"
-	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
-	"net/http"
-	"net/url"
 	"slices"
 	"strings"
 	"unicode/utf8"
@@ -16,51 +14,11 @@ import (
 	"lariat/sink"
 )
 
-// ErrPull is wrapped by Pull for an HTTP answer other than 200.
-var ErrPull = errors.New("daemon: pull failed")
-
-// Pull fetches a model document from a running daemon's HTTP API at base
-// (e.g. "http://127.0.0.1:8080") and returns its JSON unchanged.
-func Pull(ctx context.Context, client *http.Client, base, name string) ([]byte, error) {
-	if client == nil {
-		client = http.DefaultClient
-	}
-	u, err := url.JoinPath(strings.TrimRight(base, "/"), "v1", "models", url.PathEscape(name))
-	if err != nil {
-		return nil, fmt.Errorf("daemon: pull: %w", err)
-	}
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, u, nil)
-	if err != nil {
-		return nil, fmt.Errorf("daemon: pull: %w", err)
-	}
-	req.Header.Set("Accept", "application/json")
-	resp, err := client.Do(req)
-	if err != nil {
-		return nil, fmt.Errorf("daemon: pull: %w", err)
-	}
-	defer resp.Body.Close()
-	body, err := io.ReadAll(io.LimitReader(resp.Body, 64<<20))
-	if err != nil {
-		return nil, fmt.Errorf("daemon: pull: %w", err)
-	}
-	if resp.StatusCode != http.StatusOK {
-		var e struct {
-			Error string `json:"error"`
-		}
-		msg := strings.TrimSpace(string(body))
-		if json.Unmarshal(body, &e) == nil && e.Error != "" {
-			msg = e.Error
-		}
-		return nil, fmt.Errorf("%w: %s: %s: %s", ErrPull, u, resp.Status, msg)
-	}
-	return body, nil
-}
-
-// WriteModel prints a model document as a readable table: the header (loss,
+// writeModel prints a model document as a readable table: the header (loss,
 // penalty, λ, version, record counts), the held-out metrics, and the nonzero
 // coefficients sorted by the size of their standardized value, in raw units
 // and standardized.
-func WriteModel(w io.Writer, doc *sink.ModelDoc) error {
+func writeModel(w io.Writer, doc *sink.ModelDoc) error {
 	var head [][]string
 	kv := func(k, format string, args ...any) { head = append(head, []string{k, fmt.Sprintf(format, args...)}) }
 	kv("model", "%s (version %d, updated %s)", doc.Model, doc.Version, doc.Updated.Format("2006-01-02T15:04:05Z07:00"))

@@ -1,4 +1,7 @@
-package daemon
+package main
+
+// This file runs `lariat demo` (the cobra command is in demo.go): the daemon
+// with the bundled demo configuration, fed by the invented plant.
 
 import (
 	"context"
@@ -14,10 +17,12 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon"
+	"lariat/daemon/plant"
 )
 
-// DemoOptions configures RunDemo; the zero value gives the defaults shown.
-type DemoOptions struct {
+// demoOptions configures runDemo; the zero value gives the defaults shown.
+type demoOptions struct {
 	// Data is the data directory; default a temporary directory removed at
 	// the end.
 	Data string
@@ -48,10 +53,10 @@ const (
 	demoBearing = "bearing-temp"
 )
 
-// RunDemo runs the demo: the daemon with the bundled demo configuration on
+// runDemo runs the demo: the daemon with the bundled demo configuration on
 // an embedded NATS server, fed by the simulated (invented) plant, until ctx
 // is done or the duration has passed.
-func RunDemo(ctx context.Context, o DemoOptions) error {
+func runDemo(ctx context.Context, o demoOptions) error {
 	if o.Out == nil {
 		o.Out = io.Discard
 	}
@@ -60,12 +65,12 @@ func RunDemo(ctx context.Context, o DemoOptions) error {
 	}
 	cfg, err := config.Demo()
 	if err != nil {
-		return fmt.Errorf("daemon: demo config: %w", err)
+		return fmt.Errorf("demo: config: %w", err)
 	}
 	if o.Data == "" {
 		dir, err := os.MkdirTemp("", "lariat-demo-")
 		if err != nil {
-			return fmt.Errorf("daemon: demo data dir: %w", err)
+			return fmt.Errorf("demo: data directory: %w", err)
 		}
 		defer os.RemoveAll(dir)
 		o.Data = dir
@@ -81,13 +86,13 @@ func RunDemo(ctx context.Context, o DemoOptions) error {
 	cfg.NATS.Listen, notes = freeOr(cfg.NATS.Listen, "NATS", notes)
 	cfg.HTTP.Listen, notes = freeOr(cfg.HTTP.Listen, "HTTP", notes)
 	if err := cfg.Validate(); err != nil {
-		return fmt.Errorf("daemon: demo config: %w", err)
+		return fmt.Errorf("demo: config: %w", err)
 	}
-	opts := []Option{WithVersion(o.Version)}
+	opts := []daemon.Option{daemon.WithVersion(o.Version)}
 	if o.Logger != nil {
-		opts = append(opts, WithLogger(o.Logger))
+		opts = append(opts, daemon.WithLogger(o.Logger))
 	}
-	d, err := New(cfg, opts...)
+	d, err := daemon.New(cfg, opts...)
 	if err != nil {
 		return err
 	}
@@ -107,12 +112,12 @@ func RunDemo(ctx context.Context, o DemoOptions) error {
 	}
 	plantCtx, stopPlant := context.WithCancel(ctx)
 	defer stopPlant()
-	plant, sent, err := startPlant(plantCtx, cfg, d.NATSURL(), o)
+	pl, sent, err := startPlant(plantCtx, cfg, d.NATSURL(), o)
 	if err != nil {
 		stopDaemon()
 		return errors.Join(err, <-runErr)
 	}
-	printBanner(o.Out, d, plant, notes)
+	printBanner(o.Out, cfg, d, pl, notes)
 	select {
 	case <-ctx.Done():
 	case err := <-runErr: // the daemon failed on its own
@@ -147,12 +152,12 @@ func freeOr(addr, what string, notes []string) (string, []string) {
 
 // startPlant connects a plain NATS client and publishes the simulated plant
 // until ctx is done; the count of records sent arrives on the channel.
-func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptions) (*Plant, <-chan uint64, error) {
+func startPlant(ctx context.Context, cfg *config.Config, url string, o demoOptions) (*plant.Plant, <-chan uint64, error) {
 	nc, err := nats.Connect(url, nats.Name("lariat-demo-plant"))
 	if err != nil {
-		return nil, nil, fmt.Errorf("daemon: demo plant: %w", err)
+		return nil, nil, fmt.Errorf("demo: plant: %w", err)
 	}
-	po := &PlantOptions{Rate: o.Rate, FaultAfter: o.FaultAfter, Seed: o.Seed}
+	po := &plant.Options{Rate: o.Rate, FaultAfter: o.FaultAfter, Seed: o.Seed}
 	if m, ok := cfg.Model(demoTrip); ok {
 		po.TripSubject = subjectFor(m.Subject)
 		if m.ScoreSubject != "" {
@@ -162,10 +167,10 @@ func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptio
 	if m, ok := cfg.Model(demoBearing); ok {
 		po.TempSubject = subjectFor(m.Subject)
 	}
-	plant := NewPlant(po, time.Now())
+	p := plant.New(po, time.Now())
 	sent := make(chan uint64, 1)
-	go func() { // owned by RunDemo: ends with ctx, reports on sent
-		n, err := plant.Run(ctx, nc)
+	go func() { // owned by runDemo: ends with ctx, reports on sent
+		n, err := p.Run(ctx, nc)
 		if err != nil && o.Logger != nil {
 			o.Logger.Error("plant stopped", "err", err)
 		}
@@ -173,7 +178,7 @@ func startPlant(ctx context.Context, cfg *config.Config, url string, o DemoOptio
 		nc.Close()
 		sent <- n
 	}()
-	return plant, sent, nil
+	return p, sent, nil
 }
 
 // subjectFor maps a model's subscription pattern onto a concrete subject per
@@ -194,7 +199,9 @@ func subjectFor(pattern string) func(pump string) string {
 	}
 }
 
-func printBanner(w io.Writer, d *Daemon, p *Plant, notes []string) {
+// printBanner writes what runs where: the plant, the addresses, each
+// model's subjects (from cfg, in the daemon's order) and commands to try.
+func printBanner(w io.Writer, cfg *config.Config, d *daemon.Daemon, p *plant.Plant, notes []string) {
 	po := p.Options()
 	http := "http://" + d.HTTPAddr()
 	fmt.Fprintf(w, "lariat demo: an INVENTED pumping station (simulated data, not a real plant)\n")
@@ -206,20 +213,22 @@ func printBanner(w io.Writer, d *Daemon, p *Plant, notes []string) {
 		fmt.Fprintf(w, "; pump p%d's bearing starts to degrade after %s", po.FaultPump+1, po.FaultAfter)
 	}
 	fmt.Fprintf(w, "\n  NATS:    %s\n  status:  %s/\n  models:  %s/v1/models\n  metrics: %s/metrics\n", d.NATSURL(), http, http, http)
-	for _, wk := range d.workers {
-		fmt.Fprintf(w, "  %-13s reads %-26s publishes %s.model.%s\n", wk.name, wk.cfg.Subject, d.cfg.SubjectPrefix, wk.name)
-		if wk.cfg.ScoreSubject != "" {
-			fmt.Fprintf(w, "  %-13s scores %-25s alerts on %s.alert.%s\n", "", wk.cfg.ScoreSubject, d.cfg.SubjectPrefix, wk.name)
+	for _, m := range cfg.Models {
+		fmt.Fprintf(w, "  %-13s reads %-26s publishes %s.model.%s\n", m.Name, m.Subject, cfg.SubjectPrefix, m.Name)
+		if m.ScoreSubject != "" {
+			fmt.Fprintf(w, "  %-13s scores %-25s alerts on %s.alert.%s\n", "", m.ScoreSubject, cfg.SubjectPrefix, m.Name)
 		}
 	}
 	fmt.Fprintf(w, "  try:     lariat pull %s --from %s\n", demoTrip, http)
-	fmt.Fprintf(w, "           nats sub '%s.>' --server %s\n", d.cfg.SubjectPrefix, d.NATSURL())
+	fmt.Fprintf(w, "           nats sub '%s.>' --server %s\n", cfg.SubjectPrefix, d.NATSURL())
 	fmt.Fprintf(w, "  stop:    Ctrl-C\n")
 }
 
-func printSummary(w io.Writer, d *Daemon, sent uint64) {
+// printSummary writes the count of records published and each model's last
+// published state.
+func printSummary(w io.Writer, d *daemon.Daemon, sent uint64) {
 	fmt.Fprintf(w, "lariat demo: plant published %d records\n", sent)
-	for _, doc := range d.store.Models() {
+	for _, doc := range d.Store().Models() {
 		fmt.Fprintf(w, "  %-13s version %d, λ index %d, %d nonzero of %d, held-out loss %.4g, seen %d\n",
 			doc.Model, doc.Version, doc.LambdaIndex, len(doc.Coefficients), len(doc.Features),
 			float64(doc.Holdout.Loss), doc.Records.Seen)

@@ -1,8 +1,10 @@
-package daemon
+package plant
 
 import (
+	"bytes"
 	"fmt"
 	"math"
+	"strconv"
 	"testing"
 	"time"
 
@@ -13,7 +15,7 @@ import (
 // checks their shape: 40 channels, trip labels 0/1 at a plausible rate,
 // bearing temperatures in a plausible range, subjects per stream.
 func TestPlantRecords(t *testing.T) {
-	p := NewPlant(&PlantOptions{Seed: 3}, time.Unix(1_700_000_000, 0))
+	p := New(&Options{Seed: 3}, time.Unix(1_700_000_000, 0))
 	tripDec := record.NewDecoder(&record.DecoderOptions{Logistic: true})
 	tempDec := record.NewDecoder(nil)
 	var r record.Record
@@ -35,7 +37,7 @@ func TestPlantRecords(t *testing.T) {
 			tempN++
 			tempSum += r.Y
 		}
-		if len(r.X) != plantChannels || !r.HasT || len(r.Key) == 0 {
+		if len(r.X) != channels || !r.HasT || len(r.Key) == 0 {
 			t.Fatalf("record %s: %d channels, t %v, key %q", msg, len(r.X), r.HasT, r.Key)
 		}
 	}
@@ -51,7 +53,7 @@ func TestPlantRecords(t *testing.T) {
 // runs hotter at the same vibration and the others do not.
 func TestPlantFault(t *testing.T) {
 	const rate = 100.0
-	p := NewPlant(&PlantOptions{Rate: rate, FaultAfter: 10 * time.Second, Seed: 5}, time.Unix(0, 0))
+	p := New(&Options{Rate: rate, FaultAfter: 10 * time.Second, Seed: 5}, time.Unix(0, 0))
 	dec := record.NewDecoder(nil)
 	var r record.Record
 	// residual of bearing temperature against the healthy relation, per
@@ -87,7 +89,7 @@ func TestPlantFault(t *testing.T) {
 
 // ExamplePlant shows the plant's subjects and channel count.
 func ExamplePlant() {
-	p := NewPlant(&PlantOptions{Pumps: 2, Seed: 1}, time.Unix(0, 0))
+	p := New(&Options{Pumps: 2, Seed: 1}, time.Unix(0, 0))
 	for range 4 {
 		subj, _ := p.Next()
 		fmt.Println(subj)
@@ -104,7 +106,7 @@ func ExamplePlant() {
 // TestPlantScoreTwin checks that with ScoreSubject each trip record is
 // followed by the same reading without its label.
 func TestPlantScoreTwin(t *testing.T) {
-	p := NewPlant(&PlantOptions{Seed: 4, ScoreSubject: func(id string) string { return "score." + id }}, time.Unix(0, 0))
+	p := New(&Options{Seed: 4, ScoreSubject: func(id string) string { return "score." + id }}, time.Unix(0, 0))
 	labeled := record.NewDecoder(&record.DecoderOptions{Logistic: true})
 	unlabeled := record.NewDecoder(&record.DecoderOptions{Unlabeled: true})
 	var r, twin record.Record
@@ -126,5 +128,59 @@ func TestPlantScoreTwin(t *testing.T) {
 		if !math.IsNaN(twin.Y) || string(twin.Key) != string(r.Key) || fmt.Sprint(twin.X) != fmt.Sprint(r.X) {
 			t.Fatalf("twin %s of %s", msg2, msg)
 		}
+	}
+}
+
+// TestPlantEncoding checks the plant's records against the wire encoder and
+// the plant's rounding: each message is exactly what
+// record.AppendJSON writes for its decoded record (so the plant has no
+// encoder of its own), channels carry 3 decimals and labels 6 significant
+// digits, and the time is the plant's clock in milliseconds.
+func TestPlantEncoding(t *testing.T) {
+	start := time.Unix(1_700_000_000, 0)
+	p := New(&Options{Seed: 6, ScoreSubject: func(id string) string { return "score." + id }}, start)
+	dec := record.NewDecoder(&record.DecoderOptions{Unlabeled: true})
+	var r record.Record
+	var again []byte
+	for i := range 3000 {
+		now := p.Now()
+		_, msg := p.Next()
+		if err := dec.Decode(msg, &r); err != nil {
+			t.Fatalf("%v: %s", err, msg)
+		}
+		// An unlabeled decoder skips "y"; read it back from the message.
+		r.Y = math.NaN()
+		if i := bytes.Index(msg, []byte(`"y":`)); i >= 0 {
+			end := bytes.IndexByte(msg[i:], ',')
+			y, err := strconv.ParseFloat(string(msg[i+4:i+end]), 64)
+			if err != nil {
+				t.Fatalf("y in %s: %v", msg, err)
+			}
+			r.Y = y
+			if s := strconv.FormatFloat(y, 'g', 6, 64); s != strconv.FormatFloat(y, 'g', -1, 64) {
+				t.Fatalf("record %d: label %v has more than 6 significant digits", i, y)
+			}
+		}
+		if again = record.AppendJSON(again[:0], dec.Names(), &r); !bytes.Equal(again, msg) {
+			t.Fatalf("record %d:\n got %s\nwant %s (record.AppendJSON)", i, msg, again)
+		}
+		for j, v := range r.X {
+			if w, _ := strconv.ParseFloat(strconv.FormatFloat(v, 'f', 3, 64), 64); w != v {
+				t.Fatalf("record %d: channel %d = %v, not rounded to 3 decimals", i, j, v)
+			}
+		}
+		if !r.HasT || r.T != now.UnixMilli() {
+			t.Fatalf("record %d: t %d (%v), want %d", i, r.T, r.HasT, now.UnixMilli())
+		}
+	}
+}
+
+// TestPlantNextAllocs checks that the plant reuses its buffers: Next
+// allocates nothing once running.
+func TestPlantNextAllocs(t *testing.T) {
+	p := New(&Options{Seed: 2, ScoreSubject: func(id string) string { return "score." + id }}, time.Unix(0, 0))
+	p.Next()
+	if n := testing.AllocsPerRun(1000, func() { p.Next() }); n != 0 {
+		t.Errorf("Next allocates %v times per call, want 0", n)
 	}
 }

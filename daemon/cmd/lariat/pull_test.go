@@ -1,4 +1,4 @@
-package daemon
+package main
 
 import (
 	"os"
@@ -8,8 +8,8 @@ import (
 	"lariat/sink"
 )
 
-// ExampleWriteModel prints a model document the way `lariat pull` does.
-func ExampleWriteModel() {
+// Example_writeModel prints a model document the way `lariat pull` does.
+func Example_writeModel() {
 	m := &online.Model{
 		Loss: "squared", Penalty: online.Lasso(), Lambda: 0.05, Index: 3,
 		Intercept: 20, Coef: []float64{6, 0, 0.5}, Standardized: []float64{3, 0, 1.5},
@@ -19,7 +19,7 @@ func ExampleWriteModel() {
 		Name: "bearing-temp", Version: 42, Features: []string{"vib_x_mms", "amps_l1", "oil_temp_c"},
 		Model: m, Holdout: 1000, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
 	})
-	WriteModel(os.Stdout, doc)
+	writeModel(os.Stdout, doc)
 	// Output:
 	// model     bearing-temp (version 42, updated 2026-03-04T05:06:07Z)
 	// loss      squared, lasso

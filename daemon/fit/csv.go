@@ -1,4 +1,4 @@
-package daemon
+package fit
 
 // This file reads and checks the CSV input of `lariat fit`.
 
@@ -34,7 +34,7 @@ func (t *table) row(i int) []float64 {
 func readTable(path, label string, logistic bool) (*table, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, &FitError{Msg: err.Error()}
+		return nil, &Error{Msg: err.Error()}
 	}
 	defer f.Close()
 	header, cells, lines, err := readCells(f, path)
@@ -43,7 +43,7 @@ func readTable(path, label string, logistic bool) (*table, error) {
 	}
 	li := slices.Index(header, label)
 	if li < 0 {
-		return nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("no label column %q (columns: %s)", label, strings.Join(header, ", "))}
+		return nil, &Error{File: path, Line: 1, Msg: fmt.Sprintf("no label column %q (columns: %s)", label, strings.Join(header, ", "))}
 	}
 	t := &table{lines: lines}
 	var cols []int
@@ -58,18 +58,18 @@ func readTable(path, label string, logistic bool) (*table, error) {
 		}
 	}
 	if len(cols) == 0 {
-		return nil, &FitError{File: path, Msg: fmt.Sprintf("no numeric feature columns besides the label %q", label)}
+		return nil, &Error{File: path, Msg: fmt.Sprintf("no numeric feature columns besides the label %q", label)}
 	}
 	t.x = make([]float64, 0, len(cells)*len(cols))
 	t.y = make([]float64, len(cells))
 	for i, rec := range cells {
 		if t.y[i], err = parseLabel(rec[li], logistic); err != nil {
-			return nil, &FitError{File: path, Line: lines[i], Column: label, Msg: err.Error()}
+			return nil, &Error{File: path, Line: lines[i], Column: label, Msg: err.Error()}
 		}
 		for k, j := range cols {
 			v, err := parseCell(rec[j])
 			if err != nil {
-				return nil, &FitError{File: path, Line: lines[i], Column: t.names[k], Msg: err.Error()}
+				return nil, &Error{File: path, Line: lines[i], Column: t.names[k], Msg: err.Error()}
 			}
 			t.x = append(t.x, v)
 		}
@@ -82,7 +82,7 @@ func readCells(r io.Reader, path string) (header []string, cells [][]string, lin
 	cr := csv.NewReader(r)
 	header, err = cr.Read()
 	if err == io.EOF {
-		return nil, nil, nil, &FitError{File: path, Msg: "empty file"}
+		return nil, nil, nil, &Error{File: path, Msg: "empty file"}
 	}
 	if err != nil {
 		return nil, nil, nil, csvError(path, err)
@@ -93,9 +93,9 @@ func readCells(r io.Reader, path string) (header []string, cells [][]string, lin
 		h = strings.TrimSpace(h)
 		switch {
 		case h == "":
-			return nil, nil, nil, &FitError{File: path, Line: 1, Msg: fmt.Sprintf("column %d has no name", i+1)}
+			return nil, nil, nil, &Error{File: path, Line: 1, Msg: fmt.Sprintf("column %d has no name", i+1)}
 		case seen[h]:
-			return nil, nil, nil, &FitError{File: path, Line: 1, Column: h, Msg: "appears twice in the header"}
+			return nil, nil, nil, &Error{File: path, Line: 1, Column: h, Msg: "appears twice in the header"}
 		}
 		header[i], seen[h] = h, true
 	}
@@ -112,7 +112,7 @@ func readCells(r io.Reader, path string) (header []string, cells [][]string, lin
 		lines = append(lines, line)
 	}
 	if len(cells) == 0 {
-		return nil, nil, nil, &FitError{File: path, Msg: "no data rows after the header"}
+		return nil, nil, nil, &Error{File: path, Msg: "no data rows after the header"}
 	}
 	return header, cells, lines, nil
 }
@@ -120,9 +120,9 @@ func readCells(r io.Reader, path string) (header []string, cells [][]string, lin
 func csvError(path string, err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
-		return &FitError{File: path, Line: pe.Line, Msg: pe.Err.Error()}
+		return &Error{File: path, Line: pe.Line, Msg: pe.Err.Error()}
 	}
-	return &FitError{File: path, Msg: err.Error()}
+	return &Error{File: path, Msg: err.Error()}
 }
 
 // isMissing reports whether a cell is an explicit missing value.

@@ -1,4 +1,4 @@
-package daemon
+package fit
 
 import (
 	"bytes"
@@ -25,56 +25,56 @@ func TestFitErrors(t *testing.T) {
 	tests := []struct {
 		name string
 		csv  string
-		opt  FitOptions // Input is filled in unless csv is "-"
-		want string     // FILE stands for the input path
+		opt  Options // Input is filled in unless csv is "-"
+		want string  // FILE stands for the input path
 	}{
-		{"empty file", "", FitOptions{Label: "y"}, `fit: FILE: empty file`},
-		{"header only", "a,y\n", FitOptions{Label: "y"}, `fit: FILE: no data rows after the header`},
-		{"missing label column", "a,b\n1,2\n", FitOptions{Label: "y"},
+		{"empty file", "", Options{Label: "y"}, `fit: FILE: empty file`},
+		{"header only", "a,y\n", Options{Label: "y"}, `fit: FILE: no data rows after the header`},
+		{"missing label column", "a,b\n1,2\n", Options{Label: "y"},
 			`fit: FILE:1: no label column "y" (columns: a, b)`},
-		{"non-numeric cell", "a,b,y\n1,2,3\n4,abc,5\n", FitOptions{Label: "y"},
+		{"non-numeric cell", "a,b,y\n1,2,3\n4,abc,5\n", Options{Label: "y"},
 			`fit: FILE:3: column "b": not a number "abc"`},
-		{"infinite cell", "a,y\n1,2\nInf,3\n", FitOptions{Label: "y"},
+		{"infinite cell", "a,y\n1,2\nInf,3\n", Options{Label: "y"},
 			`fit: FILE:3: column "a": not finite "Inf"`},
-		{"out of range cell", "a,y\n1,2\n1e999,3\n", FitOptions{Label: "y"},
+		{"out of range cell", "a,y\n1,2\n1e999,3\n", Options{Label: "y"},
 			`fit: FILE:3: column "a": not finite "1e999"`},
-		{"non-numeric label", "a,y\n1,2\n2,x\n", FitOptions{Label: "y"},
+		{"non-numeric label", "a,y\n1,2\n2,x\n", Options{Label: "y"},
 			`fit: FILE:3: column "y": not a number "x"`},
-		{"missing label", "a,y\n1,2\n2,\n", FitOptions{Label: "y"},
+		{"missing label", "a,y\n1,2\n2,\n", Options{Label: "y"},
 			`fit: FILE:3: column "y": missing label`},
-		{"logistic label 2", "a,y\n1,0\n2,1\n3,2\n", FitOptions{Label: "y", Loss: "logistic"},
+		{"logistic label 2", "a,y\n1,0\n2,1\n3,2\n", Options{Label: "y", Loss: "logistic"},
 			`fit: FILE:4: column "y": logistic label must be 0 or 1 (or true/false), got "2"`},
-		{"logistic label 0.5", "a,y\n1,0.5\n", FitOptions{Label: "y", Loss: "logistic"},
+		{"logistic label 0.5", "a,y\n1,0.5\n", Options{Label: "y", Loss: "logistic"},
 			`fit: FILE:2: column "y": logistic label must be 0 or 1 (or true/false), got "0.5"`},
-		{"ragged row", "a,y\n1,2\n3,4,5\n", FitOptions{Label: "y"},
+		{"ragged row", "a,y\n1,2\n3,4,5\n", Options{Label: "y"},
 			`fit: FILE:3: wrong number of fields`},
-		{"duplicate column", "a,b,a,y\n1,2,3,4\n", FitOptions{Label: "y"},
+		{"duplicate column", "a,b,a,y\n1,2,3,4\n", Options{Label: "y"},
 			`fit: FILE:1: column "a": appears twice in the header`},
-		{"unnamed column", "a,,y\n1,2,3\n", FitOptions{Label: "y"},
+		{"unnamed column", "a,,y\n1,2,3\n", Options{Label: "y"},
 			`fit: FILE:1: column 2 has no name`},
-		{"no feature", "id,y\nu1,2\nu2,3\n", FitOptions{Label: "y"},
+		{"no feature", "id,y\nu1,2\nu2,3\n", Options{Label: "y"},
 			`fit: FILE: no numeric feature columns besides the label "y"`},
-		{"no input", "-", FitOptions{Label: "y"}, `fit: no input file (--input)`},
-		{"no label", "a,y\n1,2\n", FitOptions{}, `fit: no label column (--label)`},
-		{"no such file", "-", FitOptions{Input: "/nonexistent/x.csv", Label: "y"},
+		{"no input", "-", Options{Label: "y"}, `fit: no input file (--input)`},
+		{"no label", "a,y\n1,2\n", Options{}, `fit: no label column (--label)`},
+		{"no such file", "-", Options{Input: "/nonexistent/x.csv", Label: "y"},
 			`fit: open /nonexistent/x.csv: no such file or directory`},
-		{"unknown loss", "a,y\n1,2\n", FitOptions{Label: "y", Loss: "hinge"},
+		{"unknown loss", "a,y\n1,2\n", Options{Label: "y", Loss: "hinge"},
 			`fit: unknown loss "hinge" (allowed: squared, logistic)`},
-		{"unknown penalty", "a,y\n1,2\n", FitOptions{Label: "y", Penalty: "l1"},
+		{"unknown penalty", "a,y\n1,2\n", Options{Label: "y", Penalty: "l1"},
 			`fit: unknown penalty "l1" (allowed: lasso, ridge, elastic-net)`},
-		{"mix on lasso", "a,y\n1,2\n", FitOptions{Label: "y", Mix: 0.3},
+		{"mix on lasso", "a,y\n1,2\n", Options{Label: "y", Mix: 0.3},
 			`fit: --mix applies only to elastic-net, not lasso`},
-		{"mix out of range", "a,y\n1,2\n", FitOptions{Label: "y", Penalty: "elastic-net", Mix: 1.5},
+		{"mix out of range", "a,y\n1,2\n", Options{Label: "y", Penalty: "elastic-net", Mix: 1.5},
 			`fit: elastic-net mix 1.5 must be in (0, 1)`},
-		{"negative lambda", "a,y\n1,2\n", FitOptions{Label: "y", Lambda: -1},
+		{"negative lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: -1},
 			`fit: lambda -1 must be a finite number >= 0 (0 = choose on held-out rows)`},
-		{"NaN lambda", "a,y\n1,2\n", FitOptions{Label: "y", Lambda: math.NaN()},
+		{"NaN lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: math.NaN()},
 			`fit: lambda NaN must be a finite number >= 0 (0 = choose on held-out rows)`},
-		{"ladder with lambda", "a,y\n1,2\n", FitOptions{Label: "y", Lambda: 1, Ladder: true},
+		{"ladder with lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: 1, Ladder: true},
 			`fit: --ladder shows how λ is chosen; it cannot be combined with --lambda`},
-		{"unknown rule", "a,y\n1,2\n", FitOptions{Label: "y", Rule: "best"},
+		{"unknown rule", "a,y\n1,2\n", Options{Label: "y", Rule: "best"},
 			`fit: unknown rule "best" (allowed: one-se, min)`},
-		{"constant label", "a,y\n1,2\n2,2\n3,2\n", FitOptions{Label: "y"},
+		{"constant label", "a,y\n1,2\n2,2\n3,2\n", Options{Label: "y"},
 			`fit: FILE: cannot choose λ: the label does not vary; give --lambda`},
 	}
 	for _, tt := range tests {
@@ -84,7 +84,7 @@ func TestFitErrors(t *testing.T) {
 				o.Input = writeCSV(t, tt.csv)
 			}
 			var out bytes.Buffer
-			err := Fit(&out, o)
+			err := Run(&out, o)
 			if err == nil {
 				t.Fatalf("no error; output:\n%s", out.String())
 			}
@@ -92,9 +92,9 @@ func TestFitErrors(t *testing.T) {
 			if err.Error() != want {
 				t.Errorf("error\n got %s\nwant %s", err, want)
 			}
-			var fe *FitError
+			var fe *Error
 			if !errors.As(err, &fe) {
-				t.Errorf("error %T is not a *FitError", err)
+				t.Errorf("error %T is not a *Error", err)
 			}
 			if strings.Contains(err.Error(), "\n") {
 				t.Errorf("error is not one line: %q", err)
@@ -106,12 +106,12 @@ func TestFitErrors(t *testing.T) {
 	}
 }
 
-// fitJSON runs Fit with JSON output and decodes the document.
-func fitJSON(t *testing.T, o FitOptions) *fitDoc {
+// fitJSON runs Run with JSON output and decodes the document.
+func fitJSON(t *testing.T, o Options) *fitDoc {
 	t.Helper()
 	o.JSON = true
 	var out bytes.Buffer
-	if err := Fit(&out, o); err != nil {
+	if err := Run(&out, o); err != nil {
 		t.Fatal(err)
 	}
 	var d fitDoc
@@ -138,13 +138,13 @@ type reference struct {
 	} `json:"cases"`
 }
 
-// TestFitReference fits one reference case per dataset through Fit and
+// TestFitReference fits one reference case per dataset through Run and
 // compares with testdata/reference.json (scikit-learn 1.2.1, Debian 12:
 // ElasticNet for diabetes, LogisticRegression saga for wdbc; see
 // testdata/README.md). The full set of cases is checked on the Ladder itself
 // in online/reference_test.go.
 func TestFitReference(t *testing.T) {
-	b, err := os.ReadFile("../testdata/reference.json")
+	b, err := os.ReadFile("../../testdata/reference.json")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,7 +172,7 @@ func TestFitReference(t *testing.T) {
 				t.Fatal("case not in reference.json")
 			}
 			c := ref.Cases[i]
-			d := fitJSON(t, FitOptions{Input: "../testdata/" + tt.file, Label: tt.label, Loss: tt.loss,
+			d := fitJSON(t, Options{Input: "../../testdata/" + tt.file, Label: tt.label, Loss: tt.loss,
 				Penalty: tt.penalty, Mix: tt.mix, Lambda: c.Lambda})
 			if !d.Converged || d.KKT > d.Tol {
 				t.Errorf("not converged: KKT %g, tol %g", d.KKT, d.Tol)
@@ -210,7 +210,7 @@ func TestFitReference(t *testing.T) {
 func TestFitInput(t *testing.T) {
 	p := writeCSV(t, "\ufeffid, a ,b,y\n"+
 		"u1,1,NA,false\nu2,2,0.5,true\nu3,3,,0\nu4,4,1.5,1\nu5,1,0.2,0\nu6,5,1,1\n")
-	d := fitJSON(t, FitOptions{Input: p, Label: "y", Loss: "logistic", Penalty: "ridge", Lambda: 0.1})
+	d := fitJSON(t, Options{Input: p, Label: "y", Loss: "logistic", Penalty: "ridge", Lambda: 0.1})
 	if strings.Join(d.Features, ",") != "a,b" || strings.Join(d.Skipped, ",") != "id" {
 		t.Errorf("features %q skipped %q; want [a b] [id]", d.Features, d.Skipped)
 	}
@@ -228,7 +228,7 @@ func TestFitInput(t *testing.T) {
 // strong drivers of the trip are in the support, noise channels are not,
 // and the ladder marks exactly one member.
 func TestFitChoose(t *testing.T) {
-	d := fitJSON(t, FitOptions{Input: "../testdata/demo-pump.csv", Label: "trip", Loss: "logistic", Ladder: true})
+	d := fitJSON(t, Options{Input: "../../testdata/demo-pump.csv", Label: "trip", Loss: "logistic", Ladder: true})
 	// make_demo_pump.go drives the trip with vibration, bearing temperature,
 	// suction pressure (strongly) and motor current (weakly); oil level and
 	// ambient temperature are pure noise.
@@ -266,13 +266,13 @@ func TestFitChoose(t *testing.T) {
 	}
 }
 
-// ExampleFit fits the lasso at one λ on the diabetes data of Efron et al.
+// ExampleRun fits the lasso at one λ on the diabetes data of Efron et al.
 // (2004) and prints the nonzero coefficients. The standardized column and
 // the intercept agree to the digits shown with scikit-learn 1.2.1 (Debian 12)
 // Lasso(alpha=4.5, tol=1e-12) on the same data standardized with ddof 0.
-func ExampleFit() {
-	err := Fit(os.Stdout, FitOptions{
-		Input:  "../testdata/diabetes.csv",
+func ExampleRun() {
+	err := Run(os.Stdout, Options{
+		Input:  "../../testdata/diabetes.csv",
 		Label:  "progression",
 		Lambda: 4.5,
 	})
@@ -280,7 +280,7 @@ func ExampleFit() {
 		panic(err)
 	}
 	// Output:
-	// input    ../testdata/diabetes.csv (442 records, 10 features, label progression)
+	// input    ../../testdata/diabetes.csv (442 records, 10 features, label progression)
 	// model    squared loss, lasso (α = 1), λ = 4.5, λ_max = 45.16
 	// KKT      ≤ 1e-09 (converged)
 	// nonzero  5 of 10
@@ -300,21 +300,21 @@ func ExampleFit() {
 func TestFitOutput(t *testing.T) {
 	tests := []struct {
 		name string
-		opt  FitOptions
+		opt  Options
 		want []string // substrings, in order
 	}{
-		{"ladder", FitOptions{Input: "../testdata/diabetes.csv", Label: "progression", Ladder: true},
+		{"ladder", Options{Input: "../../testdata/diabetes.csv", Label: "progression", Ladder: true},
 			[]string{"λ chosen  rule one-se on 88 held-out rows (1 in 5)", "KKT       ≤ 1e-09 (converged)",
 				"ladder on 354 training rows", "index  lambda", "<- one-se"}},
-		{"min rule", FitOptions{Input: "../testdata/diabetes.csv", Label: "progression", Rule: "min", Ladder: true},
+		{"min rule", Options{Input: "../../testdata/diabetes.csv", Label: "progression", Rule: "min", Ladder: true},
 			[]string{"λ chosen  rule min", "<- min"}},
-		{"few rows", FitOptions{Input: writeCSV(t, "a,b,y\n1,0,1\n2,1,3\n3,0,2\n4,1,5\n5,1,4\n6,0,7\n"), Label: "y"},
+		{"few rows", Options{Input: writeCSV(t, "a,b,y\n1,0,1\n2,1,3\n3,0,2\n4,1,5\n5,1,4\n6,0,7\n"), Label: "y"},
 			[]string{"λ chosen  0.01·λ_max (too few rows to hold any out)"}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			var out bytes.Buffer
-			if err := Fit(&out, tt.opt); err != nil {
+			if err := Run(&out, tt.opt); err != nil {
 				t.Fatal(err)
 			}
 			s := out.String()
@@ -336,7 +336,7 @@ func TestFitOutput(t *testing.T) {
 			}
 		})
 	}
-	d := fitJSON(t, FitOptions{Input: writeCSV(t, "a,b,y\n1,0,1\n2,1,3\n3,0,2\n4,1,5\n5,1,4\n6,0,7\n"), Label: "y"})
+	d := fitJSON(t, Options{Input: writeCSV(t, "a,b,y\n1,0,1\n2,1,3\n3,0,2\n4,1,5\n5,1,4\n6,0,7\n"), Label: "y"})
 	if d.Selection == nil || d.Selection.Rule != "fraction" || math.Abs(d.Penalty.Lambda-0.01*d.Selection.LambdaMax) > 1e-15 {
 		t.Errorf("few rows: selection %+v, λ %g; want λ = 0.01·λ_max", d.Selection, d.Penalty.Lambda)
 	}

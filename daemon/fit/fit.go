@@ -1,9 +1,7 @@
-package daemon
+package fit
 
-// This file is the batch side of the daemon: `lariat fit` reads one CSV file,
-// makes the whole file the window and runs the same learner the daemon runs
-// on a stream (online.Ladder) until its KKT conditions hold. Reading and
-// checking the CSV file is in fit_csv.go.
+// This file resolves the options, fits and writes the model; reading and
+// checking the CSV file is in csv.go.
 
 import (
 	"bytes"
@@ -24,20 +22,20 @@ import (
 
 // Fit defaults.
 const (
-	// DefaultFitTol is the KKT tolerance Fit converges to when
-	// FitOptions.Tol is 0: the largest violation of the optimality
+	// DefaultTol is the KKT tolerance Run converges to when
+	// Options.Tol is 0: the largest violation of the optimality
 	// conditions, on the standardized scale, in units of the loss's
 	// derivative (label units for the squared loss).
-	DefaultFitTol = 1e-9
-	// DefaultFitEpochs is the epoch budget of Fit when FitOptions.MaxEpochs
+	DefaultTol = 1e-9
+	// DefaultEpochs is the epoch budget of Run when Options.MaxEpochs
 	// is 0; an epoch is one pass's worth of steps per ladder member.
-	DefaultFitEpochs = 20000
-	// DefaultFitMix is the elastic-net mix α when FitOptions.Mix is 0.
-	DefaultFitMix = 0.5
+	DefaultEpochs = 20000
+	// DefaultMix is the elastic-net mix α when Options.Mix is 0.
+	DefaultMix = 0.5
 )
 
-// FitOptions configures Fit. Only Input and Label are required.
-type FitOptions struct {
+// Options configures Run. Only Input and Label are required.
+type Options struct {
 	// Input is the CSV file: one header row of column names, then one
 	// record per row.
 	Input string
@@ -49,7 +47,7 @@ type FitOptions struct {
 	Loss string
 	// Penalty is "lasso" (default), "ridge" or "elastic-net".
 	Penalty string
-	// Mix is the elastic-net mix α in (0, 1); 0 means DefaultFitMix. It
+	// Mix is the elastic-net mix α in (0, 1); 0 means DefaultMix. It
 	// must be 0 for lasso and ridge.
 	Mix float64
 	// Lambda > 0 fits that λ. 0 chooses λ on held-out rows: every 5th row
@@ -65,18 +63,18 @@ type FitOptions struct {
 	// Ladder also writes the selection ladder (λ, support size and
 	// held-out loss of every member). It needs Lambda == 0.
 	Ladder bool
-	// Tol is the KKT tolerance; 0 means DefaultFitTol.
+	// Tol is the KKT tolerance; 0 means DefaultTol.
 	Tol float64
-	// MaxEpochs bounds the work; 0 means DefaultFitEpochs.
+	// MaxEpochs bounds the work; 0 means DefaultEpochs.
 	MaxEpochs int
 	// Seed seeds the learner; the same file and options give the same bits.
 	Seed uint64
 }
 
-// FitError is a problem with Fit's input or options. Its message is one line:
+// Error is a problem with Run's input or options. Its message is one line:
 // "fit: FILE:LINE: column "x": what is wrong", with the parts that do not
 // apply left out.
-type FitError struct {
+type Error struct {
 	File   string // input file, if the error is about it
 	Line   int    // 1-based line in the file (the header is line 1); 0 if none
 	Column string // column name; "" if none
@@ -84,7 +82,7 @@ type FitError struct {
 }
 
 // Error returns the one-line message.
-func (e *FitError) Error() string {
+func (e *Error) Error() string {
 	var b strings.Builder
 	b.WriteString("fit: ")
 	if e.File != "" {
@@ -102,10 +100,10 @@ func (e *FitError) Error() string {
 }
 
 func optionError(format string, args ...any) error {
-	return &FitError{Msg: fmt.Sprintf(format, args...)}
+	return &Error{Msg: fmt.Sprintf(format, args...)}
 }
 
-// fitSpec is FitOptions checked and resolved.
+// fitSpec is Options checked and resolved.
 type fitSpec struct {
 	loss      online.Loss
 	penalty   online.Penalty
@@ -114,7 +112,7 @@ type fitSpec struct {
 	maxEpochs int
 }
 
-func (o *FitOptions) resolve() (fitSpec, error) {
+func (o *Options) resolve() (fitSpec, error) {
 	s := fitSpec{tol: o.Tol, maxEpochs: o.MaxEpochs}
 	if o.Input == "" {
 		return s, optionError("no input file (--input)")
@@ -144,15 +142,15 @@ func (o *FitOptions) resolve() (fitSpec, error) {
 		return s, optionError("tolerance %v must be a finite number >= 0", o.Tol)
 	}
 	if s.tol == 0 {
-		s.tol = DefaultFitTol
+		s.tol = DefaultTol
 	}
 	if s.maxEpochs <= 0 {
-		s.maxEpochs = DefaultFitEpochs
+		s.maxEpochs = DefaultEpochs
 	}
 	return s, nil
 }
 
-func (o *FitOptions) resolvePenalty() (online.Penalty, error) {
+func (o *Options) resolvePenalty() (online.Penalty, error) {
 	switch kind := orDefault(o.Penalty, "lasso"); kind {
 	case "lasso", "ridge":
 		if o.Mix != 0 {
@@ -165,7 +163,7 @@ func (o *FitOptions) resolvePenalty() (online.Penalty, error) {
 	case "elastic-net":
 		mix := o.Mix
 		if mix == 0 {
-			mix = DefaultFitMix
+			mix = DefaultMix
 		}
 		if !(mix > 0 && mix < 1) {
 			return online.Penalty{}, optionError("elastic-net mix %v must be in (0, 1)", o.Mix)
@@ -182,7 +180,7 @@ func orDefault(s, def string) string {
 	return s
 }
 
-// fitDoc is Fit's JSON document. Its field names follow the model document
+// fitDoc is Run's JSON document. Its field names follow the model document
 // the daemon publishes (sink.ModelDoc) where the two overlap.
 type fitDoc struct {
 	Input        string                `json:"input"`
@@ -236,13 +234,13 @@ type fitRung struct {
 	Chosen  bool    `json:"chosen,omitempty"`
 }
 
-// Fit reads the CSV file o.Input, fits one penalized model with the learner
+// Run reads the CSV file o.Input, fits one penalized model with the learner
 // the daemon runs on streams (online.Ladder), the whole file being the
 // window, until every KKT violation is at most the tolerance (or the epoch
 // budget runs out, reported as "converged": false), and writes the model to
 // w as a table or, with o.JSON, as JSON. Bad input or options give a
-// *FitError and write nothing.
-func Fit(w io.Writer, o FitOptions) error {
+// *Error and write nothing.
+func Run(w io.Writer, o Options) error {
 	s, err := o.resolve()
 	if err != nil {
 		return err
@@ -293,7 +291,7 @@ func (s *fitSpec) add(t *table, l *online.Ladder, h *online.Holdout, held func(i
 			err = l.Add(r)
 		}
 		if err != nil {
-			return &FitError{Msg: fmt.Sprintf("line %d: %v", t.lines[i], err)}
+			return &Error{Msg: fmt.Sprintf("line %d: %v", t.lines[i], err)}
 		}
 	}
 	return nil
@@ -303,7 +301,7 @@ func (s *fitSpec) add(t *table, l *online.Ladder, h *online.Holdout, held func(i
 func (s *fitSpec) fitOne(t *table, lambda float64, seed uint64, doc *fitDoc) error {
 	l, err := online.NewLadder(s.options(t, t.rows(), lambda, seed))
 	if err != nil {
-		return &FitError{Msg: err.Error()}
+		return &Error{Msg: err.Error()}
 	}
 	if err := s.add(t, l, nil, nil); err != nil {
 		return err
@@ -339,9 +337,9 @@ func (d *fitDoc) fill(m online.Model, names []string) {
 	})
 }
 
-// choose picks λ on held-out rows (see FitOptions.Lambda) and records the
+// choose picks λ on held-out rows (see Options.Lambda) and records the
 // selection, and with o.Ladder the whole ladder, in doc.
-func (s *fitSpec) choose(t *table, o FitOptions, doc *fitDoc) (float64, error) {
+func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
 	split := window.Splitter{}
 	every := split.Period()
 	held := func(i int) bool { return split.Holdout(uint64(i), nil) }
@@ -353,7 +351,7 @@ func (s *fitSpec) choose(t *table, o FitOptions, doc *fitDoc) (float64, error) {
 	}
 	l, err := online.NewLadder(s.options(t, nTrain, 0, o.Seed))
 	if err != nil {
-		return 0, &FitError{Msg: err.Error()}
+		return 0, &Error{Msg: err.Error()}
 	}
 	h := online.NewHoldout(len(t.names), nHold)
 	if err := s.add(t, l, h, held); err != nil {
@@ -367,7 +365,7 @@ func (s *fitSpec) choose(t *table, o FitOptions, doc *fitDoc) (float64, error) {
 	}
 	c := scores[pick]
 	if !(c.Lambda > 0) {
-		return 0, &FitError{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
+		return 0, &Error{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
 	}
 	doc.Selection = &fitSelection{Rule: s.rule.String(), Every: every, Train: l.Len(), Holdout: h.Len(),
 		Index: c.Index, Loss: c.Loss, SE: c.SE, Lambda: c.Lambda, LambdaMax: l.LambdaMax(), AtEnd: c.Index == l.Size()-1}
@@ -386,7 +384,7 @@ const fitFraction = 0.01
 func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, error) {
 	l, err := online.NewLadder(s.options(t, t.rows(), 0, seed))
 	if err != nil {
-		return 0, &FitError{Msg: err.Error()}
+		return 0, &Error{Msg: err.Error()}
 	}
 	if err := s.add(t, l, nil, nil); err != nil {
 		return 0, err
@@ -394,7 +392,7 @@ func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, e
 	lambda := fitFraction * l.LambdaMax()
 	doc.Selection = &fitSelection{Rule: "fraction", Train: t.rows(), Index: -1, Lambda: lambda, LambdaMax: l.LambdaMax()}
 	if !(lambda > 0) {
-		return 0, &FitError{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
+		return 0, &Error{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
 	}
 	return lambda, nil
 }

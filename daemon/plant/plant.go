@@ -1,4 +1,4 @@
-package daemon
+package plant
 
 // The simulated plant below is invented for the demo: the machines, channel
 // names, coefficients and the fault are made up to exercise the daemon and
@@ -11,11 +11,13 @@ import (
 	"math/rand/v2"
 	"strconv"
 	"time"
+
+	"lariat/daemon/record"
 )
 
-// PlantOptions configures a simulated plant; the zero value gives the defaults
+// Options configures a simulated plant; the zero value gives the defaults
 // shown.
-type PlantOptions struct {
+type Options struct {
 	// Pumps is the number of machines; default 4.
 	Pumps int
 	// Rate is records per second over all pumps and both streams; default 200.
@@ -48,9 +50,9 @@ type Publisher interface {
 	Publish(subject string, data []byte) error
 }
 
-// plantChannels is the number of channels per pump: 14 named process channels
+// channels is the number of channels per pump: 14 named process channels
 // and auxiliary channels that carry no information about either target.
-const plantChannels = 40
+const channels = 40
 
 var processChannels = [...]string{
 	"suction_kpa", "discharge_kpa", "flow_m3h", "amps_l1", "amps_l2", "amps_l3",
@@ -66,7 +68,7 @@ var processChannels = [...]string{
 // ScoreSubject is set. It is invented (see the comment at the top of the
 // file).
 type Plant struct {
-	o     PlantOptions
+	o     Options
 	rng   *rand.Rand
 	names []string
 	pumps []pumpState
@@ -74,11 +76,14 @@ type Plant struct {
 	k     uint64 // labeled records emitted
 	score int    // pump whose unlabeled reading is due next, or −1
 	start time.Time
-	buf   []byte
+	rec   record.Record // the record being encoded; X has one value per channel
+	buf   []byte        // the encoded record, reused by the next call
+	num   []byte        // scratch for round
 }
 
 type pumpState struct {
 	id        string
+	key       []byte  // id, as the record's key
 	load      float64 // latent load in [0, 1], AR(1)
 	ambient   float64
 	aux       []float64 // AR(1) noise channels
@@ -88,9 +93,9 @@ type pumpState struct {
 	scoreSubj string
 }
 
-// NewPlant returns a plant whose clock starts at start.
-func NewPlant(o *PlantOptions, start time.Time) *Plant {
-	var opt PlantOptions
+// New returns a plant whose clock starts at start.
+func New(o *Options, start time.Time) *Plant {
+	var opt Options
 	if o != nil {
 		opt = *o
 	}
@@ -113,16 +118,17 @@ func NewPlant(o *PlantOptions, start time.Time) *Plant {
 		opt.TempSubject = func(p string) string { return "plant.pump." + p + ".bearing" }
 	}
 	p := &Plant{o: opt, rng: rand.New(rand.NewPCG(opt.Seed, 0x706c616e74)), start: start, score: -1}
+	p.rec.X = make([]float64, channels)
 	p.names = append(p.names, processChannels[:]...)
-	for i := len(processChannels); i < plantChannels; i++ {
+	for i := len(processChannels); i < channels; i++ {
 		p.names = append(p.names, fmt.Sprintf("aux_%02d", i-len(processChannels)+1))
 	}
 	for i := range opt.Pumps {
 		id := fmt.Sprintf("p%d", i+1)
 		ps := pumpState{
-			id: id, load: 0.6, ambient: 18 + 4*p.rng.Float64(),
-			aux:      make([]float64, plantChannels-len(processChannels)),
-			x:        make([]float64, plantChannels),
+			id: id, key: []byte(id), load: 0.6, ambient: 18 + 4*p.rng.Float64(),
+			aux:      make([]float64, channels-len(processChannels)),
+			x:        make([]float64, channels),
 			tripSubj: opt.TripSubject(id), tempSubj: opt.TempSubject(id),
 		}
 		if opt.ScoreSubject != nil {
@@ -134,7 +140,7 @@ func NewPlant(o *PlantOptions, start time.Time) *Plant {
 }
 
 // Options returns the plant's options with defaults filled in.
-func (p *Plant) Options() PlantOptions { return p.o }
+func (p *Plant) Options() Options { return p.o }
 
 // Channels returns the channel names in the order they are written.
 func (p *Plant) Channels() []string { return p.names }
@@ -230,32 +236,34 @@ func (p *Plant) tripLabel(ps *pumpState) float64 {
 	return 0
 }
 
-// encode writes the record format of the design: named x, t in Unix ms,
-// key, and y unless it is NaN (an unlabeled reading).
+// encode writes the record of pump ps with label y (NaN: an unlabeled
+// reading) at time t with record.AppendJSON, the one encoder of the wire
+// format, into the plant's reused buffer. The values are rounded first,
+// channels to 3 decimals and labels to 6 significant digits, so the records
+// read as the short, fixed-precision readings the demo has always sent.
 func (p *Plant) encode(ps *pumpState, y float64, t time.Time) []byte {
-	b := p.buf[:0]
-	b = append(b, `{"t":`...)
-	b = strconv.AppendInt(b, t.UnixMilli(), 10)
-	b = append(b, `,"key":"`...)
-	b = append(b, ps.id...)
-	b = append(b, '"')
+	r := &p.rec
+	for k, v := range ps.x {
+		r.X[k] = p.round(v, 'f', 3)
+	}
+	r.Y = y
 	if !math.IsNaN(y) {
-		b = append(b, `,"y":`...)
-		b = strconv.AppendFloat(b, y, 'g', 6, 64)
+		r.Y = p.round(y, 'g', 6)
 	}
-	b = append(b, `,"x":{`...)
-	for k, name := range p.names {
-		if k > 0 {
-			b = append(b, ',')
-		}
-		b = append(b, '"')
-		b = append(b, name...)
-		b = append(b, `":`...)
-		b = strconv.AppendFloat(b, ps.x[k], 'f', 3, 64)
+	r.T, r.HasT, r.Key = t.UnixMilli(), true, ps.key
+	p.buf = record.AppendJSON(p.buf[:0], p.names, r)
+	return p.buf
+}
+
+// round returns the number v reads as when written with strconv's format
+// and precision.
+func (p *Plant) round(v float64, format byte, prec int) float64 {
+	p.num = strconv.AppendFloat(p.num[:0], v, format, prec, 64)
+	r, err := strconv.ParseFloat(string(p.num), 64)
+	if err != nil {
+		panic("plant: " + err.Error()) // the plant's values are finite
 	}
-	b = append(b, "}}"...)
-	p.buf = b
-	return b
+	return r
 }
 
 // Run publishes records at the plant's rate until ctx is done and returns the
@@ -276,7 +284,7 @@ func (p *Plant) Run(ctx context.Context, pub Publisher) (uint64, error) {
 			for sent < due {
 				subj, msg := p.Next()
 				if err := pub.Publish(subj, msg); err != nil {
-					return sent, fmt.Errorf("daemon: plant publish: %w", err)
+					return sent, fmt.Errorf("plant: publish: %w", err)
 				}
 				sent++
 			}

@@ -1,0 +1,167 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"net/http"
+	"strings"
+	"testing"
+	"time"
+
+	"lariat/sink"
+)
+
+// TestRunDemo runs the demo for a few seconds on random ports and checks the
+// banner and the summary.
+func TestRunDemo(t *testing.T) {
+	if testing.Short() {
+		t.Skip("demo: a few seconds")
+	}
+	var out bytes.Buffer
+	err := runDemo(context.Background(), demoOptions{
+		Duration: 4 * time.Second, Rate: 400, FaultAfter: -1, Out: &out,
+		Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: "127.0.0.1:0",
+	})
+	if err != nil {
+		t.Fatalf("runDemo: %v\n%s", err, out.String())
+	}
+	s := out.String()
+	for _, want := range []string{"INVENTED", "lariat pull pump-trip --from http://127.0.0.1:", "pump-trip", "bearing-temp", "version"} {
+		if !strings.Contains(s, want) {
+			t.Errorf("output lacks %q:\n%s", want, s)
+		}
+	}
+}
+
+func TestSubjectFor(t *testing.T) {
+	for _, tc := range []struct{ pattern, want string }{
+		{"plant.demo.pump.trip", "plant.demo.pump.trip"},
+		{"plant.*.trip", "plant.p3.trip"},
+		{"plant.pump.>", "plant.pump.p3"},
+	} {
+		if got := subjectFor(tc.pattern)("p3"); got != tc.want {
+			t.Errorf("%s: %s, want %s", tc.pattern, got, tc.want)
+		}
+	}
+}
+
+// TestDemoPredict runs the demo and checks predict calls against the
+// daemon's Predictor, which decodes with package record (the one decoder of
+// the wire format): the named form "x" and the array form "v" (in the
+// document's feature order) give the answer of sink.Predict on the
+// published document, and bodies the decoder rejects answer 400 with its
+// reason.
+func TestDemoPredict(t *testing.T) {
+	if testing.Short() {
+		t.Skip("demo: a few seconds")
+	}
+	addr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	done := make(chan error, 1)
+	go func() { // joined below
+		done <- runDemo(ctx, demoOptions{Duration: time.Minute, Rate: 400, FaultAfter: -1,
+			Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: addr})
+	}()
+	url := "http://" + addr + "/v1/models/pump-trip"
+	deadline := time.Now().Add(30 * time.Second)
+	for {
+		err := checkDemoPredict(t, url)
+		if err == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal(err)
+		}
+		select {
+		case err := <-done:
+			t.Fatalf("demo stopped early: %v", err)
+		case <-time.After(50 * time.Millisecond):
+		}
+	}
+	for _, tc := range []struct{ body, want string }{
+		{`{"v":[1,2]}`, `record: dimension: \"v\" has 2 values`},
+		{`{"x":{"vib_x_mms":"hot"}}`, "record: type"},
+		{`{"x":{},"v":[]}`, "record: malformed"},
+		{`{"x":`, "record: malformed"},
+	} {
+		code, body, err := post(url+"/predict", []byte(tc.body))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if code != http.StatusBadRequest || !strings.Contains(string(body), tc.want) {
+			t.Errorf("%s: %d %s, want 400 with %s", tc.body, code, body, tc.want)
+		}
+	}
+	cancel()
+	if err := <-done; err != nil {
+		t.Errorf("demo: %v", err)
+	}
+}
+
+// checkDemoPredict fetches the published document at url, predicts one
+// record in the named and the array form and compares both with
+// sink.Predict on the document, failing t on a difference. An error means
+// "not yet": no version, or a new version between the calls.
+func checkDemoPredict(t *testing.T, url string) error {
+	t.Helper()
+	resp, err := http.Get(url)
+	if err != nil {
+		return err
+	}
+	b, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK {
+		return fmt.Errorf("GET %s: %s: %s", url, resp.Status, b)
+	}
+	var doc sink.ModelDoc
+	if err := json.Unmarshal(b, &doc); err != nil {
+		return err
+	}
+	x := make(map[string]float64, len(doc.Features))
+	v := make([]float64, len(doc.Features))
+	for j, name := range doc.Features {
+		sc := doc.Scale[name]
+		v[j] = sc.Mean + 0.5*sc.Std*float64(j%3-1)
+		x[name] = v[j]
+	}
+	want, err := sink.Predict(&doc, x)
+	if err != nil {
+		return err
+	}
+	for _, form := range []any{map[string]any{"x": x}, map[string]any{"v": v}} {
+		body, _ := json.Marshal(form)
+		code, out, err := post(url+"/predict", body)
+		if err != nil || code != http.StatusOK {
+			return fmt.Errorf("predict %s: %d %s %v", body, code, out, err)
+		}
+		var got sink.Prediction
+		if err := json.Unmarshal(out, &got); err != nil {
+			return err
+		}
+		if got.Version != doc.Version {
+			return fmt.Errorf("versions %d and %d: retry", got.Version, doc.Version)
+		}
+		if math.Abs(got.Eta-want.Eta) > 1e-9*math.Max(1, math.Abs(want.Eta)) ||
+			len(got.Contributions) != len(want.Contributions) ||
+			got.Probability == nil || math.Abs(*got.Probability-*want.Probability) > 1e-9 {
+			t.Fatalf("predict %s: %+v, sink.Predict says %+v", body, got, want)
+		}
+	}
+	return nil
+}
+
+// post sends body to url and returns the status and the answer.
+func post(url string, body []byte) (int, []byte, error) {
+	resp, err := http.Post(url, "application/json", bytes.NewReader(body))
+	if err != nil {
+		return 0, nil, err
+	}
+	defer resp.Body.Close()
+	b, err := io.ReadAll(resp.Body)
+	return resp.StatusCode, b, err
+}
