@@ -14,7 +14,11 @@ import (
 	"strconv"
 	"strings"
 	"text/tabwriter"
+	"time"
 
+	"lariat/config"
+	"lariat/daemon/pipeline"
+	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
 	"lariat/window"
@@ -67,7 +71,8 @@ type Options struct {
 	Tol float64
 	// MaxEpochs bounds the work; 0 means DefaultEpochs.
 	MaxEpochs int
-	// Seed seeds the learner; the same file and options give the same bits.
+	// Seed seeds the learner (0: a fixed seed derived from the name "fit");
+	// the same file and options give the same bits.
 	Seed uint64
 }
 
@@ -235,7 +240,7 @@ type fitRung struct {
 }
 
 // Run reads the CSV file o.Input, fits one penalized model with the learner
-// the daemon runs on streams (online.Ladder), the whole file being the
+// the daemon runs on streams (pipeline.Pipeline), the whole file being the
 // window, until every KKT violation is at most the tolerance (or the epoch
 // budget runs out, reported as "converged": false), and writes the model to
 // w as a table or, with o.JSON, as JSON. Bad input or options give a
@@ -267,30 +272,33 @@ func Run(w io.Writer, o Options) error {
 	return writeFitTable(w, doc)
 }
 
-func (s *fitSpec) options(t *table, window int, lambda float64, seed uint64) *online.Options {
-	p := s.penalty
-	return &online.Options{
-		Loss:     s.loss,
-		Penalty:  &p,
-		Features: len(t.names),
-		Window:   window,
-		Lambda:   lambda,
-		Seed:     seed,
+// pipeline returns the pipeline lariat fit drives: the daemon's per-model
+// pipeline on the table's columns, with a window of window rows, λ fixed
+// (lambda > 0) or a ladder, every every-th row held out into a ring of
+// hold rows (every = 0: none), no drift watch and no retune but the one
+// fit asks for.
+func (s *fitSpec) pipeline(t *table, window int, lambda float64, every, hold int, seed uint64) (*pipeline.Pipeline, error) {
+	m := config.DefaultModel()
+	m.Name, m.Loss, m.Lambda = "fit", s.loss.Name(), lambda
+	m.Penalty, m.Mix = config.PenaltyElasticNet, s.penalty.Mix
+	m.Features, m.MaxFeatures = t.names, len(t.names)
+	m.Window.Records = window
+	m.Holdout = config.Holdout{Every: every, Records: hold}
+	m.Retune.Every = math.MaxInt32
+	m.Drift.Performance = config.DriftOff
+	p, err := pipeline.New(pipeline.Options{Model: &m, Seed: seed})
+	if err != nil {
+		return nil, &Error{Msg: err.Error()}
 	}
+	return p, nil
 }
 
-// add feeds the rows with held(i) to h and the others to l; with h == nil
-// every row goes to l.
-func (s *fitSpec) add(t *table, l *online.Ladder, h *online.Holdout, held func(int) bool) error {
+// feed applies every row to p, in file order.
+func (s *fitSpec) feed(t *table, p *pipeline.Pipeline) error {
+	var rec record.Record
 	for i := range t.rows() {
-		r := online.Record{X: t.row(i), Y: t.y[i]}
-		var err error
-		if h != nil && held(i) {
-			err = h.Add(r)
-		} else {
-			err = l.Add(r)
-		}
-		if err != nil {
+		rec.X, rec.Y, rec.W = t.row(i), t.y[i], 1
+		if _, err := p.Apply(&rec, t.names, time.Time{}); err != nil {
 			return &Error{Msg: fmt.Sprintf("line %d: %v", t.lines[i], err)}
 		}
 	}
@@ -299,14 +307,15 @@ func (s *fitSpec) add(t *table, l *online.Ladder, h *online.Holdout, held func(i
 
 // fitOne fits λ on every row and fills the model part of doc.
 func (s *fitSpec) fitOne(t *table, lambda float64, seed uint64, doc *fitDoc) error {
-	l, err := online.NewLadder(s.options(t, t.rows(), lambda, seed))
+	p, err := s.pipeline(t, t.rows(), lambda, 0, 0, seed)
 	if err != nil {
-		return &Error{Msg: err.Error()}
-	}
-	if err := s.add(t, l, nil, nil); err != nil {
 		return err
 	}
-	doc.Converged = l.Converge(s.tol, s.maxEpochs)
+	if err := s.feed(t, p); err != nil {
+		return err
+	}
+	l := p.Ladder()
+	doc.Converged = p.Converge(s.tol, s.maxEpochs)
 	doc.KKT, doc.Tol = l.KKT(0), s.tol
 	doc.LambdaMax = l.LambdaMax()
 	doc.fill(l.Model(0), t.names)
@@ -340,25 +349,23 @@ func (d *fitDoc) fill(m online.Model, names []string) {
 // choose picks λ on held-out rows (see Options.Lambda) and records the
 // selection, and with o.Ladder the whole ladder, in doc.
 func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
-	split := window.Splitter{}
-	every := split.Period()
-	held := func(i int) bool { return split.Holdout(uint64(i), nil) }
+	every := window.Splitter{}.Period()
 	nHold := t.rows() / every
 	nTrain := t.rows() - nHold
 	if nHold < 2 {
 		// Too few rows to hold any out: a fixed fraction of λ_max.
 		return s.chooseFraction(t, o.Seed, doc)
 	}
-	l, err := online.NewLadder(s.options(t, nTrain, 0, o.Seed))
+	p, err := s.pipeline(t, nTrain, 0, every, nHold, o.Seed)
 	if err != nil {
-		return 0, &Error{Msg: err.Error()}
-	}
-	h := online.NewHoldout(len(t.names), nHold)
-	if err := s.add(t, l, h, held); err != nil {
 		return 0, err
 	}
-	l.Converge(s.tol, s.maxEpochs)
-	scores := l.Score(h, nil)
+	if err := s.feed(t, p); err != nil {
+		return 0, err
+	}
+	p.Converge(s.tol, s.maxEpochs)
+	p.Retune()
+	l, scores := p.Ladder(), p.Scores()
 	pick := online.Choose(scores, s.rule)
 	if pick < 0 {
 		return s.chooseFraction(t, o.Seed, doc)
@@ -367,7 +374,7 @@ func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
 	if !(c.Lambda > 0) {
 		return 0, &Error{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
 	}
-	doc.Selection = &fitSelection{Rule: s.rule.String(), Every: every, Train: l.Len(), Holdout: h.Len(),
+	doc.Selection = &fitSelection{Rule: s.rule.String(), Every: every, Train: l.Len(), Holdout: p.HeldOutLen(),
 		Index: c.Index, Loss: c.Loss, SE: c.SE, Lambda: c.Lambda, LambdaMax: l.LambdaMax(), AtEnd: c.Index == l.Size()-1}
 	if o.Ladder {
 		for i, sc := range scores {
@@ -382,13 +389,14 @@ func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
 const fitFraction = 0.01
 
 func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, error) {
-	l, err := online.NewLadder(s.options(t, t.rows(), 0, seed))
+	p, err := s.pipeline(t, t.rows(), 0, 0, 0, seed)
 	if err != nil {
-		return 0, &Error{Msg: err.Error()}
-	}
-	if err := s.add(t, l, nil, nil); err != nil {
 		return 0, err
 	}
+	if err := s.feed(t, p); err != nil {
+		return 0, err
+	}
+	l := p.Ladder()
 	lambda := fitFraction * l.LambdaMax()
 	doc.Selection = &fitSelection{Rule: "fraction", Train: t.rows(), Index: -1, Lambda: lambda, LambdaMax: l.LambdaMax()}
 	if !(lambda > 0) {

@@ -32,6 +32,10 @@ type Options struct {
 	// logistic model (a change saved at runtime); nil keeps the
 	// configuration's.
 	Threshold *Threshold
+	// Seed seeds the learner's random generator; 0 derives it from the
+	// model's name (the daemon's choice, so a model's bits do not depend on
+	// its position in the configuration).
+	Seed uint64
 }
 
 // Pipeline is everything one model knows: the ladder, the held-out ring and
@@ -136,8 +140,12 @@ func New(o Options) (*Pipeline, error) {
 		}
 	}
 	dim := Width(m)
-	h := fnv.New64a()
-	h.Write([]byte(m.Name))
+	seed := o.Seed
+	if seed == 0 {
+		h := fnv.New64a()
+		h.Write([]byte(m.Name))
+		seed = h.Sum64()
+	}
 	lad, err := online.NewLadder(&online.Options{
 		Loss:     loss,
 		Penalty:  &online.Penalty{Mix: m.PenaltyMix()},
@@ -148,7 +156,7 @@ func New(o Options) (*Pipeline, error) {
 		Floor:    m.Ladder.Floor,
 		Lambda:   m.Lambda,
 		Steps:    m.Learner.Steps,
-		Seed:     h.Sum64(),
+		Seed:     seed,
 		Learner:  m.Learner.Kind,
 		HalfLife: m.Learner.HalfLife,
 	})
@@ -255,6 +263,24 @@ func learnerReason(err error) string {
 		return record.ReasonWeight
 	}
 	return "invalid"
+}
+
+// Retune rescores the ladder on the held-out ring now, as Apply does every
+// retune.every records (tools that fit a whole file at once call it after
+// Converge), and returns what it did.
+func (p *Pipeline) Retune() *Step {
+	st := &p.step
+	*st = Step{Alerts: st.Alerts[:0]}
+	p.retune()
+	return st
+}
+
+// Converge runs the learner on the current window until every ladder
+// member's KKT violation is at most tol or maxEpochs epochs have run
+// (online.Ladder.Converge), and reports whether all converged. It is the
+// batch finish of tools such as lariat fit; the daemon never calls it.
+func (p *Pipeline) Converge(tol float64, maxEpochs int) bool {
+	return p.ladder.Converge(tol, maxEpochs)
 }
 
 // retune scores the ladder on the held-out ring and lets the chooser move
