@@ -12,6 +12,7 @@ import (
 	"github.com/nats-io/nats-server/v2/server"
 
 	"lariat/config"
+	"lariat/sink/natstest"
 )
 
 // TestExternalAuth connects to an external server that requires user and
@@ -55,12 +56,12 @@ func TestExternalAuth(t *testing.T) {
 			}
 			td := startDaemon(t, cfg)
 			if tc.ready {
-				waitFor(t, 10*time.Second, td.Ready)
+				natstest.WaitFor(t, 10*time.Second, td.Ready)
 				return
 			}
 			// Not ready, and saying why: the server's authorization
 			// violation (nats.go keeps it as the connection's last error).
-			waitFor(t, 10*time.Second, func() error {
+			natstest.WaitFor(t, 10*time.Second, func() error {
 				err := td.Ready()
 				if err == nil {
 					return errors.New("ready with a wrong password")

@@ -14,6 +14,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/testutil"
 
 	"lariat/config"
+	"lariat/sink/natstest"
 )
 
 // benchRecords returns n distinct named-feature JSON records with d
@@ -70,7 +71,7 @@ func BenchmarkThroughput(b *testing.B) {
 	m.Features, m.MaxFeatures = names, d
 	m.Queue = queue
 	td := startDaemon(b, testConfig(b, m))
-	waitFor(b, 10*time.Second, td.Ready)
+	natstest.WaitFor(b, 10*time.Second, td.Ready)
 	pub := connect(b, td.NATSURL())
 	n := b.N
 

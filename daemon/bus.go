@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"strings"
 	"sync"
 	"time"
 
@@ -35,7 +36,7 @@ func (d *Daemon) connectOptions() ([]nats.Option, error) {
 			// it: each distinct cause is logged once, not every retry.
 			if msg := err.Error(); msg != lastConnErr {
 				lastConnErr = msg
-				log.Warn("NATS connection failed; retrying", "err", err)
+				log.Warn("NATS connection failed; retrying", "err", d.explainConnErr(err))
 			}
 		}),
 		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
@@ -97,6 +98,23 @@ func (d *Daemon) connectOptions() ([]nats.Option, error) {
 		opts = append(opts, nats.ClientCert(n.TLS.CertFile, n.TLS.KeyFile))
 	}
 	return opts, nil
+}
+
+// explainConnErr adds the likely cause to a connection error that does not
+// name one. A server that requires a client certificate rejects a client
+// without one after the TLS 1.3 handshake has completed on the client's
+// side, so the client sees either the server's "certificate required"
+// alert or, depending on timing, only a closed connection (nats.go then
+// reports "connection closed by remote after TLS handshake").
+func (d *Daemon) explainConnErr(err error) error {
+	if err == nil || !errors.Is(err, nats.ErrTLS) || !strings.Contains(err.Error(), "after TLS handshake") ||
+		strings.Contains(err.Error(), "certificate required") {
+		return err
+	}
+	if d.cfg.NATS.TLS.CertFile != "" {
+		return fmt.Errorf("%w (the server closed the connection after the handshake: it may have refused the client certificate)", err)
+	}
+	return fmt.Errorf("%w (the server closed the connection after the handshake: it likely requires a client certificate, certificate required, and none is configured: set nats.tls.cert_file and nats.tls.key_file)", err)
 }
 
 // watchBus waits for the connection, confirms the subscriptions with a

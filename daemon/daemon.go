@@ -183,7 +183,7 @@ func (d *Daemon) Ready() error {
 		// The last error names the cause, e.g. a TLS certificate the
 		// configured CA does not verify (a retry never fixes that).
 		if err := nc.LastError(); err != nil {
-			return fmt.Errorf("NATS not connected (%s): %w", nc.Status(), err)
+			return fmt.Errorf("NATS not connected (%s): %w", nc.Status(), d.explainConnErr(err))
 		}
 		return fmt.Errorf("NATS not connected (%s)", nc.Status())
 	case !d.busReady.Load():

@@ -13,6 +13,7 @@ import (
 
 	"lariat/config"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // TestEndToEnd publishes 20k records with a known sparse truth through a
@@ -55,7 +56,7 @@ func TestEndToEnd(t *testing.T) {
 				t.Fatal(err)
 			}
 			defer sub.Unsubscribe()
-			waitFor(t, 10*time.Second, td.Ready)
+			natstest.WaitFor(t, 10*time.Second, td.Ready)
 
 			for _, rec := range tr.records(n, tc.loss == config.LossLogistic, 42) {
 				if err := nc.Publish(m.Subject, rec); err != nil {
@@ -66,14 +67,14 @@ func TestEndToEnd(t *testing.T) {
 				t.Fatal(err)
 			}
 			labels := map[string]string{"model": tc.name}
-			waitFor(t, 30*time.Second, func() error {
+			natstest.WaitFor(t, 30*time.Second, func() error {
 				if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", labels); got != n {
 					return fmt.Errorf("accepted %v of %d", got, n)
 				}
 				return nil
 			})
 			var httpDoc *sink.ModelDoc
-			waitFor(t, 30*time.Second, func() error {
+			natstest.WaitFor(t, 30*time.Second, func() error {
 				doc, _, err := getDoc(td.Daemon, tc.name)
 				if err != nil {
 					return err
@@ -84,7 +85,7 @@ func TestEndToEnd(t *testing.T) {
 				}
 				return checkSupport(doc, tr)
 			})
-			waitFor(t, 10*time.Second, func() error {
+			natstest.WaitFor(t, 10*time.Second, func() error {
 				mu.Lock()
 				defer mu.Unlock()
 				if busDoc == nil || busDoc.Version < httpDoc.Version {
@@ -114,13 +115,13 @@ func TestETag(t *testing.T) {
 	m := testModel("etag", "test.etag", config.LossSquared)
 	td := startDaemon(t, testConfig(t, m))
 	nc := connect(t, td.NATSURL())
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	for _, rec := range tr.records(300, false, 1) {
 		nc.Publish(m.Subject, rec)
 	}
 	nc.Flush()
 	var etag string
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		_, h, err := getDoc(td.Daemon, "etag")
 		if err != nil {
 			return err
@@ -198,18 +199,18 @@ func TestReadiness(t *testing.T) {
 		}
 		return nil
 	}
-	waitFor(t, 15*time.Second, ready)
+	natstest.WaitFor(t, 15*time.Second, ready)
 	// The server restarts: not ready meanwhile, a counted reconnect after.
 	srv.Shutdown()
 	srv.WaitForShutdown()
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		if code := readyz(); code != http.StatusServiceUnavailable {
 			return fmt.Errorf("/readyz %d while NATS is down", code)
 		}
 		return nil
 	})
 	runServer(t, port)
-	waitFor(t, 15*time.Second, ready)
+	natstest.WaitFor(t, 15*time.Second, ready)
 	if got := metricValue(t, td.Daemon, "lariat_nats_reconnects_total", nil); got < 1 {
 		t.Errorf("lariat_nats_reconnects_total %v after a server restart", got)
 	}
@@ -219,7 +220,7 @@ func TestReadiness(t *testing.T) {
 		nc.Publish("test.ready", rec)
 	}
 	nc.Flush()
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": "ready"}); got != 100 {
 			return fmt.Errorf("accepted %v of 100", got)
 		}
@@ -236,7 +237,7 @@ func TestGracefulShutdown(t *testing.T) {
 	m.Queue = n
 	td := startDaemon(t, testConfig(t, m))
 	nc := connect(t, td.NATSURL())
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	final := make(chan *sink.ModelDoc, 100)
 	sub, _ := nc.Subscribe("lariat.model.drain", func(msg *nats.Msg) {
 		var doc sink.ModelDoc
@@ -258,7 +259,7 @@ func TestGracefulShutdown(t *testing.T) {
 	if err := nc.Flush(); err != nil { // the server has every record
 		t.Fatal(err)
 	}
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		if q := len(w.queue); q < n/2 {
 			return fmt.Errorf("%d records queued", q)
 		}
@@ -314,7 +315,7 @@ func TestConcurrentModels(t *testing.T) {
 		models[i].Queue = 2 * n // this test is about concurrency, not back-pressure
 	}
 	td := startDaemon(t, testConfig(t, models...))
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	var wg sync.WaitGroup
 	for i, m := range models[:2] {
 		nc := connect(t, td.NATSURL())
@@ -382,7 +383,7 @@ func TestConcurrentModels(t *testing.T) {
 		}
 	})
 	want := map[string]float64{"conc-a": n, "conc-b": n, "conc-c": 2 * n}
-	waitFor(t, 60*time.Second, func() error {
+	natstest.WaitFor(t, 60*time.Second, func() error {
 		for name, v := range want {
 			if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": name}); got != v {
 				return fmt.Errorf("%s accepted %v of %v", name, got, v)

@@ -20,6 +20,7 @@ import (
 	"lariat/config"
 	"lariat/online"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // testModel returns a model with every default and fast retuning.
@@ -109,22 +110,6 @@ func connect(t testing.TB, url string) *nats.Conn {
 	}
 	t.Cleanup(nc.Close)
 	return nc
-}
-
-// waitFor polls f every 10 ms until it returns nil or total has passed.
-func waitFor(t testing.TB, total time.Duration, f func() error) {
-	t.Helper()
-	deadline := time.Now().Add(total)
-	for {
-		err := f()
-		if err == nil {
-			return
-		}
-		if time.Now().After(deadline) {
-			t.Fatalf("condition not met within %s: %v", total, err)
-		}
-		time.Sleep(10 * time.Millisecond)
-	}
 }
 
 // metricValue returns the value of the counter or gauge name with exactly
@@ -328,28 +313,11 @@ func sameBits(a, b []online.Model) error {
 	return nil
 }
 
-// runServer starts a NATS server as the NATS server's own tests do: random
-// or given port, no logs, no signal handling, JetStream in a temp dir.
+// runServer starts a NATS server (natstest.Options) on the given port, or
+// a random one for -1.
 func runServer(t testing.TB, port int) *server.Server {
 	t.Helper()
-	return runServerOpts(t, &server.Options{
-		Host: "127.0.0.1", Port: port, NoLog: true, NoSigs: true,
-		JetStream: true, StoreDir: t.TempDir(),
-	})
-}
-
-// runServerOpts starts a NATS server with o and waits until it accepts
-// connections; it is shut down at the end of the test.
-func runServerOpts(t testing.TB, o *server.Options) *server.Server {
-	t.Helper()
-	s, err := server.NewServer(o)
-	if err != nil {
-		t.Fatal(err)
-	}
-	go s.Start()
-	if !s.ReadyForConnections(10 * time.Second) {
-		t.Fatal("NATS server did not start")
-	}
-	t.Cleanup(s.Shutdown)
-	return s
+	o := natstest.Options(t)
+	o.Port = port
+	return natstest.RunServer(t, o)
 }

@@ -12,6 +12,7 @@ import (
 
 	"lariat/config"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // TestPredict checks POST /v1/models/{name}/predict (the daemon's Predictor,
@@ -24,7 +25,7 @@ func TestPredict(t *testing.T) {
 	logit := testModel("pred-log", "test.pred.log", config.LossLogistic)
 	td := startDaemon(t, testConfig(t, lin, logit), withoutIdle())
 	nc := connect(t, td.NATSURL())
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	for _, m := range []config.Model{lin, logit} {
 		for _, rec := range tr.records(1000, m.Logistic(), 11) {
 			nc.Publish(m.Subject, rec)
@@ -35,7 +36,7 @@ func TestPredict(t *testing.T) {
 	xmap := map[string]float64{"x00": 0.5, "x01": -1, "x02": 2, "x03": 0.25, "x04": -0.5, "x05": 1, "x06": 0.1}
 	for _, m := range []config.Model{lin, logit} {
 		t.Run(m.Loss, func(t *testing.T) {
-			waitFor(t, 20*time.Second, func() error {
+			natstest.WaitFor(t, 20*time.Second, func() error {
 				doc, _, err := getDoc(td.Daemon, m.Name)
 				if err != nil {
 					return err
@@ -118,13 +119,13 @@ func TestVersionsAcrossRestart(t *testing.T) {
 	for run := range 2 {
 		td := startDaemon(t, cfg)
 		nc := connect(t, td.NATSURL())
-		waitFor(t, 10*time.Second, td.Ready)
+		natstest.WaitFor(t, 10*time.Second, td.Ready)
 		for _, rec := range sparseTruth(4).records(600, false, uint64(run)) {
 			nc.Publish(m.Subject, rec)
 		}
 		nc.Flush()
 		var doc *sink.ModelDoc
-		waitFor(t, 10*time.Second, func() error {
+		natstest.WaitFor(t, 10*time.Second, func() error {
 			var err error
 			doc, _, err = getDoc(td.Daemon, "restart")
 			return err

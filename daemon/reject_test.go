@@ -11,6 +11,7 @@ import (
 	"lariat/config"
 	"lariat/daemon/record"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // TestRejects sends one bad record per reason and checks that each is
@@ -31,7 +32,7 @@ func TestRejects(t *testing.T) {
 		t.Fatal(err)
 	}
 	nc.Flush()
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 
 	// Warm every model up with valid records, so there is state to protect.
 	for _, m := range []config.Model{lin, logit, strict} {
@@ -44,7 +45,7 @@ func TestRejects(t *testing.T) {
 	}
 	nc.Flush()
 	for _, m := range []string{"rej-lin", "rej-log", "rej-strict"} {
-		waitFor(t, 10*time.Second, func() error {
+		natstest.WaitFor(t, 10*time.Second, func() error {
 			if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": m}); got != 60 {
 				return fmt.Errorf("%s accepted %v", m, got)
 			}
@@ -124,7 +125,7 @@ func TestRejectQueueFull(t *testing.T) {
 	rejects := make(chan *nats.Msg, 64)
 	nc.ChanSubscribe("lariat.reject.rej-queue", rejects)
 	nc.Flush()
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	w := td.byName["rej-queue"]
 	release := make(chan struct{})
 	stalled := make(chan struct{})
@@ -136,14 +137,14 @@ func TestRejectQueueFull(t *testing.T) {
 	}
 	nc.Flush()
 	labels := map[string]string{"model": "rej-queue", "reason": reasonQueueFull}
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", labels); got != sent-4 {
 			return fmt.Errorf("queue_full rejects %v, want %d", got, sent-4)
 		}
 		return nil
 	})
 	close(release)
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", map[string]string{"model": "rej-queue"}); got != 4 {
 			return fmt.Errorf("accepted %v, want 4", got)
 		}
@@ -167,7 +168,7 @@ func TestRejectNoModel(t *testing.T) {
 	rejects := make(chan *nats.Msg, 4)
 	nc.ChanSubscribe("lariat.reject."+unrouted, rejects)
 	nc.Flush()
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	h := td.handler("orphan.subject", nil)
 	h(&nats.Msg{Subject: "orphan.subject", Data: []byte(`{"y":1,"x":{"a":1}}`)})
 	select {

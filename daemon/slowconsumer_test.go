@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"lariat/config"
+	"lariat/sink/natstest"
 )
 
 // stallIntake makes the model's subscription callback block while the
@@ -95,7 +96,7 @@ func TestSlowConsumer(t *testing.T) {
 			}
 			td := runDaemon(t, d)
 			nc := connect(t, td.NATSURL())
-			waitFor(t, 5*time.Second, td.Ready)
+			natstest.WaitFor(t, 5*time.Second, td.Ready)
 
 			// Hold the model goroutine, then flood its subject.
 			release := make(chan struct{})
@@ -117,7 +118,7 @@ func TestSlowConsumer(t *testing.T) {
 			metric := func(name string, l map[string]string) float64 { return metricValue(t, td.Daemon, name, l) }
 			drops := func() float64 { return metric("lariat_nats_slow_consumer_drops_total", labels) }
 			if tc.wantDrops {
-				waitFor(t, 5*time.Second, func() error {
+				natstest.WaitFor(t, 5*time.Second, func() error {
 					if got := drops(); got <= 0 {
 						return fmt.Errorf("slow-consumer drops %v while the callback is stalled", got)
 					}
@@ -125,7 +126,7 @@ func TestSlowConsumer(t *testing.T) {
 				})
 			} else {
 				// Every record but the one queued was rejected or dropped.
-				waitFor(t, 5*time.Second, func() error {
+				natstest.WaitFor(t, 5*time.Second, func() error {
 					if got := metric("lariat_records_rejected_total", queueFull) + drops(); got != n-1 {
 						return fmt.Errorf("queue_full + drops = %v, want %d", got, n-1)
 					}
@@ -138,7 +139,7 @@ func TestSlowConsumer(t *testing.T) {
 			letGo()
 
 			var accepted, rejected, dropped float64
-			waitFor(t, 5*time.Second, func() error {
+			natstest.WaitFor(t, 5*time.Second, func() error {
 				accepted, rejected, dropped = metric("lariat_records_accepted_total", labels),
 					metric("lariat_records_rejected_total", queueFull), drops()
 				if accepted+rejected+dropped != n {
@@ -168,7 +169,7 @@ func TestSlowConsumer(t *testing.T) {
 			if got, ok := scrapeMetric(t, td.Daemon, `lariat_nats_slow_consumer_drops_total{model="slow"}`); !ok || got != dropped {
 				t.Errorf("/metrics: drops %v (present %v), registry %v", got, ok, dropped)
 			}
-			waitFor(t, 5*time.Second, func() error {
+			natstest.WaitFor(t, 5*time.Second, func() error {
 				if s := logs.String(); !strings.Contains(s, "slow consumer") || !strings.Contains(s, m.Subject) {
 					return fmt.Errorf("no slow-consumer log line for %s:\n%s", m.Subject, s)
 				}

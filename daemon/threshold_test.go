@@ -16,6 +16,7 @@ import (
 	"lariat/config"
 	"lariat/daemon/pipeline"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // TestThresholdFile checks the overrides file: missing, written atomically
@@ -72,7 +73,7 @@ func TestThresholdSetter(t *testing.T) {
 	run := func(seed uint64, check func(td *testDaemon), opts ...Option) {
 		td := startDaemon(t, cfg, opts...)
 		nc := connect(t, td.NATSURL())
-		waitFor(t, 10*time.Second, td.Ready)
+		natstest.WaitFor(t, 10*time.Second, td.Ready)
 		for _, r := range logisticRecords(names, 2000, seed) {
 			nc.Publish(m.Subject, r)
 		}
@@ -83,7 +84,7 @@ func TestThresholdSetter(t *testing.T) {
 		}
 	}
 	want := func(td *testDaemon, mode string, target float64) {
-		waitFor(t, 10*time.Second, func() error {
+		natstest.WaitFor(t, 10*time.Second, func() error {
 			doc, _, err := getDoc(td.Daemon, name)
 			if err != nil {
 				return err

@@ -24,6 +24,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/sink/natstest"
 )
 
 // testPKI is a throwaway PKI written to a temp dir: a CA, a server
@@ -143,7 +144,7 @@ func runTLSServer(t testing.TB, p *testPKI, verify bool) *server.Server {
 	if err != nil {
 		t.Fatal(err)
 	}
-	return runServerOpts(t, &server.Options{
+	return natstest.RunServer(t, &server.Options{
 		Host: "127.0.0.1", Port: -1, NoLog: true, NoSigs: true,
 		JetStream: true, StoreDir: t.TempDir(),
 		TLS: true, TLSVerify: verify, TLSConfig: tc, TLSTimeout: 2,
@@ -214,7 +215,7 @@ func TestTLS(t *testing.T) {
 				}
 				return
 			}
-			waitFor(t, 5*time.Second, func() error {
+			natstest.WaitFor(t, 5*time.Second, func() error {
 				if code, body := readyz(t, td.Daemon); code != http.StatusOK {
 					return fmt.Errorf("/readyz %d: %s", code, body)
 				}
@@ -232,7 +233,7 @@ func TestTLS(t *testing.T) {
 func checkTLSRefused(t *testing.T, td *testDaemon, why string) {
 	t.Helper()
 	start := time.Now()
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		err := td.Ready()
 		if err == nil {
 			return errors.New("ready over a TLS connection that must fail")
@@ -303,7 +304,7 @@ func checkTLSRecordsApplied(t *testing.T, td *testDaemon, p *testPKI, url, subje
 		t.Fatal(err)
 	}
 	labels := map[string]string{"model": "tls"}
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		if got := metricValue(t, td.Daemon, "lariat_records_accepted_total", labels); got != n {
 			return fmt.Errorf("accepted %v of %d", got, n)
 		}

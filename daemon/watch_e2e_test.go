@@ -21,6 +21,7 @@ import (
 	"lariat/daemon/pipeline"
 	"lariat/online"
 	"lariat/sink"
+	"lariat/sink/natstest"
 )
 
 // alertSink collects the alerts published on a subject.
@@ -108,7 +109,7 @@ func TestAlertEndToEnd(t *testing.T) {
 	m.Queue = 4000
 	td := startDaemon(t, testConfig(t, m))
 	nc := connect(t, td.NATSURL())
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	alerts := subscribeAlerts(t, nc, "lariat.alert."+name)
 
 	names := []string{"a", "b", "c"}
@@ -139,8 +140,8 @@ func TestAlertEndToEnd(t *testing.T) {
 		}
 	}
 	send(1500, 0) // warm after 500 train records; one comparison before the shift
-	waitFor(t, 20*time.Second, accepted(1500))
-	waitFor(t, 10*time.Second, func() error { // published: alerts name the features
+	natstest.WaitFor(t, 20*time.Second, accepted(1500))
+	natstest.WaitFor(t, 10*time.Second, func() error { // published: alerts name the features
 		_, _, err := getDoc(td.Daemon, name)
 		return err
 	})
@@ -148,10 +149,10 @@ func TestAlertEndToEnd(t *testing.T) {
 		t.Fatalf("data alerts before the shift: %+v", as)
 	}
 	send(1500, 5)
-	waitFor(t, 20*time.Second, accepted(3000))
+	natstest.WaitFor(t, 20*time.Second, accepted(3000))
 	var got []sink.Alert
 	var raw []map[string]any
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		if got, raw = alerts.of(sink.KindData); len(got) == 0 {
 			return fmt.Errorf("no data alert on the bus")
 		}
@@ -216,7 +217,7 @@ func TestAlertEndToEnd(t *testing.T) {
 	if len(lad.Ladder) != len(doc.Ladder) || lad.Version < doc.Version {
 		t.Errorf("ladder endpoint %+v vs doc version %d", lad, doc.Version)
 	}
-	waitFor(t, 5*time.Second, func() error {
+	natstest.WaitFor(t, 5*time.Second, func() error {
 		cur, _, err := getDoc(td.Daemon, name)
 		if err != nil {
 			return err
@@ -317,12 +318,12 @@ func TestThresholdEndToEnd(t *testing.T) {
 	run := func(seed uint64, check func(td *testDaemon)) {
 		td := startDaemon(t, cfg)
 		nc := connect(t, td.NATSURL())
-		waitFor(t, 10*time.Second, td.Ready)
+		natstest.WaitFor(t, 10*time.Second, td.Ready)
 		for _, r := range logisticRecords(names, 3000, seed) {
 			nc.Publish(m.Subject, r)
 		}
 		nc.Flush()
-		waitFor(t, 20*time.Second, func() error {
+		natstest.WaitFor(t, 20*time.Second, func() error {
 			_, _, err := getDoc(td.Daemon, name)
 			return err
 		})
@@ -332,7 +333,7 @@ func TestThresholdEndToEnd(t *testing.T) {
 		}
 	}
 	wantThreshold := func(td *testDaemon, mode string, target float64) {
-		waitFor(t, 10*time.Second, func() error {
+		natstest.WaitFor(t, 10*time.Second, func() error {
 			doc, _, err := getDoc(td.Daemon, name)
 			if err != nil {
 				return err
@@ -386,14 +387,14 @@ func TestScoringEndToEnd(t *testing.T) {
 	m.Queue = 4000
 	td := startDaemon(t, testConfig(t, m))
 	nc := connect(t, td.NATSURL())
-	waitFor(t, 10*time.Second, td.Ready)
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	alerts := subscribeAlerts(t, nc, "lariat.alert."+name)
 	names := featureNames(6)
 	for _, r := range logisticRecords(names, 3000, 61) {
 		nc.Publish(m.Subject, r)
 	}
 	nc.Flush()
-	waitFor(t, 20*time.Second, func() error {
+	natstest.WaitFor(t, 20*time.Second, func() error {
 		_, _, err := getDoc(td.Daemon, name)
 		return err
 	})
@@ -409,7 +410,7 @@ func TestScoringEndToEnd(t *testing.T) {
 	// until the alert shows the subscription is live.
 	var got []sink.Alert
 	var raw []map[string]any
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		if got, raw = alerts.of(sink.KindPrediction); len(got) > 0 {
 			return nil
 		}
@@ -437,7 +438,7 @@ func TestScoringEndToEnd(t *testing.T) {
 	}
 	nc.Flush()
 	labels := map[string]string{"model": name}
-	waitFor(t, 10*time.Second, func() error {
+	natstest.WaitFor(t, 10*time.Second, func() error {
 		if s := metricValue(t, td.Daemon, "lariat_prediction_alerts_suppressed_total", labels); s < 20 {
 			return fmt.Errorf("suppressed %v", s)
 		}

@@ -9,32 +9,16 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/online"
+	"lariat/sink/natstest"
 )
 
-// runServer starts an embedded NATS server with JetStream on a random
-// loopback port, shut down at the end of the test (as the NATS server's own
-// tests do with DefaultOptions/RunServer).
-func runServer(t *testing.T) *server.Server {
-	t.Helper()
-	return runServerJS(t, true)
-}
-
-// runServerJS is runServer with JetStream on or off.
+// runServerJS starts an embedded NATS server with JetStream on or off,
+// shut down at the end of the test.
 func runServerJS(t *testing.T, jetStream bool) *server.Server {
 	t.Helper()
-	s, err := server.NewServer(&server.Options{
-		Host: "127.0.0.1", Port: -1, NoLog: true, NoSigs: true,
-		JetStream: jetStream, StoreDir: t.TempDir(),
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	go s.Start()
-	if !s.ReadyForConnections(10 * time.Second) {
-		t.Fatal("nats server not ready")
-	}
-	t.Cleanup(s.Shutdown)
-	return s
+	o := natstest.Options(t)
+	o.JetStream = jetStream
+	return natstest.RunServer(t, o)
 }
 
 // connect opens a client connection to s, closed at the end of the test.
@@ -46,20 +30,6 @@ func connect(t *testing.T, s *server.Server) *nats.Conn {
 	}
 	t.Cleanup(nc.Close)
 	return nc
-}
-
-// checkFor polls f every `every` until it returns nil or total passes.
-func checkFor(t *testing.T, total, every time.Duration, f func() error) {
-	t.Helper()
-	deadline := time.Now().Add(total)
-	var err error
-	for time.Now().Before(deadline) {
-		if err = f(); err == nil {
-			return
-		}
-		time.Sleep(every)
-	}
-	t.Fatalf("condition not met after %v: %v", total, err)
 }
 
 // testModel builds a consistent online.Model snapshot from standardized

@@ -26,7 +26,7 @@ func nextMsg(t *testing.T, sub *nats.Subscription) *nats.Msg {
 }
 
 func TestPublisher(t *testing.T) {
-	s := runServer(t)
+	s := runServerJS(t, true)
 	nc := connect(t, s)
 	reader := connect(t, s)
 	sub, err := reader.SubscribeSync("plant.>")
@@ -128,7 +128,7 @@ func TestPublisher(t *testing.T) {
 }
 
 func TestPublisherErrors(t *testing.T) {
-	s := runServer(t)
+	s := runServerJS(t, true)
 	nc := connect(t, s)
 	reg := prometheus.NewPedanticRegistry()
 	metrics, err := NewMetrics(reg)
