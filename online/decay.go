@@ -54,6 +54,7 @@ type decayLearner struct {
 	rho, lnRho float64
 	sqrtRho    float64
 	loss       Loss
+	kind       lossKind // the loss, devirtualized for deriv
 	clock      int64
 	count      float64 // Σ ρ^age
 	wsum       float64 // N = Σ ρ^age·w
@@ -72,7 +73,7 @@ func newDecay(o *Options, d int) *decayLearner {
 	mk := func() []float64 { return make([]float64, d) }
 	rho := math.Exp2(-1 / o.HalfLife)
 	l := &decayLearner{
-		alpha: o.Penalty.Mix, rho: rho, lnRho: math.Log(rho), sqrtRho: math.Sqrt(rho), loss: o.Loss,
+		alpha: o.Penalty.Mix, rho: rho, lnRho: math.Log(rho), sqrtRho: math.Sqrt(rho), loss: o.Loss, kind: kindOf(o.Loss),
 		last: make([]int64, d), fw: mk(), mean: mk(), m2: mk(), ymean: mk(), cxy: mk(),
 		sd: mk(), inv: mk(), xt: mk(), idx: make([]int, 0, d),
 	}
@@ -184,15 +185,9 @@ func (l *decayLearner) update(m *decayMember, y, w float64) {
 	}
 }
 
-// deriv returns ℓ'(y, η).
+// deriv returns ℓ'(y, η), the built-in losses inline.
 func (l *decayLearner) deriv(y, eta float64) float64 {
-	switch l.loss.(type) {
-	case Squared:
-		return eta - y
-	case Logistic:
-		return Sigmoid(eta) - y
-	}
-	return l.loss.Deriv(y, eta)
+	return derivOf(l.kind, l.loss, y, eta)
 }
 
 // lambdaMax returns max_j |Σ w x̃_j (y − ȳ)| / (W α) on the decayed

@@ -45,10 +45,10 @@ func NewHoldout(features, capacity int) *Holdout {
 	}
 }
 
-// SetLoss makes later Adds reject labels outside loss's domain with ErrLabel,
-// as Ladder.Add does (logistic: 0 or 1). Without it Add accepts any finite
-// label; Ladder.Score with the logistic loss then skips records whose label
-// is not 0 or 1.
+// SetLoss makes later Adds reject labels outside loss's Domain with
+// ErrLabel, as Ladder.Add does (logistic: 0 or 1). Without it Add accepts
+// any finite label; Ladder.Score then skips records whose label lies
+// outside the ladder's loss's Domain.
 func (h *Holdout) SetLoss(loss Loss) { h.loss = loss }
 
 // Add validates r as Ladder.Add does (the label domain only after SetLoss)

@@ -236,14 +236,15 @@ func checkFeatures(x []float64) error {
 	return nil
 }
 
-// checkLabel validates the label and weight of r for loss; the Ladder and
-// the Holdout share it, so both reject exactly the same records.
+// checkLabel validates the label and weight of r for loss (nil: any finite
+// label); the Ladder and the Holdout share it, so both reject exactly the
+// same records.
 func checkLabel(r *Record, loss Loss) error {
 	if !(math.Abs(r.Y) <= maxValue) {
 		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
 	}
-	if _, ok := loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
-		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
+	if loss != nil && !loss.Domain().Contains(r.Y) {
+		return fmt.Errorf("%w: %s label %v, want %v", ErrLabel, loss.Name(), r.Y, loss.Domain())
 	}
 	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
 		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)

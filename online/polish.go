@@ -25,24 +25,6 @@ func newScratch(d, capacity int) scratch {
 	return scratch{mu: mk(d), inv: mk(d), grad: mk(d), th0: mk(d), th1: mk(d), eta: mk(capacity), rho: mk(capacity), q: mk(capacity)}
 }
 
-// curver is implemented by losses that know their exact second derivative;
-// others are polished with their Curvature bound (a majorizer).
-type curver interface {
-	secondDeriv(y, eta float64) float64
-}
-
-func (Squared) secondDeriv(_, _ float64) float64 { return 1 }
-
-func (Logistic) secondDeriv(_, eta float64) float64 {
-	p := Sigmoid(eta)
-	return p * (1 - p)
-}
-
-var (
-	_ curver = Squared{}
-	_ curver = Logistic{}
-)
-
 // KKT returns the largest violation of the optimality (KKT) conditions of
 // member i on the current window, on the standardized scale of the window's
 // exact running mean and std (Hastie, Tibshirani & Wainwright 2015, ch. 2
@@ -169,7 +151,7 @@ func (l *Ladder) polish(i int, m *sagaMember, tol float64) {
 	copy(th0, m.theta)
 	l.sweeps(i, m, tol/10)
 	l.activeSolve(i, m)
-	if _, exact := l.opt.Loss.(Squared); exact {
+	if l.opt.Loss.Quadratic() {
 		return
 	}
 	b1 := m.b
@@ -191,16 +173,12 @@ func (l *Ladder) polish(i int, m *sagaMember, tol float64) {
 // scr.eta: the weights and gradients of the loss's quadratic model.
 func (l *Ladder) quadratic(i int) {
 	ts := l.saga.ts
-	cv, exact := l.opt.Loss.(curver)
-	floor := 1e-5 * l.opt.Loss.Curvature()
+	loss := l.opt.Loss
+	floor := 1e-5 * loss.Curvature()
 	for k := range ts.ring.Len() {
 		r := ts.ring.At(k)
 		eta := l.scr.eta[k]
-		h := l.opt.Loss.Curvature()
-		if exact {
-			h = max(cv.secondDeriv(r.y, eta), floor)
-		}
-		l.scr.q[k] = r.w * h
+		l.scr.q[k] = r.w * max(loss.SecondDeriv(r.y, eta), floor)
 		l.scr.rho[k] = r.w * l.saga.deriv(r.y, eta)
 	}
 }

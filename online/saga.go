@@ -89,15 +89,9 @@ type sagaLearner struct {
 
 func newSAGA(o *Options, d int) *sagaLearner {
 	s := &sagaLearner{
-		ts: newTrainset(d, o.Window), loss: o.Loss, curv: o.Loss.Curvature(),
+		ts: newTrainset(d, o.Window), loss: o.Loss, kind: kindOf(o.Loss), curv: o.Loss.Curvature(),
 		alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
 		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
-	}
-	switch o.Loss.(type) {
-	case Squared:
-		s.kind = lossSquared
-	case Logistic:
-		s.kind = lossLogistic
 	}
 	// One gradient table for all members, slot-major, so a step reads the
 	// K gradients of its record from one or two cache lines.
@@ -117,25 +111,8 @@ func newSAGA(o *Options, d int) *sagaLearner {
 // seedStream is the fixed second word of the PCG seed.
 const seedStream = 0x6c61726961742d31
 
-// lossKind names the built-in losses that deriv computes inline.
-type lossKind int
-
-const (
-	lossOther lossKind = iota
-	lossSquared
-	lossLogistic
-)
-
-// deriv returns ℓ'(y, η), with the two built-in losses devirtualized.
-func (s *sagaLearner) deriv(y, eta float64) float64 {
-	switch s.kind {
-	case lossSquared:
-		return eta - y
-	case lossLogistic:
-		return Sigmoid(eta) - y
-	}
-	return s.loss.Deriv(y, eta)
-}
+// deriv returns ℓ'(y, η), the built-in losses inline.
+func (s *sagaLearner) deriv(y, eta float64) float64 { return derivOf(s.kind, s.loss, y, eta) }
 
 // gammaKey is what the step γ depends on (trainset.lipschitz).
 type gammaKey struct {
