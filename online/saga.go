@@ -85,12 +85,17 @@ type sagaLearner struct {
 	pend           []float64 // the new record's features (the ladder's buffer)
 	first          int       // drawn index of the first step, −1 if none
 	primed         bool      // m.eta holds the predictor at s.first
+
+	// The finishing pass (polish.go): the penalty (its Mix is alpha) for
+	// the objective, and the buffers of KKT and Converge.
+	pen *Penalty
+	scr scratch
 }
 
 func newSAGA(o *Options, d int) *sagaLearner {
 	s := &sagaLearner{
 		ts: newTrainset(d, o.Window), loss: o.Loss, kind: kindOf(o.Loss), curv: o.Loss.Curvature(),
-		alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
+		alpha: o.Penalty.Mix, pen: o.Penalty, span: o.Span.Milliseconds(), scr: newScratch(d, o.Window),
 		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
 	}
 	// One gradient table for all members, slot-major, so a step reads the
@@ -107,6 +112,61 @@ func newSAGA(o *Options, d int) *sagaLearner {
 	s.setGamma()
 	return s
 }
+
+var _ learner = (*sagaLearner)(nil)
+
+// members returns the members as the ladder holds them.
+func (s *sagaLearner) members() []member {
+	ms := make([]member, len(s.ms))
+	for i, m := range s.ms {
+		ms[i] = m
+	}
+	return ms
+}
+
+// setLambdas gives member i the λ lambdas[i] and the prox constants of the
+// current step.
+func (s *sagaLearner) setLambdas(lambdas []float64) {
+	for i, m := range s.ms {
+		m.setLambda(lambdas[i])
+		m.setStep(s.gamma, s.alpha)
+	}
+}
+
+// fill returns the window means, which replace missing values.
+func (s *sagaLearner) fill() []float64 { return s.ts.sc.mean }
+
+// add admits one validated record and runs the scheduled maintenance.
+func (s *sagaLearner) add(x []float64, y, w float64, t int64) bool {
+	s.admit(x, y, w, t)
+	return s.maintain()
+}
+
+// rescale refreshes the working scale if records arrived since the last
+// refresh.
+func (s *sagaLearner) rescale() bool {
+	if s.ts.since <= 0 {
+		return false
+	}
+	s.refresh()
+	return true
+}
+
+// shrink evicts all but the newest n records; a non-empty window was
+// resynced.
+func (s *sagaLearner) shrink(n int) bool {
+	s.shrinkTo(n)
+	return s.ts.ring.Len() > 0
+}
+
+// len returns the number of records in the window.
+func (s *sagaLearner) len() int { return s.ts.ring.Len() }
+
+// weight returns the window's total weight W.
+func (s *sagaLearner) weight() float64 { return s.ts.sc.w }
+
+// scale returns the working scale.
+func (s *sagaLearner) scale() (mu, sd, inv []float64) { return s.ts.mu, s.ts.sd, s.ts.inv }
 
 // seedStream is the fixed second word of the PCG seed.
 const seedStream = 0x6c61726961742d31
