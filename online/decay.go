@@ -230,9 +230,15 @@ func (l *decayLearner) update(m *decayMember, y, w float64) {
 	}
 }
 
-// deriv returns ℓ'(y, η), the built-in losses inline.
+// deriv returns ℓ'(y, η), the built-in losses inline (lossKind).
 func (l *decayLearner) deriv(y, eta float64) float64 {
-	return derivOf(l.kind, l.loss, y, eta)
+	switch l.kind {
+	case lossSquared:
+		return eta - y
+	case lossLogistic:
+		return Sigmoid(eta) - y
+	}
+	return l.loss.Deriv(y, eta)
 }
 
 // lambdaMax returns max_j |Σ w x̃_j (y − ȳ)| / (W α) on the decayed

@@ -80,6 +80,8 @@ type Ladder struct {
 	anchor  float64 // λ_max the grid was last anchored on
 	members []member
 	lrn     learner
+	fill    []float64 // lrn.fill()
+	dom     Domain    // opt.Loss.Domain()
 	xbuf    []float64 // the record being added, missing values imputed
 }
 
@@ -101,7 +103,8 @@ type learner interface {
 	// members returns the members, member i for λ_i.
 	members() []member
 	// fill returns the values that replace missing features before add
-	// (the window means), or nil if add takes NaN as missing.
+	// (the window means), or nil if add takes NaN as missing. NewLadder
+	// asks once: the slice must stay the same, its values current.
 	fill() []float64
 	// add learns from one validated record of weight w > 0 and time t.
 	add(x []float64, y, w float64, t int64) (rescaled bool)
@@ -148,7 +151,7 @@ func NewLadder(o *Options) (*Ladder, error) {
 	default:
 		l.lrn = newSAGA(&opt, opt.Features)
 	}
-	l.members = l.lrn.members()
+	l.members, l.fill, l.dom = l.lrn.members(), l.lrn.fill(), opt.Loss.Domain()
 	if opt.Lambda > 0 {
 		l.lambdas[0] = opt.Lambda
 		l.applyLambdas()
@@ -220,9 +223,12 @@ func resolve(o *Options) (Options, error) {
 // decay learner), which is 0 on the standardized scale and so contributes
 // nothing. Add does not allocate.
 func (l *Ladder) Add(r Record) error {
-	x, err := l.check(&r)
-	if err != nil {
+	if err := l.check(&r); err != nil {
 		return err
+	}
+	x := r.X
+	if l.fill != nil {
+		x = l.xbuf
 	}
 	w := r.W
 	if w == 0 {
@@ -236,24 +242,20 @@ func (l *Ladder) Add(r Record) error {
 	return nil
 }
 
-// check validates r without changing the ladder and returns the features
-// the learner takes: for a learner that fills missing values (SAGA), a copy
-// in l.xbuf with them imputed (kernel impute), else r.X.
-func (l *Ladder) check(r *Record) ([]float64, error) {
+// check validates r without changing the ladder; for a learner that fills
+// missing values (SAGA) it copies the features to l.xbuf with them imputed
+// (kernel impute).
+func (l *Ladder) check(r *Record) error {
 	if len(r.X) != l.d {
-		return nil, fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), l.d)
+		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), l.d)
 	}
-	x := r.X
-	if fill := l.lrn.fill(); fill != nil {
-		x = l.xbuf
-		if impute(x, r.X, fill, maxValue) {
-			return x, checkLabel(r, l.opt.Loss)
-		}
+	if l.fill != nil && impute(l.xbuf, r.X, l.fill, maxValue) {
+		return checkLabel(r, l.opt.Loss, l.dom)
 	}
 	if err := checkFeatures(r.X); err != nil {
-		return nil, err
+		return err
 	}
-	return x, checkLabel(r, l.opt.Loss)
+	return checkLabel(r, l.opt.Loss, l.dom)
 }
 
 // checkFeatures returns an ErrNotFinite error for the first feature that is
@@ -267,15 +269,15 @@ func checkFeatures(x []float64) error {
 	return nil
 }
 
-// checkLabel validates the label and weight of r for loss (nil: any finite
-// label); the Ladder and the Holdout share it, so both reject exactly the
-// same records.
-func checkLabel(r *Record, loss Loss) error {
+// checkLabel validates the label and weight of r for loss, whose Domain
+// is dom (loss nil: any finite label, dom Reals); the Ladder and the
+// Holdout share it, so both reject exactly the same records.
+func checkLabel(r *Record, loss Loss, dom Domain) error {
 	if !(math.Abs(r.Y) <= maxValue) {
 		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
 	}
-	if loss != nil && !loss.Domain().Contains(r.Y) {
-		return fmt.Errorf("%w: %s label %v, want %v", ErrLabel, loss.Name(), r.Y, loss.Domain())
+	if !dom.Contains(r.Y) {
+		return fmt.Errorf("%w: %s label %v, want %v", ErrLabel, loss.Name(), r.Y, dom)
 	}
 	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
 		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)

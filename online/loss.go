@@ -152,9 +152,9 @@ func LossByName(name string) (Loss, bool) {
 }
 
 // lossKind names the built-in losses whose derivative the learners
-// compute inline, so that the per-record path makes no interface call for
-// them. It is a speed-up only: any other Loss is lossOther, and the
-// learners call its Deriv.
+// compute inline (sagaLearner.deriv, decayLearner.deriv), so that the
+// per-record path makes no interface call for them. It is a speed-up only:
+// any other loss is lossOther, and the learners call its Deriv.
 type lossKind int
 
 const (
@@ -172,16 +172,4 @@ func kindOf(loss Loss) lossKind {
 		return lossLogistic
 	}
 	return lossOther
-}
-
-// derivOf returns ℓ'(y, η) for a loss of kind k, the built-in losses
-// inline.
-func derivOf(k lossKind, loss Loss, y, eta float64) float64 {
-	switch k {
-	case lossSquared:
-		return eta - y
-	case lossLogistic:
-		return Sigmoid(eta) - y
-	}
-	return loss.Deriv(y, eta)
 }

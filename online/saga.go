@@ -79,7 +79,7 @@ type sagaLearner struct {
 	c, cGamma float64
 	cW        float64
 
-	// An admission pending in the members' sums (see admit).
+	// An admission pending in the members' sums (see add).
 	pending, pfull bool
 	pslot          int
 	pend           []float64 // the new record's features (the ladder's buffer)
@@ -136,12 +136,6 @@ func (s *sagaLearner) setLambdas(lambdas []float64) {
 // fill returns the window means, which replace missing values.
 func (s *sagaLearner) fill() []float64 { return s.ts.sc.mean }
 
-// add admits one validated record and runs the scheduled maintenance.
-func (s *sagaLearner) add(x []float64, y, w float64, t int64) bool {
-	s.admit(x, y, w, t)
-	return s.maintain()
-}
-
 // rescale refreshes the working scale if records arrived since the last
 // refresh.
 func (s *sagaLearner) rescale() bool {
@@ -171,8 +165,16 @@ func (s *sagaLearner) scale() (mu, sd, inv []float64) { return s.ts.mu, s.ts.sd,
 // seedStream is the fixed second word of the PCG seed.
 const seedStream = 0x6c61726961742d31
 
-// deriv returns ℓ'(y, η), the built-in losses inline.
-func (s *sagaLearner) deriv(y, eta float64) float64 { return derivOf(s.kind, s.loss, y, eta) }
+// deriv returns ℓ'(y, η), the built-in losses inline (lossKind).
+func (s *sagaLearner) deriv(y, eta float64) float64 {
+	switch s.kind {
+	case lossSquared:
+		return eta - y
+	case lossLogistic:
+		return Sigmoid(eta) - y
+	}
+	return s.loss.Deriv(y, eta)
+}
 
 // gammaKey is what the step γ depends on (trainset.lipschitz).
 type gammaKey struct {
@@ -199,18 +201,19 @@ func (s *sagaLearner) setGamma() {
 	}
 }
 
-// admit evicts what the new record pushes out (span, then count) and
-// appends it. It draws the first step's record now, so that one pass over
-// the features (kernel stdPrep, or stdPrep1 for K = 1) standardizes both
-// records and yields the norms of the smoothness bound, and one more
-// (dot2All) gives each member the two dot products it needs: the new
-// record's gradient g_a at the current model, and the first step's
-// predictor. The scaler takes the swap of records in one pass
+// add admits a validated record: it evicts what the record pushes out
+// (span, then count) and appends it. It draws the first step's record
+// now, so that one pass over the features (kernel stdPrep, or stdPrep1 for
+// K = 1) standardizes both records and yields the norms of the smoothness
+// bound, and one more (dot2All) gives each member the two dot products it
+// needs: the new record's gradient g_a at the current model, and the first
+// step's predictor. The scaler takes the swap of records in one pass
 // (scaler.swap). The update of the sums, S += g_a·x_new − g_o·x_old and
 // G += g_a − g_o (g_o of the record the new one replaces), stays pending:
 // the first step folds it into its pass (kernels sagaArrive0,
-// sagaArriveRaw, sagaAll), or settle applies it.
-func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
+// sagaArriveRaw, sagaAll), or settle applies it. Last it runs the
+// scheduled maintenance and reports whether the working scale changed.
+func (s *sagaLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := s.ts
 	if s.span > 0 && t != 0 {
 		for m, ok := ts.ring.Oldest(); ok && m.t < t-s.span; m, ok = ts.ring.Oldest() {
@@ -260,6 +263,7 @@ func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
 	}
 	s.pending, s.pslot, s.pfull, s.pend = true, slot, full, x
 	s.primed = true
+	return s.maintain()
 }
 
 // settle applies a pending admission to the members' sums and stores the
