@@ -97,8 +97,11 @@ type member interface {
 // Options.Learner picks one in NewLadder. The ladder validates records and
 // owns the λ grid: a method that reports true has changed the learner's
 // working scale, and the ladder then re-anchors the grid on lambdaMax,
-// which calls shift and setLambdas. Every method but kkt and converge is
-// on the per-record path or serves it, and must not allocate.
+// which calls shift and setLambdas. The interface is wide because it is
+// the whole seam between the grid and an optimizer, and the two learners
+// differ in nearly every method; a record costs two calls through it (add,
+// run). Every method but members, kkt and converge is on the per-record
+// path or serves it, and must not allocate.
 type learner interface {
 	// members returns the members, member i for λ_i.
 	members() []member
