@@ -83,6 +83,8 @@ func newDecay(o *Options, d int) *decayLearner {
 	return l
 }
 
+var _ learner = (*decayLearner)(nil)
+
 // members returns the members as the ladder holds them.
 func (l *decayLearner) members() []member {
 	ms := make([]member, len(l.ms))
@@ -132,8 +134,6 @@ func (l *decayLearner) factor(k int64) float64 {
 	}
 	return math.Exp(float64(k) * l.lnRho)
 }
-
-var _ learner = (*decayLearner)(nil)
 
 // add takes one validated record (NaN = missing; no time, as nothing is
 // evicted) and reports whether the ladder should re-anchor (every
