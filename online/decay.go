@@ -54,6 +54,7 @@ type decayLearner struct {
 	rho, lnRho float64
 	sqrtRho    float64
 	loss       Loss
+	kind       lossKind // the loss, devirtualized for deriv
 	clock      int64
 	count      float64 // Σ ρ^age
 	wsum       float64 // N = Σ ρ^age·w
@@ -72,7 +73,7 @@ func newDecay(o *Options, d int) *decayLearner {
 	mk := func() []float64 { return make([]float64, d) }
 	rho := math.Exp2(-1 / o.HalfLife)
 	l := &decayLearner{
-		alpha: o.Penalty.Mix, rho: rho, lnRho: math.Log(rho), sqrtRho: math.Sqrt(rho), loss: o.Loss,
+		alpha: o.Penalty.Mix, rho: rho, lnRho: math.Log(rho), sqrtRho: math.Sqrt(rho), loss: o.Loss, kind: kindOf(o.Loss),
 		last: make([]int64, d), fw: mk(), mean: mk(), m2: mk(), ymean: mk(), cxy: mk(),
 		sd: mk(), inv: mk(), xt: mk(), idx: make([]int, 0, d),
 	}
@@ -82,6 +83,50 @@ func newDecay(o *Options, d int) *decayLearner {
 	return l
 }
 
+var _ learner = (*decayLearner)(nil)
+
+// members returns the members as the ladder holds them.
+func (l *decayLearner) members() []member {
+	ms := make([]member, len(l.ms))
+	for i, m := range l.ms {
+		ms[i] = m
+	}
+	return ms
+}
+
+// setLambdas gives member i the λ lambdas[i].
+func (l *decayLearner) setLambdas(lambdas []float64) {
+	for i, m := range l.ms {
+		m.setLambda(lambdas[i])
+	}
+}
+
+// The decay learner takes NaN as missing (fill nil), learns only in add
+// (run does nothing), keeps its scale current in add (rescale reports
+// false), discounts instead of evicting (shrink), and has no grid-shift
+// warm start and no window to converge on (kkt NaN, converge false).
+func (l *decayLearner) fill() []float64                     { return nil }
+func (l *decayLearner) run(int)                             {}
+func (l *decayLearner) rescale() bool                       { return false }
+func (l *decayLearner) shift(int)                           {}
+func (l *decayLearner) kkt(int) float64                     { return math.NaN() }
+func (l *decayLearner) converge(*Ladder, float64, int) bool { return false }
+
+// shrink is shrinkTo(max(n, 0)); it leaves the scale alone.
+func (l *decayLearner) shrink(n int) bool {
+	l.shrinkTo(float64(max(n, 0)))
+	return false
+}
+
+// len returns the decayed record count Σ ρ^age, rounded.
+func (l *decayLearner) len() int { return int(math.Round(l.count)) }
+
+// weight returns the decayed weight N = Σ ρ^age·w.
+func (l *decayLearner) weight() float64 { return l.wsum }
+
+// scale returns the running scale.
+func (l *decayLearner) scale() (mu, sd, inv []float64) { return l.mean, l.sd, l.inv }
+
 // factor returns ρ^k.
 func (l *decayLearner) factor(k int64) float64 {
 	if k == 1 {
@@ -90,9 +135,10 @@ func (l *decayLearner) factor(k int64) float64 {
 	return math.Exp(float64(k) * l.lnRho)
 }
 
-// learn takes one validated record (NaN = missing) and reports whether the
-// ladder should re-anchor (every refreshEvery records).
-func (l *decayLearner) learn(x []float64, y, w float64) bool {
+// add takes one validated record (NaN = missing; no time, as nothing is
+// evicted) and reports whether the ladder should re-anchor (every
+// refreshEvery records).
+func (l *decayLearner) add(x []float64, y, w float64, _ int64) bool {
 	l.clock++
 	l.count = l.rho*l.count + 1
 	l.wsum = l.rho*l.wsum + w
@@ -184,12 +230,12 @@ func (l *decayLearner) update(m *decayMember, y, w float64) {
 	}
 }
 
-// deriv returns ℓ'(y, η).
+// deriv returns ℓ'(y, η), the built-in losses inline (lossKind).
 func (l *decayLearner) deriv(y, eta float64) float64 {
-	switch l.loss.(type) {
-	case Squared:
+	switch l.kind {
+	case lossSquared:
 		return eta - y
-	case Logistic:
+	case lossLogistic:
 		return Sigmoid(eta) - y
 	}
 	return l.loss.Deriv(y, eta)

@@ -2,8 +2,8 @@
 // penalty and its proximal operator, online standardization, the learners
 // and the λ ladder they train, held-out scoring and λ selection.
 //
-// A Ladder holds K penalized generalized linear models (squared or
-// logistic loss) on a log grid of λ and keeps them current on a stream of
+// A Ladder holds K penalized generalized linear models (squared, logistic
+// or any other type implementing Loss) on a log grid of λ and keeps them current on a stream of
 // Records. With the default windowed proximal SAGA learner (Defazio, Bach &
 // Lacoste-Julien 2014) every member minimizes exactly
 //

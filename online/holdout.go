@@ -17,7 +17,8 @@ type Holdout struct {
 	miss []bool    // per slot: the record has a missing value (NaN in x)
 	head int       // slot of the oldest record
 	n    int
-	loss Loss // non-nil: labels must lie in its domain
+	loss Loss   // non-nil: labels must lie in its domain
+	dom  Domain // loss.Domain(), Reals for a nil loss
 
 	// Scratch for Ladder.Score: vals and rank sized to the capacity, coef
 	// to the features (one member's raw-unit coefficients).
@@ -45,11 +46,16 @@ func NewHoldout(features, capacity int) *Holdout {
 	}
 }
 
-// SetLoss makes later Adds reject labels outside loss's domain with ErrLabel,
-// as Ladder.Add does (logistic: 0 or 1). Without it Add accepts any finite
-// label; Ladder.Score with the logistic loss then skips records whose label
-// is not 0 or 1.
-func (h *Holdout) SetLoss(loss Loss) { h.loss = loss }
+// SetLoss makes later Adds reject labels outside loss's Domain with
+// ErrLabel, as Ladder.Add does (logistic: 0 or 1). Without it Add accepts
+// any finite label; Ladder.Score then skips records whose label lies
+// outside the ladder's loss's Domain.
+func (h *Holdout) SetLoss(loss Loss) {
+	h.loss, h.dom = loss, Reals
+	if loss != nil {
+		h.dom = loss.Domain()
+	}
+}
 
 // Add validates r as Ladder.Add does (the label domain only after SetLoss)
 // and stores a copy of it, evicting the oldest record when the ring is full.
@@ -59,7 +65,7 @@ func (h *Holdout) SetLoss(loss Loss) { h.loss = loss }
 // that Ladder.Score takes the slow path only for such records. Add does not
 // allocate.
 func (h *Holdout) Add(r Record) error {
-	if err := checkHeldOut(&r, h.d, h.loss); err != nil {
+	if err := checkHeldOut(&r, h.d, h.loss, h.dom); err != nil {
 		return err
 	}
 	capacity := len(h.y)
@@ -98,15 +104,15 @@ func hasNaN(x []float64) bool {
 }
 
 // checkHeldOut validates r with the checks Ladder.Add uses (checkFeatures,
-// checkLabel); loss nil skips the label-domain check.
-func checkHeldOut(r *Record, d int, loss Loss) error {
+// checkLabel); loss nil (dom Reals) skips the label-domain check.
+func checkHeldOut(r *Record, d int, loss Loss, dom Domain) error {
 	if len(r.X) != d {
 		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), d)
 	}
 	if err := checkFeatures(r.X); err != nil {
 		return err
 	}
-	return checkLabel(r, loss)
+	return checkLabel(r, loss, dom)
 }
 
 // Len returns the number of records held.

@@ -66,7 +66,7 @@ func TestKKTDetectsNonOptimal(t *testing.T) {
 	if !l.Converge(1e-9, 50) {
 		t.Fatal("not converged")
 	}
-	m := l.saga.ms[2]
+	m := l.lrn.(*sagaLearner).ms[2]
 	m.theta[0] += 0.1
 	if v := l.KKT(2); v < 1e-3 {
 		t.Errorf("KKT after nudging θ_0: %g", v)

@@ -79,10 +79,10 @@ type Ladder struct {
 	lmax    float64 // λ_max of the current data
 	anchor  float64 // λ_max the grid was last anchored on
 	members []member
-	saga    *sagaLearner
-	decay   *decayLearner
+	lrn     learner
+	fill    []float64 // lrn.fill()
+	dom     Domain    // opt.Loss.Domain()
 	xbuf    []float64 // the record being added, missing values imputed
-	scr     scratch   // buffers of KKT and Converge
 }
 
 // member is one λ of the ladder, whichever learner trains it.
@@ -90,8 +90,52 @@ type member interface {
 	// params returns the intercept b and the standardized coefficients θ
 	// (the member's own slice, not a copy).
 	params() (b float64, theta []float64)
-	// setLambda sets the member's λ.
-	setLambda(lambda float64)
+}
+
+// learner trains the members of a ladder: the SAGA learner (saga.go,
+// windowed) and the decay learner (decay.go, no window) implement it, and
+// Options.Learner picks one in NewLadder. The ladder validates records and
+// owns the λ grid: a method that reports true has changed the learner's
+// working scale, and the ladder then re-anchors the grid on lambdaMax,
+// which calls shift and setLambdas. The interface is wide because it is
+// the whole seam between the grid and an optimizer, and the two learners
+// differ in nearly every method; a record costs two calls through it (add,
+// run). Every method but members, kkt and converge is on the per-record
+// path or serves it, and must not allocate.
+type learner interface {
+	// members returns the members, member i for λ_i.
+	members() []member
+	// fill returns the values that replace missing features before add
+	// (the window means), or nil if add takes NaN as missing. NewLadder
+	// asks once: the slice must stay the same, its values current.
+	fill() []float64
+	// add learns from one validated record of weight w > 0 and time t.
+	add(x []float64, y, w float64, t int64) (rescaled bool)
+	// run takes steps more optimization steps per member, after add and
+	// when idle (none for a learner that learns only in add).
+	run(steps int)
+	// rescale refreshes a working scale that records arrived since, before
+	// idle steps.
+	rescale() (rescaled bool)
+	// shrink forgets all but the newest n records (or their weight).
+	shrink(n int) (rescaled bool)
+	// len is Ladder.Len and weight the total record weight, Model.Weight.
+	len() int
+	weight() float64
+	// scale returns the working scale: means, standard deviations and
+	// inverse standard deviations (0 for constant features).
+	scale() (mu, sd, inv []float64)
+	// lambdaMax returns λ_max on the working scale for anchor mix alpha.
+	lambdaMax(alpha float64) float64
+	// shift re-seats the members after the grid moved by k grid steps
+	// (k > 0: λ_max fell), for warm starts; it may do nothing.
+	shift(k int)
+	// setLambdas gives member i the λ lambdas[i].
+	setLambdas(lambdas []float64)
+	// kkt is Ladder.KKT and converge is Ladder.Converge (which re-anchors
+	// the ladder's grid); a learner without a window returns NaN and false.
+	kkt(i int) float64
+	converge(l *Ladder, tol float64, maxEpochs int) bool
 }
 
 // NewLadder returns an empty ladder configured by o.
@@ -104,18 +148,13 @@ func NewLadder(o *Options) (*Ladder, error) {
 		opt: opt, d: opt.Features, alpha0: max(opt.Penalty.Mix, lambdaMixFloor),
 		lambdas: make([]float64, opt.Size), xbuf: make([]float64, opt.Features),
 	}
-	if opt.Learner == "decay" {
-		l.decay = newDecay(&opt, opt.Features)
-		for _, m := range l.decay.ms {
-			l.members = append(l.members, m)
-		}
-	} else {
-		l.saga = newSAGA(&opt, opt.Features)
-		for _, m := range l.saga.ms {
-			l.members = append(l.members, m)
-		}
-		l.scr = newScratch(opt.Features, opt.Window)
+	switch opt.Learner {
+	case "decay":
+		l.lrn = newDecay(&opt, opt.Features)
+	default:
+		l.lrn = newSAGA(&opt, opt.Features)
 	}
+	l.members, l.fill, l.dom = l.lrn.members(), l.lrn.fill(), opt.Loss.Domain()
 	if opt.Lambda > 0 {
 		l.lambdas[0] = opt.Lambda
 		l.applyLambdas()
@@ -190,39 +229,36 @@ func (l *Ladder) Add(r Record) error {
 	if err := l.check(&r); err != nil {
 		return err
 	}
+	x := r.X
+	if l.fill != nil {
+		x = l.xbuf
+	}
 	w := r.W
 	if w == 0 {
 		w = 1
 	}
 	l.seen++
-	if l.decay != nil {
-		if l.decay.learn(r.X, r.Y, w) {
-			l.reanchor(l.decay.lambdaMax(l.alpha0))
-		}
-		return nil
+	if l.lrn.add(x, r.Y, w, r.T) {
+		l.reanchor(l.lrn.lambdaMax(l.alpha0))
 	}
-	l.saga.admit(l.xbuf, r.Y, w, r.T)
-	if l.saga.maintain() {
-		l.reanchor(l.saga.lambdaMax(l.alpha0))
-	}
-	l.saga.run(l.opt.Steps)
+	l.lrn.run(l.opt.Steps)
 	return nil
 }
 
-// check validates r without changing the ladder; for the SAGA learner it
-// copies the features to l.xbuf with missing values imputed by the window
-// mean (kernel impute).
+// check validates r without changing the ladder; for a learner that fills
+// missing values (SAGA) it copies the features to l.xbuf with them imputed
+// (kernel impute).
 func (l *Ladder) check(r *Record) error {
 	if len(r.X) != l.d {
 		return fmt.Errorf("%w: got %d, want %d", ErrDimension, len(r.X), l.d)
 	}
-	if l.saga != nil && impute(l.xbuf, r.X, l.saga.ts.sc.mean, maxValue) {
-		return checkLabel(r, l.opt.Loss)
+	if l.fill != nil && impute(l.xbuf, r.X, l.fill, maxValue) {
+		return checkLabel(r, l.opt.Loss, l.dom)
 	}
 	if err := checkFeatures(r.X); err != nil {
 		return err
 	}
-	return checkLabel(r, l.opt.Loss)
+	return checkLabel(r, l.opt.Loss, l.dom)
 }
 
 // checkFeatures returns an ErrNotFinite error for the first feature that is
@@ -236,14 +272,15 @@ func checkFeatures(x []float64) error {
 	return nil
 }
 
-// checkLabel validates the label and weight of r for loss; the Ladder and
-// the Holdout share it, so both reject exactly the same records.
-func checkLabel(r *Record, loss Loss) error {
+// checkLabel validates the label and weight of r for loss, whose Domain
+// is dom (loss nil: any finite label, dom Reals); the Ladder and the
+// Holdout share it, so both reject exactly the same records.
+func checkLabel(r *Record, loss Loss, dom Domain) error {
 	if !(math.Abs(r.Y) <= maxValue) {
 		return fmt.Errorf("%w: label is %v (limit ±%g)", ErrNotFinite, r.Y, maxValue)
 	}
-	if _, ok := loss.(Logistic); ok && r.Y != 0 && r.Y != 1 {
-		return fmt.Errorf("%w: logistic label %v, want 0 or 1", ErrLabel, r.Y)
+	if !dom.Contains(r.Y) {
+		return fmt.Errorf("%w: %s label %v, want %v", ErrLabel, loss.Name(), r.Y, dom)
 	}
 	if !(r.W >= 0) || r.W > maxWeight || (r.W > 0 && r.W < minWeight) {
 		return fmt.Errorf("%w: %v (allowed 0 or [%g, %g])", ErrWeight, r.W, minWeight, maxWeight)
@@ -255,38 +292,27 @@ func checkLabel(r *Record, loss Loss) error {
 // stream; it first refreshes the working scale if records arrived since the
 // last refresh. It does nothing for the decay learner or an empty window.
 func (l *Ladder) Idle(steps int) {
-	if l.saga == nil || steps <= 0 || l.saga.ts.ring.Len() == 0 {
+	if steps <= 0 || l.lrn.len() == 0 {
 		return
 	}
-	if l.saga.ts.since > 0 {
-		l.saga.refresh()
-		l.reanchor(l.saga.lambdaMax(l.alpha0))
+	if l.lrn.rescale() {
+		l.reanchor(l.lrn.lambdaMax(l.alpha0))
 	}
-	l.saga.run(steps)
+	l.lrn.run(steps)
 }
 
 // Shrink keeps only the newest n records of the train window (for drift
 // adaptation); the models stay warm. For the decay learner it discounts the
 // accumulated state so that it weighs at most n records.
 func (l *Ladder) Shrink(n int) {
-	if l.decay != nil {
-		l.decay.shrinkTo(float64(max(n, 0)))
-		return
-	}
-	l.saga.shrinkTo(n)
-	if l.saga.ts.ring.Len() > 0 {
-		l.reanchor(l.saga.lambdaMax(l.alpha0))
+	if l.lrn.shrink(n) {
+		l.reanchor(l.lrn.lambdaMax(l.alpha0))
 	}
 }
 
 // Len returns the number of records in the train window; for the decay
 // learner, the decayed record count Σ 2^(−age/half-life), rounded.
-func (l *Ladder) Len() int {
-	if l.decay != nil {
-		return int(math.Round(l.decay.count))
-	}
-	return l.saga.ts.ring.Len()
-}
+func (l *Ladder) Len() int { return l.lrn.len() }
 
 // Seen returns the number of records ever accepted.
 func (l *Ladder) Seen() uint64 { return l.seen }
@@ -343,12 +369,7 @@ func (l *Ladder) Eta(i int, x []float64) float64 {
 
 // scale returns the working scale of the learner: means, standard
 // deviations and inverse standard deviations (0 for constant features).
-func (l *Ladder) scale() (mu, sd, inv []float64) {
-	if l.decay != nil {
-		return l.decay.mean, l.decay.sd, l.decay.inv
-	}
-	return l.saga.ts.mu, l.saga.ts.sd, l.saga.ts.inv
-}
+func (l *Ladder) scale() (mu, sd, inv []float64) { return l.lrn.scale() }
 
 // reanchor records λ_max of the current data and, unless λ is fixed, moves
 // the grid λ_i = λ_max·(1 + 10⁻⁹)·ε^(i/(K−1)) onto it. When λ_max moved by half a grid
@@ -364,10 +385,10 @@ func (l *Ladder) reanchor(lmax float64) {
 	old := l.anchor
 	l.anchor = lmax
 	K := len(l.lambdas)
-	if l.saga != nil && K > 1 && old > 0 && lmax > 0 {
+	if K > 1 && old > 0 && lmax > 0 {
 		step := math.Log(l.opt.Floor) / float64(K-1)
 		if k := int(math.Round(math.Log(lmax/old) / step)); k != 0 {
-			l.saga.shift(max(-K, min(K, k)))
+			l.lrn.shift(max(-K, min(K, k)))
 		}
 	}
 	top := lmax * (1 + topMargin)
@@ -381,13 +402,4 @@ func (l *Ladder) reanchor(lmax float64) {
 }
 
 // applyLambdas hands the grid to the members.
-func (l *Ladder) applyLambdas() {
-	for i, m := range l.members {
-		m.setLambda(l.lambdas[i])
-	}
-	if l.saga != nil {
-		for _, m := range l.saga.ms {
-			m.setStep(l.saga.gamma, l.saga.alpha)
-		}
-	}
-}
+func (l *Ladder) applyLambdas() { l.lrn.setLambdas(l.lambdas) }

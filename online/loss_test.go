@@ -96,3 +96,67 @@ func TestLossByName(t *testing.T) {
 		t.Error("LossByName accepted hinge")
 	}
 }
+
+// TestLossSecondDeriv checks SecondDeriv against a central finite
+// difference of Deriv, step 1e-5, tolerance 1e-6 (common practice, no single
+// source), that it stays within [0, Curvature], and that Quadratic holds
+// exactly when it is constant over the grid.
+func TestLossSecondDeriv(t *testing.T) {
+	for _, tc := range lossSuite {
+		t.Run(tc.loss.Name(), func(t *testing.T) {
+			const h = 1e-5
+			c := tc.loss.Curvature()
+			first := tc.loss.SecondDeriv(tc.labels[0], etaGrid[0])
+			constant := true
+			for _, y := range tc.labels {
+				for _, eta := range etaGrid {
+					fd := (tc.loss.Deriv(y, eta+h) - tc.loss.Deriv(y, eta-h)) / (2 * h)
+					d2 := tc.loss.SecondDeriv(y, eta)
+					if math.Abs(d2-fd) > 1e-6*(1+math.Abs(fd)) {
+						t.Errorf("y=%v η=%v: SecondDeriv %v, finite difference %v", y, eta, d2, fd)
+					}
+					if !(d2 >= 0 && d2 <= c) {
+						t.Errorf("y=%v η=%v: SecondDeriv %v outside [0, Curvature %v]", y, eta, d2, c)
+					}
+					constant = constant && d2 == first
+				}
+			}
+			if q := tc.loss.Quadratic(); q != constant {
+				t.Errorf("Quadratic() = %v, but SecondDeriv constant = %v", q, constant)
+			}
+		})
+	}
+}
+
+// TestLossMeanDomain checks that Deriv vanishes at y = Mean(η), as the
+// derivative of a GLM negative log-likelihood does at the mean (McCullagh &
+// Nelder 1989, ch. 2), that Mean is increasing, and that Domain holds the
+// suite's labels and, for ZeroOne, nothing else.
+func TestLossMeanDomain(t *testing.T) {
+	for _, tc := range lossSuite {
+		t.Run(tc.loss.Name(), func(t *testing.T) {
+			prev := math.Inf(-1)
+			for _, eta := range etaGrid {
+				mu := tc.loss.Mean(eta)
+				if d := tc.loss.Deriv(mu, eta); math.Abs(d) > 1e-12*(1+math.Abs(mu)) {
+					t.Errorf("η=%v: Deriv(Mean(η), η) = %v, want 0", eta, d)
+				}
+				if !(mu >= prev) {
+					t.Errorf("η=%v: Mean %v not increasing (previous %v)", eta, mu, prev)
+				}
+				prev = mu
+			}
+			dom := tc.loss.Domain()
+			for _, y := range tc.labels {
+				if !dom.Contains(y) {
+					t.Errorf("Domain %v does not contain label %v", dom, y)
+				}
+			}
+			for _, y := range []float64{-1, 0.5, 2} {
+				if got := dom.Contains(y); got != (dom != ZeroOne) {
+					t.Errorf("Domain %v contains %v: %v", dom, y, got)
+				}
+			}
+		})
+	}
+}

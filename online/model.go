@@ -35,11 +35,7 @@ func (l *Ladder) Model(i int) Model {
 		m.Coef[j] = c
 		m.Intercept -= c * mu[j]
 	}
-	if l.decay != nil {
-		m.Weight = l.decay.wsum
-	} else {
-		m.Weight = l.saga.ts.sc.w
-	}
+	m.Weight = l.lrn.weight()
 	return m
 }
 

@@ -14,7 +14,7 @@ const sagaEpochs = 2
 const innerSweeps = 200
 
 // scratch holds the buffers of KKT and Converge, allocated once with the
-// ladder so neither allocates.
+// SAGA learner so that KKT does not allocate.
 type scratch struct {
 	mu, inv, grad, th0, th1 []float64 // d
 	eta, rho, q             []float64 // window capacity
@@ -25,24 +25,6 @@ func newScratch(d, capacity int) scratch {
 	return scratch{mu: mk(d), inv: mk(d), grad: mk(d), th0: mk(d), th1: mk(d), eta: mk(capacity), rho: mk(capacity), q: mk(capacity)}
 }
 
-// curver is implemented by losses that know their exact second derivative;
-// others are polished with their Curvature bound (a majorizer).
-type curver interface {
-	secondDeriv(y, eta float64) float64
-}
-
-func (Squared) secondDeriv(_, _ float64) float64 { return 1 }
-
-func (Logistic) secondDeriv(_, eta float64) float64 {
-	p := Sigmoid(eta)
-	return p * (1 - p)
-}
-
-var (
-	_ curver = Squared{}
-	_ curver = Logistic{}
-)
-
 // KKT returns the largest violation of the optimality (KKT) conditions of
 // member i on the current window, on the standardized scale of the window's
 // exact running mean and std (Hastie, Tibshirani & Wainwright 2015, ch. 2
@@ -50,39 +32,40 @@ var (
 // λ(1−α)θ_j| where θ_j ≠ 0, max(0, |g_j| − λα) where θ_j = 0, and |∂F/∂b|.
 // It is 0 for an empty window and NaN for the decay learner (no window).
 // O(n·d); it changes nothing.
-func (l *Ladder) KKT(i int) float64 {
-	if l.decay != nil {
-		return math.NaN()
+func (l *Ladder) KKT(i int) float64 { return l.lrn.kkt(i) }
+
+// kkt is Ladder.KKT for the SAGA learner.
+func (s *sagaLearner) kkt(i int) float64 {
+	sc := &s.ts.sc
+	for j := range s.scr.mu {
+		s.scr.mu[j] = sc.mean[j]
+		_, s.scr.inv[j] = sc.scale(j)
 	}
-	sc := &l.saga.ts.sc
-	for j := range l.scr.mu {
-		l.scr.mu[j] = sc.mean[j]
-		_, l.scr.inv[j] = sc.scale(j)
-	}
-	return l.kkt(i, l.scr.mu, l.scr.inv)
+	return s.violation(i, s.scr.mu, s.scr.inv)
 }
 
-// kkt is KKT on the scale (mu, inv).
-func (l *Ladder) kkt(i int, mu, inv []float64) float64 {
-	ts := l.saga.ts
+// violation is kkt on the scale (mu, inv).
+func (s *sagaLearner) violation(i int, mu, inv []float64) float64 {
+	ts := s.ts
 	if ts.ring.Len() == 0 {
 		return 0
 	}
-	grad := l.scr.grad
+	grad := s.scr.grad
 	clear(grad)
-	b, th := l.members[i].params()
+	m := s.ms[i]
+	b, th := m.b, m.theta
 	var gb float64
 	for k, sl := range ts.order() {
 		r := ts.ring.At(k)
 		x := ts.row(sl)
-		g := r.w * l.saga.deriv(r.y, b+stdDot(th, x, mu, inv))
+		g := r.w * s.deriv(r.y, b+stdDot(th, x, mu, inv))
 		gb += g
 		for j, v := range x {
 			grad[j] += g * (v - mu[j])
 		}
 	}
 	w := ts.sc.w
-	lam, a := l.lambdas[i], l.opt.Penalty.Mix
+	lam, a := m.lambda, s.alpha
 	worst := math.Abs(gb / w)
 	for j, t := range th {
 		gj := grad[j] * inv[j] / w
@@ -106,11 +89,11 @@ func (l *Ladder) kkt(i int, mu, inv []float64) float64 {
 // search). The polish is used only here; the streaming steps are SAGA.
 // Afterwards the polished members' gradient tables are rebuilt at their new
 // models. For the decay learner (no window) Converge returns false.
-func (l *Ladder) Converge(tol float64, maxEpochs int) bool {
-	if l.decay != nil {
-		return false
-	}
-	s := l.saga
+func (l *Ladder) Converge(tol float64, maxEpochs int) bool { return l.lrn.converge(l, tol, maxEpochs) }
+
+// converge is Ladder.Converge for the SAGA learner; l is the ladder whose
+// grid it re-anchors after the resync.
+func (s *sagaLearner) converge(l *Ladder, tol float64, maxEpochs int) bool {
 	n := s.ts.ring.Len()
 	if n == 0 {
 		return true
@@ -120,8 +103,8 @@ func (l *Ladder) Converge(tol float64, maxEpochs int) bool {
 	polished, ok := false, false
 	for e := 0; ; e++ {
 		worst := 0.0
-		for i := range l.members {
-			worst = max(worst, l.kkt(i, s.ts.mu, s.ts.inv))
+		for i := range s.ms {
+			worst = max(worst, s.violation(i, s.ts.mu, s.ts.inv))
 		}
 		if ok = worst <= tol; ok || e >= maxEpochs {
 			break
@@ -131,8 +114,8 @@ func (l *Ladder) Converge(tol float64, maxEpochs int) bool {
 			continue
 		}
 		for i, m := range s.ms {
-			if l.kkt(i, s.ts.mu, s.ts.inv) > tol {
-				l.polish(i, m, tol)
+			if s.violation(i, s.ts.mu, s.ts.inv) > tol {
+				s.polish(m, tol)
 				polished = true
 			}
 		}
@@ -143,33 +126,33 @@ func (l *Ladder) Converge(tol float64, maxEpochs int) bool {
 	return ok
 }
 
-// objective returns F(b, θ) of member i on the window (working scale) and
-// fills scr.eta with the linear predictors.
-func (l *Ladder) objective(i int, b float64, th []float64) float64 {
-	ts := l.saga.ts
+// objective returns F(b, θ) at member m's λ on the window (working scale)
+// and fills scr.eta with the linear predictors.
+func (s *sagaLearner) objective(m *sagaMember, b float64, th []float64) float64 {
+	ts := s.ts
 	var f float64
 	for k, sl := range ts.order() {
 		r := ts.ring.At(k)
 		eta := b + stdDot(th, ts.row(sl), ts.mu, ts.inv)
-		l.scr.eta[k] = eta
-		f += r.w * l.opt.Loss.Value(r.y, eta)
+		s.scr.eta[k] = eta
+		f += r.w * s.loss.Value(r.y, eta)
 	}
-	return f/ts.sc.w + l.opt.Penalty.Value(th, l.lambdas[i])
+	return f/ts.sc.w + s.pen.Value(th, m.lambda)
 }
 
-// polish is one proximal Newton epoch for member i: the loss is replaced by
+// polish is one proximal Newton epoch for member m: the loss is replaced by
 // its second-order model at the current (b, θ) (exact for the squared
 // loss), the model plus penalty is minimized by cyclic coordinate descent,
 // and the step toward that minimizer is halved until F does not increase.
-func (l *Ladder) polish(i int, m *sagaMember, tol float64) {
-	f0 := l.objective(i, m.b, m.theta)
-	l.quadratic(i)
+func (s *sagaLearner) polish(m *sagaMember, tol float64) {
+	f0 := s.objective(m, m.b, m.theta)
+	s.quadratic()
 	b0 := m.b
-	th0, th1 := l.scr.th0, l.scr.th1
+	th0, th1 := s.scr.th0, s.scr.th1
 	copy(th0, m.theta)
-	l.sweeps(i, m, tol/10)
-	l.activeSolve(i, m)
-	if _, exact := l.opt.Loss.(Squared); exact {
+	s.sweeps(m, tol/10)
+	s.activeSolve(m)
+	if s.loss.Quadratic() {
 		return
 	}
 	b1 := m.b
@@ -179,7 +162,7 @@ func (l *Ladder) polish(i int, m *sagaMember, tol float64) {
 		for j := range th1 {
 			m.theta[j] = th0[j] + t*(th1[j]-th0[j])
 		}
-		if f := l.objective(i, m.b, m.theta); f <= f0+1e-15*math.Abs(f0) {
+		if f := s.objective(m, m.b, m.theta); f <= f0+1e-15*math.Abs(f0) {
 			return
 		}
 	}
@@ -189,19 +172,14 @@ func (l *Ladder) polish(i int, m *sagaMember, tol float64) {
 
 // quadratic fills scr.q with w·ℓ” (floored) and scr.rho with w·ℓ' at
 // scr.eta: the weights and gradients of the loss's quadratic model.
-func (l *Ladder) quadratic(i int) {
-	ts := l.saga.ts
-	cv, exact := l.opt.Loss.(curver)
-	floor := 1e-5 * l.opt.Loss.Curvature()
+func (s *sagaLearner) quadratic() {
+	ts := s.ts
+	floor := 1e-5 * s.curv
 	for k := range ts.ring.Len() {
 		r := ts.ring.At(k)
-		eta := l.scr.eta[k]
-		h := l.opt.Loss.Curvature()
-		if exact {
-			h = max(cv.secondDeriv(r.y, eta), floor)
-		}
-		l.scr.q[k] = r.w * h
-		l.scr.rho[k] = r.w * l.saga.deriv(r.y, eta)
+		eta := s.scr.eta[k]
+		s.scr.q[k] = r.w * max(s.loss.SecondDeriv(r.y, eta), floor)
+		s.scr.rho[k] = r.w * s.deriv(r.y, eta)
 	}
 }
 
@@ -210,12 +188,12 @@ func (l *Ladder) quadratic(i int) {
 // ρ_i = w_i ℓ'_i + q_i Δη_i current as coordinates move, until a sweep
 // finds every coordinate's KKT violation on the model at most tol (tiny
 // moves alone do not mean convergence when features are correlated).
-func (l *Ladder) sweeps(i int, m *sagaMember, tol float64) {
-	ts := l.saga.ts
+func (s *sagaLearner) sweeps(m *sagaMember, tol float64) {
+	ts := s.ts
 	slots := ts.order()
 	n, w := len(slots), ts.sc.w
-	q, rho := l.scr.q[:n], l.scr.rho[:n]
-	lam, a := l.lambdas[i], l.opt.Penalty.Mix
+	q, rho := s.scr.q[:n], s.scr.rho[:n]
+	lam, a := m.lambda, s.alpha
 	var qsum float64
 	for _, v := range q {
 		qsum += v
@@ -233,7 +211,7 @@ func (l *Ladder) sweeps(i int, m *sagaMember, tol float64) {
 		worst := math.Abs(gb / w)
 		for j, v := range ts.inv {
 			if v != 0 {
-				worst = max(worst, l.coordinate(m, j, slots, lam, a))
+				worst = max(worst, s.coordinate(m, j, slots, lam, a))
 			}
 		}
 		if worst <= tol {
@@ -244,10 +222,10 @@ func (l *Ladder) sweeps(i int, m *sagaMember, tol float64) {
 
 // coordinate minimizes the quadratic model over θ_j and returns the KKT
 // violation of θ_j before the move.
-func (l *Ladder) coordinate(m *sagaMember, j int, slots []int, lam, a float64) float64 {
-	ts := l.saga.ts
+func (s *sagaLearner) coordinate(m *sagaMember, j int, slots []int, lam, a float64) float64 {
+	ts := s.ts
 	d, mu, inv := ts.d, ts.mu[j], ts.inv[j]
-	q, rho := l.scr.q, l.scr.rho
+	q, rho := s.scr.q, s.scr.rho
 	var g, h float64
 	for k, sl := range slots {
 		x := (ts.x[sl*d+j] - mu) * inv
@@ -282,8 +260,8 @@ func (l *Ladder) coordinate(m *sagaMember, j int, slots []int, lam, a float64) f
 // the model's exact minimizer on S, which coordinate descent approaches
 // only slowly when features are strongly correlated. Otherwise, or when
 // the system is singular (|S| ≥ n), nothing changes.
-func (l *Ladder) activeSolve(i int, m *sagaMember) {
-	ts := l.saga.ts
+func (s *sagaLearner) activeSolve(m *sagaMember) {
+	ts := s.ts
 	var act []int
 	for j, t := range m.theta {
 		if t != 0 && ts.inv[j] != 0 {
@@ -295,7 +273,7 @@ func (l *Ladder) activeSolve(i int, m *sagaMember) {
 	if k > len(slots) {
 		return
 	}
-	w, lam, a := ts.sc.w, l.lambdas[i], l.opt.Penalty.Mix
+	w, lam, a := ts.sc.w, m.lambda, s.alpha
 	A := mat.NewSymDense(k, nil)
 	rhs := mat.NewVecDense(k, nil)
 	z := make([]float64, k)
@@ -305,7 +283,7 @@ func (l *Ladder) activeSolve(i int, m *sagaMember) {
 		for c, j := range act {
 			z[c+1] = (x[j] - ts.mu[j]) * ts.inv[j]
 		}
-		q, rho := l.scr.q[r]/w, l.scr.rho[r]/w
+		q, rho := s.scr.q[r]/w, s.scr.rho[r]/w
 		for u := range k {
 			rhs.SetVec(u, rhs.AtVec(u)-z[u]*rho)
 			for v := u; v < k; v++ {

@@ -79,25 +79,24 @@ type sagaLearner struct {
 	c, cGamma float64
 	cW        float64
 
-	// An admission pending in the members' sums (see admit).
+	// An admission pending in the members' sums (see add).
 	pending, pfull bool
 	pslot          int
 	pend           []float64 // the new record's features (the ladder's buffer)
 	first          int       // drawn index of the first step, −1 if none
 	primed         bool      // m.eta holds the predictor at s.first
+
+	// The finishing pass (polish.go): the penalty (its Mix is alpha) for
+	// the objective, and the buffers of KKT and Converge.
+	pen *Penalty
+	scr scratch
 }
 
 func newSAGA(o *Options, d int) *sagaLearner {
 	s := &sagaLearner{
-		ts: newTrainset(d, o.Window), loss: o.Loss, curv: o.Loss.Curvature(),
-		alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
+		ts: newTrainset(d, o.Window), loss: o.Loss, kind: kindOf(o.Loss), curv: o.Loss.Curvature(),
+		alpha: o.Penalty.Mix, pen: o.Penalty, span: o.Span.Milliseconds(), scr: newScratch(d, o.Window),
 		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
-	}
-	switch o.Loss.(type) {
-	case Squared:
-		s.kind = lossSquared
-	case Logistic:
-		s.kind = lossLogistic
 	}
 	// One gradient table for all members, slot-major, so a step reads the
 	// K gradients of its record from one or two cache lines.
@@ -114,19 +113,59 @@ func newSAGA(o *Options, d int) *sagaLearner {
 	return s
 }
 
+var _ learner = (*sagaLearner)(nil)
+
+// members returns the members as the ladder holds them.
+func (s *sagaLearner) members() []member {
+	ms := make([]member, len(s.ms))
+	for i, m := range s.ms {
+		ms[i] = m
+	}
+	return ms
+}
+
+// setLambdas gives member i the λ lambdas[i] and the prox constants of the
+// current step.
+func (s *sagaLearner) setLambdas(lambdas []float64) {
+	for i, m := range s.ms {
+		m.setLambda(lambdas[i])
+		m.setStep(s.gamma, s.alpha)
+	}
+}
+
+// fill returns the window means, which replace missing values.
+func (s *sagaLearner) fill() []float64 { return s.ts.sc.mean }
+
+// rescale refreshes the working scale if records arrived since the last
+// refresh.
+func (s *sagaLearner) rescale() bool {
+	if s.ts.since <= 0 {
+		return false
+	}
+	s.refresh()
+	return true
+}
+
+// shrink evicts all but the newest n records; a non-empty window was
+// resynced.
+func (s *sagaLearner) shrink(n int) bool {
+	s.shrinkTo(n)
+	return s.ts.ring.Len() > 0
+}
+
+// len returns the number of records in the window.
+func (s *sagaLearner) len() int { return s.ts.ring.Len() }
+
+// weight returns the window's total weight W.
+func (s *sagaLearner) weight() float64 { return s.ts.sc.w }
+
+// scale returns the working scale.
+func (s *sagaLearner) scale() (mu, sd, inv []float64) { return s.ts.mu, s.ts.sd, s.ts.inv }
+
 // seedStream is the fixed second word of the PCG seed.
 const seedStream = 0x6c61726961742d31
 
-// lossKind names the built-in losses that deriv computes inline.
-type lossKind int
-
-const (
-	lossOther lossKind = iota
-	lossSquared
-	lossLogistic
-)
-
-// deriv returns ℓ'(y, η), with the two built-in losses devirtualized.
+// deriv returns ℓ'(y, η), the built-in losses inline (lossKind).
 func (s *sagaLearner) deriv(y, eta float64) float64 {
 	switch s.kind {
 	case lossSquared:
@@ -162,18 +201,19 @@ func (s *sagaLearner) setGamma() {
 	}
 }
 
-// admit evicts what the new record pushes out (span, then count) and
-// appends it. It draws the first step's record now, so that one pass over
-// the features (kernel stdPrep, or stdPrep1 for K = 1) standardizes both
-// records and yields the norms of the smoothness bound, and one more
-// (dot2All) gives each member the two dot products it needs: the new
-// record's gradient g_a at the current model, and the first step's
-// predictor. The scaler takes the swap of records in one pass
+// add admits a validated record: it evicts what the record pushes out
+// (span, then count) and appends it. It draws the first step's record
+// now, so that one pass over the features (kernel stdPrep, or stdPrep1 for
+// K = 1) standardizes both records and yields the norms of the smoothness
+// bound, and one more (dot2All) gives each member the two dot products it
+// needs: the new record's gradient g_a at the current model, and the first
+// step's predictor. The scaler takes the swap of records in one pass
 // (scaler.swap). The update of the sums, S += g_a·x_new − g_o·x_old and
 // G += g_a − g_o (g_o of the record the new one replaces), stays pending:
 // the first step folds it into its pass (kernels sagaArrive0,
-// sagaArriveRaw, sagaAll), or settle applies it.
-func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
+// sagaArriveRaw, sagaAll), or settle applies it. Last it runs the
+// scheduled maintenance and reports whether the working scale changed.
+func (s *sagaLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := s.ts
 	if s.span > 0 && t != 0 {
 		for m, ok := ts.ring.Oldest(); ok && m.t < t-s.span; m, ok = ts.ring.Oldest() {
@@ -223,6 +263,7 @@ func (s *sagaLearner) admit(x []float64, y, w float64, t int64) {
 	}
 	s.pending, s.pslot, s.pfull, s.pend = true, slot, full, x
 	s.primed = true
+	return s.maintain()
 }
 
 // settle applies a pending admission to the members' sums and stores the

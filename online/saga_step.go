@@ -9,8 +9,8 @@ package online
 // each member's update also returns its dot product with the next record:
 // one pass per member-step. With K = 1 the kernel standardizes the next
 // record as it goes (sagaDotRaw); a larger ladder stages it once into xn
-// for all members (sagaAll). After admit, the first step is at the record
-// admit drew, and it also folds in the pending admission.
+// for all members (sagaAll). After add, the first step is at the record
+// add drew, and it also folds in the pending admission.
 func (s *sagaLearner) run(steps int) {
 	ts := s.ts
 	n := ts.ring.Len()

@@ -12,26 +12,27 @@ type Score struct {
 	Index   int     // ladder index (0 = λ_max)
 	Lambda  float64 // the member's λ
 	Nonzero int     // size of its support
-	Loss    float64 // mean held-out ℓ of the objective: ½(y − η)² or logistic
+	Loss    float64 // mean held-out ℓ of the objective (Loss.Value)
 	SE      float64 // standard error of Loss
 
-	// Logistic loss only (else 0).
+	// Losses with 0/1 labels (Domain ZeroOne) only, else 0.
 	AUC     float64 // area under the ROC curve; 0.5 when a class is missing
-	Brier   float64 // mean (p − y)² (Brier 1950)
-	LogLoss float64 // mean logistic loss, equal to Loss
+	Brier   float64 // mean (p − y)², p = Loss.Mean(η) (Brier 1950)
+	LogLoss float64 // mean Bernoulli negative log-likelihood, equal to Loss
 
-	// Squared loss only (else 0).
-	RMSE float64 // √(mean (y − η)²)
-	MAE  float64 // mean |y − η|
+	// Losses with real labels (Domain Reals) only, else 0; the residual
+	// is y − μ, μ = Loss.Mean(η) (η itself for the squared loss).
+	RMSE float64 // √(mean (y − μ)²)
+	MAE  float64 // mean |y − μ|
 	R2   float64 // 1 − SSE/SST around the held-out mean of y
 }
 
 // Score measures every ladder member on the held-out records and returns the
 // scores in ladder order, appended to dst[:0] (so a dst with capacity Size()
-// makes Score allocation-free). With the logistic loss, records whose label
-// is not 0 or 1 are skipped. Score returns dst[:0] when h holds no usable
+// makes Score allocation-free). Records whose label lies outside the loss's
+// Domain (possible when the holdout was filled without SetLoss) are skipped. Score returns dst[:0] when h holds no usable
 // record, and panics if h's feature count differs from the ladder's. It costs
-// O(K·n·d) for n held-out records, plus O(K·n log n) for the logistic AUC,
+// O(K·n·d) for n held-out records, plus O(K·n log n) for the AUC of a 0/1 loss,
 // and uses h's scratch space. Each member's scale is folded into raw-unit
 // coefficients once per call, so a record costs one dot product; records
 // with a missing value go through Ladder.Eta. The η so computed equals
@@ -48,9 +49,9 @@ func (l *Ladder) Score(h *Holdout, dst []Score) []Score {
 	}
 	dst = dst[:0]
 	loss := l.Loss()
-	_, logistic := loss.(Logistic)
-	_, squared := loss.(Squared)
-	lab := h.labelStats(logistic)
+	dom := loss.Domain()
+	binary := dom == ZeroOne
+	lab := h.labelStats(dom)
 	if lab.w == 0 {
 		return dst
 	}
@@ -62,7 +63,7 @@ func (l *Ladder) Score(h *Holdout, dst []Score) []Score {
 		for k := range h.n {
 			sl := h.slot(k)
 			y, w := h.y[sl], h.w[sl]
-			if logistic && y != 0 && y != 1 {
+			if !dom.Contains(y) {
 				h.vals[k] = math.NaN()
 				continue
 			}
@@ -70,24 +71,22 @@ func (l *Ladder) Score(h *Holdout, dst []Score) []Score {
 			v := loss.Value(y, eta)
 			h.vals[k] = v
 			sum += w * v
-			switch {
-			case logistic:
-				p := Sigmoid(eta)
+			if binary {
+				p := loss.Mean(eta)
 				brier += w * (p - y) * (p - y)
 				h.rank = append(h.rank, ranked{s: eta, y: y, w: w})
-			case squared:
-				r := y - eta
+			} else {
+				r := y - loss.Mean(eta)
 				sq += w * r * r
 				abs += w * math.Abs(r)
 			}
 		}
 		s.Loss = sum / lab.w
 		s.SE = h.stdErr(s.Loss, lab)
-		switch {
-		case logistic:
+		if binary {
 			s.LogLoss, s.Brier = s.Loss, brier/lab.w
 			s.AUC = rankAUC(h.rank)
-		case squared:
+		} else {
 			s.RMSE, s.MAE = math.Sqrt(sq/lab.w), abs/lab.w
 			s.R2 = rSquared(sq, lab.sst)
 		}
@@ -165,13 +164,13 @@ type labelSummary struct{ w, w2, sst float64 }
 
 // labelStats sums the weights, squared weights and the weighted squared
 // deviation of the labels from their weighted mean, over the records Score
-// uses.
-func (h *Holdout) labelStats(logistic bool) labelSummary {
+// uses (labels in dom).
+func (h *Holdout) labelStats(dom Domain) labelSummary {
 	var s labelSummary
 	var sy float64
 	for k := range h.n {
 		_, y, w := h.At(k)
-		if logistic && y != 0 && y != 1 {
+		if !dom.Contains(y) {
 			continue
 		}
 		s.w += w
@@ -184,7 +183,7 @@ func (h *Holdout) labelStats(logistic bool) labelSummary {
 	mean := sy / s.w
 	for k := range h.n {
 		_, y, w := h.At(k)
-		if logistic && y != 0 && y != 1 {
+		if !dom.Contains(y) {
 			continue
 		}
 		s.sst += w * (y - mean) * (y - mean)
@@ -233,24 +232,21 @@ func rSquared(sse, sst float64) float64 {
 }
 
 // HoldoutPredictions returns member i's prediction for every held-out record,
-// oldest first, in dst resized to h.Len(): the probability σ(η) for the
-// logistic loss, the linear predictor η otherwise. With Holdout.Labels and
-// Holdout.Weights it feeds ROC, AUC and the threshold functions. It uses
+// oldest first, in dst resized to h.Len(): Loss.Mean(η), the probability
+// σ(η) for the logistic loss and the linear predictor η for the squared.
+// With Holdout.Labels and Holdout.Weights it feeds ROC, AUC and the
+// threshold functions. It uses
 // Score's predictor and h's scratch space, and panics if i is out of range
 // or h's feature count differs from the ladder's.
 func (l *Ladder) HoldoutPredictions(i int, h *Holdout, dst []float64) []float64 {
 	if h.d != l.Features() {
 		panic(fmt.Sprintf("online: HoldoutPredictions: holdout has %d features, ladder %d", h.d, l.Features()))
 	}
-	_, logistic := l.Loss().(Logistic)
+	loss := l.Loss()
 	dst = slices.Grow(dst[:0], h.n)[:h.n]
 	p := h.predictor(l, i)
 	for k := range h.n {
-		eta := p.eta(h.record(h.slot(k)))
-		if logistic {
-			eta = Sigmoid(eta)
-		}
-		dst[k] = eta
+		dst[k] = loss.Mean(p.eta(h.record(h.slot(k))))
 	}
 	return dst
 }

@@ -155,7 +155,7 @@ func TestScoreWeightedSE(t *testing.T) {
 		}
 	}
 	copy(h.vals, []float64{1, 2, 4})
-	lab := h.labelStats(false)
+	lab := h.labelStats(Reals)
 	got := h.stdErr(11.0/4, lab)
 	if want := math.Sqrt(2.7*6) / 4; math.Abs(got-want) > 1e-14 {
 		t.Fatalf("SE = %v, want %v", got, want)

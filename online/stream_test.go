@@ -182,11 +182,11 @@ func TestMissingImputed(t *testing.T) {
 	p := makeProblem(15, 100, 3, 3, false, false)
 	l, _ := NewLadder(&Options{Features: 3, Window: 1000, Size: 2})
 	feed(t, l, p, 0, 100)
-	mean := l.saga.ts.sc.mean[1]
+	mean := l.lrn.(*sagaLearner).ts.sc.mean[1]
 	if err := l.Add(Record{X: []float64{1, math.NaN(), 2}, Y: 1}); err != nil {
 		t.Fatal(err)
 	}
-	if got := l.saga.ts.sc.mean[1]; math.Abs(got-mean) > 1e-12*math.Abs(mean) {
+	if got := l.lrn.(*sagaLearner).ts.sc.mean[1]; math.Abs(got-mean) > 1e-12*math.Abs(mean) {
 		t.Errorf("mean moved from %v to %v", mean, got)
 	}
 	l.Converge(1e-9, 50)
