@@ -58,8 +58,8 @@ const (
 const topMargin = 1e-9
 
 // lambdaMixFloor is the α used to anchor the grid when α < 0.001 (ridge):
-// λ_max is infinite for α = 0, so the grid is anchored as for α = 0.001, as
-// glmnet does (Friedman, Hastie & Tibshirani 2010, §2.5).
+// λ_max is infinite for α = 0, so the grid is anchored as for α = 0.001,
+// the convention of Friedman, Hastie & Tibshirani (2010), §2.5.
 const lambdaMixFloor = 1e-3
 
 // Ladder is K penalized GLMs on a log grid of λ, trained on one stream.
