@@ -120,6 +120,14 @@ var badFiles = map[string][]string{
 		`holdout_off.bad.yaml:4: models[0].holdout.every: 0 (no holdout) needs a fixed lambda > 0 and threshold mode fixed`,
 		`holdout_off.bad.yaml:9: models[1].holdout.every: 0 (no holdout) needs a fixed lambda > 0 and threshold mode fixed`,
 	},
+	"durability.bad.yaml": {
+		`durability.bad.yaml:2: intake.mode: "sometimes" is not allowed (allowed: auto, durable, core)`,
+		`durability.bad.yaml:3: intake.stream_prefix: "lariat.records" is not allowed`,
+		`durability.bad.yaml:4: intake.max_age: 2m0s is too short (allowed: >= 5m0s`,
+		`durability.bad.yaml:5: intake.max_bytes: 1000 is too small (allowed: >= 1048576)`,
+		`durability.bad.yaml:7: checkpoint.records: 0 is out of range (allowed: 1..10000000)`,
+		`durability.bad.yaml:13: models[1].subject: "plant.p7.trip" overlaps "plant.*.trip" of models[0]`,
+	},
 	"no_models.bad.yaml": {
 		`no_models.bad.yaml:2: models: at least one model is required`,
 	},

@@ -40,6 +40,10 @@ const (
 	FormatAuto = "auto" // text on a terminal, JSON otherwise
 	FormatText = "text"
 	FormatJSON = "json"
+
+	IntakeAuto    = "auto"    // durable where JetStream answers, core otherwise
+	IntakeDurable = "durable" // every model reads its own JetStream stream from its checkpoint's position
+	IntakeCore    = "core"    // plain subscriptions: at most once
 )
 
 // Config is the whole configuration file. A Config returned by [Parse] or
@@ -58,6 +62,12 @@ type Config struct {
 	DataDir string `yaml:"data_dir"`
 	// Log configures the process log.
 	Log Log `yaml:"log"`
+	// Intake sets how records reach the models: from JetStream streams
+	// (durable) or plain subscriptions (core).
+	Intake Intake `yaml:"intake"`
+	// Checkpoint sets how often each model's state is saved under
+	// DataDir/checkpoints.
+	Checkpoint Checkpoint `yaml:"checkpoint"`
 	// Models are the models to keep current; at least one.
 	Models []Model `yaml:"models"`
 
@@ -132,6 +142,43 @@ type HTTP struct {
 	// MaxBodyBytes caps a request body. Default 1048576 (1 MiB); allowed
 	// 1 KiB to 1 GiB.
 	MaxBodyBytes int64 `yaml:"max_body_bytes"`
+}
+
+// Intake sets how records reach the models. In durable mode each model's
+// subject is captured by a JetStream stream of its own, named
+// <stream_prefix>_<model>, which lariat creates (or updates) with the
+// retention below; the model reads it from the position its checkpoint has
+// applied, so records published while lariat is down are applied when it
+// comes back, and none twice. In core mode lariat subscribes with plain
+// NATS: a record published while it is down, or dropped by a slow
+// subscription, is lost (at most once; the drops it can see are counted).
+type Intake struct {
+	// Mode is auto, durable or core. auto is durable when the server
+	// answers JetStream requests (the embedded server always does) and core
+	// otherwise. durable fails to start without JetStream. Default "auto".
+	Mode string `yaml:"mode"`
+	// StreamPrefix names the streams: <stream_prefix>_<model>. Letters,
+	// digits, '_' and '-'. Default "lariat".
+	StreamPrefix string `yaml:"stream_prefix"`
+	// MaxAge discards records older than this from a stream, at least ten
+	// times checkpoint.interval and at least 1m, so a restart finds every
+	// record after its checkpoint. Default 72h.
+	MaxAge Duration `yaml:"max_age"`
+	// MaxBytes caps a stream's size (the oldest records go first), at least
+	// 1 MiB. Default 1073741824 (1 GiB).
+	MaxBytes int64 `yaml:"max_bytes"`
+}
+
+// Checkpoint sets when each model's whole state is saved: after every
+// Records applied records or Interval, whichever comes first, and at
+// shutdown. The newest two checkpoints of each model are kept.
+type Checkpoint struct {
+	// Records saves after this many records since the last save, 1 to
+	// 10000000. Default 10000.
+	Records int `yaml:"records"`
+	// Interval saves at least this often while records arrive, 1s to 1h.
+	// Default 30s.
+	Interval Duration `yaml:"interval"`
 }
 
 // Log configures the process log.
@@ -319,6 +366,13 @@ func Default() *Config {
 		SubjectPrefix: "lariat",
 		DataDir:       "./lariat-data",
 		Log:           Log{Level: LevelInfo, Format: FormatAuto},
+		Intake: Intake{
+			Mode:         IntakeAuto,
+			StreamPrefix: "lariat",
+			MaxAge:       Duration(72 * time.Hour),
+			MaxBytes:     1 << 30,
+		},
+		Checkpoint: Checkpoint{Records: 10000, Interval: Duration(30 * time.Second)},
 	}
 }
 

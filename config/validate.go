@@ -134,6 +134,7 @@ func (c *Config) validate() Errors {
 	}
 	k.oneOf("log.level", c.Log.Level, LevelDebug, LevelInfo, LevelWarn, LevelError)
 	k.oneOf("log.format", c.Log.Format, FormatAuto, FormatText, FormatJSON)
+	c.validateDurability(k)
 	if len(c.Models) == 0 {
 		k.add("models", "at least one model is required")
 	}
@@ -144,11 +145,38 @@ func (c *Config) validate() Errors {
 	return k.errs
 }
 
+// streamRE is what a stream prefix may be (a stream name may not hold '.',
+// '*', '>' or white space; model names add [a-z0-9_-]).
+var streamRE = regexp.MustCompile(`^[A-Za-z0-9_-]{1,32}$`)
+
+// validateDurability checks the intake and checkpoint sections, and that
+// the streams keep records long enough for a restart to find them.
+func (c *Config) validateDurability(k *checker) {
+	in, cp := c.Intake, c.Checkpoint
+	k.oneOf("intake.mode", in.Mode, IntakeAuto, IntakeDurable, IntakeCore)
+	if !streamRE.MatchString(in.StreamPrefix) {
+		k.add("intake.stream_prefix", "%q is not allowed (allowed: 1 to 32 letters, digits, '_' or '-')", in.StreamPrefix)
+	}
+	k.intRange("checkpoint.records", cp.Records, 1, maxRecords)
+	if cp.Interval < Duration(time.Second) || cp.Interval > Duration(time.Hour) {
+		k.add("checkpoint.interval", "%v is out of range (allowed: 1s..1h)", cp.Interval)
+	}
+	if in.Mode != IntakeCore {
+		if minAge := max(Duration(time.Minute), 10*cp.Interval); in.MaxAge < minAge {
+			k.add("intake.max_age", "%v is too short (allowed: >= %v, ten checkpoint intervals and at least 1m, so a restart finds every record after its checkpoint)", in.MaxAge, minAge)
+		}
+		if in.MaxBytes < 1<<20 {
+			k.add("intake.max_bytes", "%d is too small (allowed: >= 1048576)", in.MaxBytes)
+		}
+	}
+}
+
 // crossModel checks what involves several models: unique names, unique
 // input subjects, and no input overlapping lariat's own output namespace.
 func (c *Config) crossModel(k *checker) {
 	names := map[string]int{}
 	subjects := map[string]string{}
+	var streamed []struct{ key, subj string } // model subjects, in order
 	own := c.SubjectPrefix + ".>"
 	for i, m := range c.Models {
 		p := fmt.Sprintf("models[%d]", i)
@@ -165,6 +193,15 @@ func (c *Config) crossModel(k *checker) {
 			if prev, dup := subjects[f.subj]; dup {
 				k.add(p+"."+f.key, "%q is already used by %s (each input subject feeds one model)", f.subj, prev)
 				continue
+			}
+			if c.Intake.Mode != IntakeCore && f.key == "subject" {
+				for _, other := range streamed {
+					if overlap(f.subj, other.subj) {
+						k.add(p+".subject", "%q overlaps %q of %s: with intake.mode %s each model's subject has a stream of its own, and streams cannot share subjects (make them disjoint, or use intake.mode core)", f.subj, other.subj, other.key, c.Intake.Mode)
+						break
+					}
+				}
+				streamed = append(streamed, struct{ key, subj string }{p, f.subj})
 			}
 			subjects[f.subj] = p + "." + f.key
 			if checkSubject(c.SubjectPrefix, false) == "" && overlap(f.subj, own) {
