@@ -1,5 +1,7 @@
 package online
 
+import "math"
+
 //go:generate go run ./asm -out kernel_amd64.s
 
 // The per-step vector kernels of the learners. Each has a portable Go
@@ -18,14 +20,32 @@ package online
 // rounding (kernel_test.go); a given machine always uses the same one, so
 // results stay bit-identical run to run.
 
+// The portable kernels are shaped for a scalar out-of-order core: a sum
+// runs in four accumulators (lanes j mod 4 of the blocks of four, added as
+// (l0 + l2) + (l1 + l3), then the tail in order, the order of the AVX
+// kernels' one YMM accumulator), so that its additions do not wait on each
+// other; a value read and then written stays in a local, so that the
+// compiler need not reload it past a store that might alias; and the soft
+// threshold has no branch (softThreshold). Common practice, no single
+// source; BenchmarkAdd measures it against gonum's kernels.
+
 // stdDotGo returns Σ θ_j (x_j − μ_j) v_j: θ against x standardized with mean
 // μ and inverse standard deviation v.
 func stdDotGo(theta, x, mu, inv []float64) float64 {
 	n := len(theta)
 	x, mu, inv = x[:n], mu[:n], inv[:n]
-	var s float64
-	for j, t := range theta {
-		s += t * ((x[j] - mu[j]) * inv[j])
+	var s0, s1, s2, s3 float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		t, xx, m, v := theta[j:j+4:j+4], x[j:j+4:j+4], mu[j:j+4:j+4], inv[j:j+4:j+4]
+		s0 += t[0] * ((xx[0] - m[0]) * v[0])
+		s1 += t[1] * ((xx[1] - m[1]) * v[1])
+		s2 += t[2] * ((xx[2] - m[2]) * v[2])
+		s3 += t[3] * ((xx[3] - m[3]) * v[3])
+	}
+	s := (s0 + s2) + (s1 + s3)
+	for ; j < n; j++ {
+		s += theta[j] * ((x[j] - mu[j]) * inv[j])
 	}
 	return s
 }
@@ -34,9 +54,19 @@ func stdDotGo(theta, x, mu, inv []float64) float64 {
 func stdSqGo(x, mu, inv []float64) float64 {
 	n := len(x)
 	mu, inv = mu[:n], inv[:n]
-	var s float64
-	for j, v := range x {
-		u := (v - mu[j]) * inv[j]
+	var s0, s1, s2, s3 float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		xx, m, v := x[j:j+4:j+4], mu[j:j+4:j+4], inv[j:j+4:j+4]
+		u0, u1, u2, u3 := (xx[0]-m[0])*v[0], (xx[1]-m[1])*v[1], (xx[2]-m[2])*v[2], (xx[3]-m[3])*v[3]
+		s0 += u0 * u0
+		s1 += u1 * u1
+		s2 += u2 * u2
+		s3 += u3 * u3
+	}
+	s := (s0 + s2) + (s1 + s3)
+	for ; j < n; j++ {
+		u := (x[j] - mu[j]) * inv[j]
 		s += u * u
 	}
 	return s
@@ -58,28 +88,46 @@ func welfordGo(mu, m2, sxy, x []float64, f, w, wy float64) {
 	n := len(mu)
 	m2, sxy, x = m2[:n], sxy[:n], x[:n]
 	for j, m := range mu {
-		d := x[j] - m
+		v := x[j]
+		d := v - m
 		m += f * d
 		mu[j] = m
-		m2[j] += w * (d * (x[j] - m))
-		sxy[j] += wy * x[j]
+		m2[j] += w * (d * (v - m))
+		sxy[j] += wy * v
 	}
 }
 
 // sagaGo is the coordinate part of one proximal SAGA step (saga.go):
 // q = e·x + s − h·μ, z = θ − c·v·q, θ = prox(z) = soft(z, t)·r, then s += δ·x.
-// The soft threshold is z − clamp(z, −t, t): for finite z and t ≥ 0 it is
-// z − t, z + t or a zero, the value of max(z−t, 0) + min(z+t, 0), in three
-// operations instead of five (TestSoftThreshold).
+// The AVX kernels take the soft threshold as z − clamp(z, −t, t): for
+// finite z and t ≥ 0 it is z − t, z + t or a zero, the value of
+// max(z−t, 0) + min(z+t, 0), in three operations instead of five
+// (TestSoftThreshold); this one as softThreshold, the same value.
 func sagaGo(theta, s, x, mu, inv []float64, e, h, c, t, r, delta float64) {
 	n := len(theta)
 	s, x, mu, inv = s[:n], x[:n], mu[:n], inv[:n]
 	for j, th := range theta {
-		q := (e*x[j] + s[j]) - h*mu[j]
-		z := th - c*(q*inv[j])
-		theta[j] = (z - clamp(z, -t, t)) * r
-		s[j] += delta * x[j]
+		xj, sj := x[j], s[j]
+		q := (e*xj + sj) - h*mu[j]
+		theta[j] = softThreshold(th-c*(q*inv[j]), t) * r
+		s[j] = sj + delta*xj
 	}
+}
+
+// softThreshold returns sign(z)·max(|z| − t, 0) for t ≥ 0, the prox of
+// t|·| (Parikh & Boyd 2014, §6.5.2), on the bits of the floats: |z| − t is
+// rounded as z − t or z + t would be (negation is exact), a negative
+// difference is masked to zero by its own sign bit, and z's sign is put
+// back. It equals z − clamp(z, −t, t) in value (the zeros may differ in
+// sign) without the branches a clamp compiles to or the zero fix-ups of
+// the built-in min and max: the sign of z is random from coordinate to
+// coordinate, so a branch here is mispredicted about half the time.
+func softThreshold(z, t float64) float64 {
+	zb := math.Float64bits(z)
+	sign := zb & (1 << 63)
+	u := math.Float64bits(math.Float64frombits(zb^sign) - t)
+	u &^= uint64(int64(u) >> 63)
+	return math.Float64frombits(u | sign)
 }
 
 // clamp returns z limited to [lo, hi], as the AVX kernels do with VMAXPD
@@ -106,10 +154,20 @@ func stdRowGo(dst, x, mu, inv []float64) {
 
 // dotGo returns Σ a_j b_j.
 func dotGo(a, b []float64) float64 {
-	b = b[:len(a)]
-	var s float64
-	for j, v := range a {
-		s += v * b[j]
+	n := len(a)
+	b = b[:n]
+	var s0, s1, s2, s3 float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		u, v := a[j:j+4:j+4], b[j:j+4:j+4]
+		s0 += u[0] * v[0]
+		s1 += u[1] * v[1]
+		s2 += u[2] * v[2]
+		s3 += u[3] * v[3]
+	}
+	s := (s0 + s2) + (s1 + s3)
+	for ; j < n; j++ {
+		s += a[j] * b[j]
 	}
 	return s
 }
@@ -186,11 +244,25 @@ func welford2Go(mu, m2, sxy, xo, xn []float64, fo, wo, wyo, fn, wn, wyn float64)
 // stdPrepGo standardizes x into xa and row into xt, (x_j − μ_j)·v_j, and
 // returns Σ ((x_j − ρ_j) u_j)² and Σ xa_j²: in one pass, what an arriving
 // record needs of its features (the squared norms on the reference scale ρ,
-// u and on the working scale μ, v bound the step size).
+// u and on the working scale μ, v bound the step size). The sums are
+// stdSqGo's, to the bit.
 func stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork float64) {
 	n := len(xa)
 	xt, x, row, mu, inv, refMu, refInv = xt[:n], x[:n], row[:n], mu[:n], inv[:n], refMu[:n], refInv[:n]
-	for j := range xa {
+	var w, f [4]float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		for l := range 4 {
+			u := (x[j+l] - mu[j+l]) * inv[j+l]
+			xa[j+l] = u
+			w[l] += u * u
+			r := (x[j+l] - refMu[j+l]) * refInv[j+l]
+			f[l] += r * r
+			xt[j+l] = (row[j+l] - mu[j+l]) * inv[j+l]
+		}
+	}
+	sqWork, sqRef = (w[0]+w[2])+(w[1]+w[3]), (f[0]+f[2])+(f[1]+f[3])
+	for ; j < n; j++ {
 		u := (x[j] - mu[j]) * inv[j]
 		xa[j] = u
 		sqWork += u * u
@@ -207,7 +279,23 @@ func stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork 
 func stdPrep1Go(theta, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork, da, dt float64) {
 	n := len(theta)
 	x, row, mu, inv, refMu, refInv = x[:n], row[:n], mu[:n], inv[:n], refMu[:n], refInv[:n]
-	for j, th := range theta {
+	var w, f, a, b [4]float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		for l := range 4 {
+			th := theta[j+l]
+			u := (x[j+l] - mu[j+l]) * inv[j+l]
+			w[l] += u * u
+			a[l] += th * u
+			r := (x[j+l] - refMu[j+l]) * refInv[j+l]
+			f[l] += r * r
+			b[l] += th * ((row[j+l] - mu[j+l]) * inv[j+l])
+		}
+	}
+	sqWork, sqRef = (w[0]+w[2])+(w[1]+w[3]), (f[0]+f[2])+(f[1]+f[3])
+	da, dt = (a[0]+a[2])+(a[1]+a[3]), (b[0]+b[2])+(b[1]+b[3])
+	for ; j < n; j++ {
+		th := theta[j]
 		u := (x[j] - mu[j]) * inv[j]
 		sqWork += u * u
 		da += th * u
@@ -230,8 +318,8 @@ type stepParam struct {
 
 // sagaAllGo is sagaGo for every member k, θ_k = theta[k·d:], s_k = s[k·d:],
 // with the scalars of prm[k] and c; d = len(x). With xa set it folds in the
-// arrival first (as sagaArrive0Go, without the copy), and with xn set it returns θ_k against xn
-// in prm[k].dot.
+// arrival first (as sagaArrive0Go, without the copy), and with xn set it
+// returns θ_k against xn in prm[k].dot.
 func sagaAllGo(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c float64) {
 	d := len(x)
 	for k := range prm {
