@@ -1,7 +1,5 @@
 package online
 
-import "math"
-
 //go:generate go run ./asm -out kernel_amd64.s
 
 // The per-step vector kernels of the learners. Each has a portable Go
@@ -102,45 +100,34 @@ func welfordGo(mu, m2, sxy, x []float64, f, w, wy float64) {
 // The AVX kernels take the soft threshold as z − clamp(z, −t, t): for
 // finite z and t ≥ 0 it is z − t, z + t or a zero, the value of
 // max(z−t, 0) + min(z+t, 0), in three operations instead of five
-// (TestSoftThreshold); this one as softThreshold, the same value.
+// (TestSoftThreshold); softThreshold gives the same value.
 func sagaGo(theta, s, x, mu, inv []float64, e, h, c, t, r, delta float64) {
 	n := len(theta)
 	s, x, mu, inv = s[:n], x[:n], mu[:n], inv[:n]
 	for j, th := range theta {
 		xj, sj := x[j], s[j]
-		q := (e*xj + sj) - h*mu[j]
-		theta[j] = softThreshold(th-c*(q*inv[j]), t) * r
+		theta[j] = sagaCoord(th, xj, sj, mu[j], inv[j], e, h, c, t, r)
 		s[j] = sj + delta*xj
 	}
 }
 
-// softThreshold returns sign(z)·max(|z| − t, 0) for t ≥ 0, the prox of
-// t|·| (Parikh & Boyd 2014, §6.5.2), on the bits of the floats: |z| − t is
-// rounded as z − t or z + t would be (negation is exact), a negative
-// difference is masked to zero by its own sign bit, and z's sign is put
-// back. It equals z − clamp(z, −t, t) in value (the zeros may differ in
-// sign) without the branches a clamp compiles to or the zero fix-ups of
-// the built-in min and max: the sign of z is random from coordinate to
-// coordinate, so a branch here is mispredicted about half the time.
-func softThreshold(z, t float64) float64 {
-	zb := math.Float64bits(z)
-	sign := zb & (1 << 63)
-	u := math.Float64bits(math.Float64frombits(zb^sign) - t)
-	u &^= uint64(int64(u) >> 63)
-	return math.Float64frombits(u | sign)
+// sagaFoldGo is sagaGo after s += a·xa + b·xo, in one pass: per element
+// what axpy2Go and then sagaGo do.
+func sagaFoldGo(theta, s, x, mu, inv, xa, xo []float64, e, h, c, t, r, delta, a, b float64) {
+	n := len(theta)
+	s, x, mu, inv, xa, xo = s[:n], x[:n], mu[:n], inv[:n], xa[:n], xo[:n]
+	for j, th := range theta {
+		xj, sj := x[j], s[j]+(a*xa[j]+b*xo[j])
+		theta[j] = sagaCoord(th, xj, sj, mu[j], inv[j], e, h, c, t, r)
+		s[j] = sj + delta*xj
+	}
 }
 
-// clamp returns z limited to [lo, hi], as the AVX kernels do with VMAXPD
-// then VMINPD (they may differ in the sign of a zero; NaN cannot reach
-// either from validated input).
-func clamp(z, lo, hi float64) float64 {
-	if z < lo {
-		z = lo
-	}
-	if z > hi {
-		z = hi
-	}
-	return z
+// sagaCoord is the new θ_j of a step, soft(θ_j − c·v_j·q_j, t)·r with
+// q_j = e·x_j + s_j − h·μ_j.
+func sagaCoord(th, xj, sj, muj, vj, e, h, c, t, r float64) float64 {
+	q := (e*xj + sj) - h*muj
+	return softThreshold(th-c*(q*vj), t) * r
 }
 
 // stdRowGo writes x standardized, (x_j − μ_j)·v_j, to dst.
@@ -191,8 +178,7 @@ func sagaDotRawGo(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float
 // sagaArrive0Go folds a new record (a·xa) and an evicted one (b·xo) into s,
 // runs sagaGo, and then copies xa to dst (which may be xo).
 func sagaArrive0Go(theta, s, x, mu, inv, xa, xo, dst []float64, e, h, c, t, r, delta, a, b float64) {
-	axpy2Go(a, xa, b, xo, s)
-	sagaGo(theta, s, x, mu, inv, e, h, c, t, r, delta)
+	sagaFoldGo(theta, s, x, mu, inv, xa, xo, e, h, c, t, r, delta, a, b)
 	copy(dst, xa)
 }
 
@@ -326,9 +312,10 @@ func sagaAllGo(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c fl
 		p := &prm[k]
 		th, sk := theta[k*d:(k+1)*d], s[k*d:(k+1)*d]
 		if xa != nil {
-			axpy2Go(p.a, xa, p.b, xo, sk)
+			sagaFoldGo(th, sk, x, mu, inv, xa, xo, p.e, p.h, c, p.t, p.r, p.delta, p.a, p.b)
+		} else {
+			sagaGo(th, sk, x, mu, inv, p.e, p.h, c, p.t, p.r, p.delta)
 		}
-		sagaGo(th, sk, x, mu, inv, p.e, p.h, c, p.t, p.r, p.delta)
 		if xn != nil {
 			p.dot = dotGo(th, xn)
 		}
