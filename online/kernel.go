@@ -123,6 +123,37 @@ func sagaFoldGo(theta, s, x, mu, inv, xa, xo []float64, e, h, c, t, r, delta, a,
 	}
 }
 
+// sagaDotGo is sagaGo returning Σ θ_new,j·xn_j, summed in order as the
+// step goes (the loop is long enough that one accumulator does not hold it
+// up), and sagaFoldDotGo is sagaFoldGo doing the same.
+func sagaDotGo(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64 {
+	n := len(theta)
+	s, x, mu, inv, xn = s[:n], x[:n], mu[:n], inv[:n], xn[:n]
+	var acc float64
+	for j, th := range theta {
+		xj, sj := x[j], s[j]
+		th = sagaCoord(th, xj, sj, mu[j], inv[j], e, h, c, t, r)
+		theta[j] = th
+		acc += th * xn[j]
+		s[j] = sj + delta*xj
+	}
+	return acc
+}
+
+func sagaFoldDotGo(theta, s, x, mu, inv, xa, xo, xn []float64, e, h, c, t, r, delta, a, b float64) float64 {
+	n := len(theta)
+	s, x, mu, inv, xa, xo, xn = s[:n], x[:n], mu[:n], inv[:n], xa[:n], xo[:n], xn[:n]
+	var acc float64
+	for j, th := range theta {
+		xj, sj := x[j], s[j]+(a*xa[j]+b*xo[j])
+		th = sagaCoord(th, xj, sj, mu[j], inv[j], e, h, c, t, r)
+		theta[j] = th
+		acc += th * xn[j]
+		s[j] = sj + delta*xj
+	}
+	return acc
+}
+
 // sagaCoord is the new θ_j of a step, soft(θ_j − c·v_j·q_j, t)·r with
 // q_j = e·x_j + s_j − h·μ_j.
 func sagaCoord(th, xj, sj, muj, vj, e, h, c, t, r float64) float64 {
@@ -311,13 +342,15 @@ func sagaAllGo(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c fl
 	for k := range prm {
 		p := &prm[k]
 		th, sk := theta[k*d:(k+1)*d], s[k*d:(k+1)*d]
-		if xa != nil {
+		switch {
+		case xa != nil && xn != nil:
+			p.dot = sagaFoldDotGo(th, sk, x, mu, inv, xa, xo, xn, p.e, p.h, c, p.t, p.r, p.delta, p.a, p.b)
+		case xa != nil:
 			sagaFoldGo(th, sk, x, mu, inv, xa, xo, p.e, p.h, c, p.t, p.r, p.delta, p.a, p.b)
-		} else {
+		case xn != nil:
+			p.dot = sagaDotGo(th, sk, x, mu, inv, xn, p.e, p.h, c, p.t, p.r, p.delta)
+		default:
 			sagaGo(th, sk, x, mu, inv, p.e, p.h, c, p.t, p.r, p.delta)
-		}
-		if xn != nil {
-			p.dot = dotGo(th, xn)
 		}
 	}
 }
@@ -327,8 +360,33 @@ func sagaAllGo(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c fl
 func dot2AllGo(theta, x, y, out []float64) {
 	d := len(x)
 	for k := range len(out) / 2 {
-		out[2*k], out[2*k+1] = dotGo(theta[k*d:(k+1)*d], x), dotGo(theta[k*d:(k+1)*d], y)
+		out[2*k], out[2*k+1] = dot2Go(theta[k*d:(k+1)*d], x, y)
 	}
+}
+
+// dot2Go returns dotGo(a, x) and dotGo(a, y), to the bit, in one pass.
+func dot2Go(a, x, y []float64) (float64, float64) {
+	n := len(a)
+	x, y = x[:n], y[:n]
+	var s0, s1, s2, s3, t0, t1, t2, t3 float64
+	j := 0
+	for ; j+4 <= n; j += 4 {
+		u, v, w := a[j:j+4:j+4], x[j:j+4:j+4], y[j:j+4:j+4]
+		s0 += u[0] * v[0]
+		s1 += u[1] * v[1]
+		s2 += u[2] * v[2]
+		s3 += u[3] * v[3]
+		t0 += u[0] * w[0]
+		t1 += u[1] * w[1]
+		t2 += u[2] * w[2]
+		t3 += u[3] * w[3]
+	}
+	s, t := (s0+s2)+(s1+s3), (t0+t2)+(t1+t3)
+	for ; j < n; j++ {
+		s += a[j] * x[j]
+		t += a[j] * y[j]
+	}
+	return s, t
 }
 
 // sumRowsGo adds Σ_r g[r·k+m]·x[r·d:(r+1)·d] to s[m·d:(m+1)·d] for every
