@@ -204,10 +204,19 @@ func axpy2Go(a float64, x []float64, b float64, y, s []float64) {
 }
 
 // sagaDotRawGo runs sagaGo and returns the new θ against the raw record
-// xn standardized, Σ θ_j (xn_j − μ_j) v_j.
+// xn standardized, Σ θ_j (xn_j − μ_j) v_j, in the same pass.
 func sagaDotRawGo(theta, s, x, mu, inv, xn []float64, e, h, c, t, r, delta float64) float64 {
-	sagaGo(theta, s, x, mu, inv, e, h, c, t, r, delta)
-	return stdDotGo(theta, xn, mu, inv)
+	n := len(theta)
+	s, x, mu, inv, xn = s[:n], x[:n], mu[:n], inv[:n], xn[:n]
+	var acc float64
+	for j, th := range theta {
+		xj, sj, mj, vj := x[j], s[j], mu[j], inv[j]
+		th = sagaCoord(th, xj, sj, mj, vj, e, h, c, t, r)
+		theta[j] = th
+		acc += th * ((xn[j] - mj) * vj)
+		s[j] = sj + delta*xj
+	}
+	return acc
 }
 
 // sagaArrive0Go folds a new record (a·xa) and an evicted one (b·xo) into s,
@@ -218,10 +227,22 @@ func sagaArrive0Go(theta, s, x, mu, inv, xa, xo, dst []float64, e, h, c, t, r, d
 }
 
 // sagaArriveRawGo is sagaArrive0Go returning the new θ against the raw
-// record xn standardized.
+// record xn standardized, in one pass (dst may be xo: each xo_j is read
+// before dst_j is written).
 func sagaArriveRawGo(theta, s, x, mu, inv, xa, xo, xn, dst []float64, e, h, c, t, r, delta, a, b float64) float64 {
-	sagaArrive0Go(theta, s, x, mu, inv, xa, xo, dst, e, h, c, t, r, delta, a, b)
-	return stdDotGo(theta, xn, mu, inv)
+	n := len(theta)
+	s, x, mu, inv, xa, xo, xn, dst = s[:n], x[:n], mu[:n], inv[:n], xa[:n], xo[:n], xn[:n], dst[:n]
+	var acc float64
+	for j, th := range theta {
+		va, mj, vj := xa[j], mu[j], inv[j]
+		xj, sj := x[j], s[j]+(a*va+b*xo[j])
+		dst[j] = va
+		th = sagaCoord(th, xj, sj, mj, vj, e, h, c, t, r)
+		theta[j] = th
+		acc += th * ((xn[j] - mj) * vj)
+		s[j] = sj + delta*xj
+	}
+	return acc
 }
 
 // imputeGo copies x to dst with NaN replaced by mean and reports whether
