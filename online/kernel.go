@@ -21,15 +21,17 @@ package online
 // machine always uses the same one, so results stay bit-identical run to
 // run.
 
-// The portable kernels are shaped for a scalar out-of-order core: a sum
-// runs in four accumulators (lanes j mod 4 of the blocks of four, added as
-// (l0 + l2) + (l1 + l3), then the tail in order, the order of the AVX
-// kernels' one YMM accumulator), so that its additions do not wait on each
-// other; a value read and then written stays in a local, so that the
-// compiler need not reload it past a store that might alias; a step that
-// also folds in an arrival or returns a dot product does so in the same
-// pass; and the soft threshold has no branch (softThreshold). Common
-// practice, no single source; BenchmarkAdd measures it.
+// The portable kernels are shaped for a scalar out-of-order core: a dot
+// product runs in four accumulators (lanes j mod 4 of the blocks of four,
+// added as (l0 + l2) + (l1 + l3), then the tail in order, the order of the
+// AVX kernels' one YMM accumulator), so that its additions do not wait on
+// each other (a loop that already carries several sums, as stdPrepGo,
+// keeps them in order: it measured faster so); a value read and then
+// written stays in a local, so that the compiler need not reload it past a
+// store that might alias; a step that also folds in an arrival or returns
+// a dot product does so in the same pass; and the soft threshold has no
+// branch (softThreshold). Common practice, no single source; BenchmarkAdd
+// measures it.
 
 // stdDotGo returns Σ θ_j (x_j − μ_j) v_j: θ against x standardized with mean
 // μ and inverse standard deviation v.
@@ -56,19 +58,9 @@ func stdDotGo(theta, x, mu, inv []float64) float64 {
 func stdSqGo(x, mu, inv []float64) float64 {
 	n := len(x)
 	mu, inv = mu[:n], inv[:n]
-	var s0, s1, s2, s3 float64
-	j := 0
-	for ; j+4 <= n; j += 4 {
-		xx, m, v := x[j:j+4:j+4], mu[j:j+4:j+4], inv[j:j+4:j+4]
-		u0, u1, u2, u3 := (xx[0]-m[0])*v[0], (xx[1]-m[1])*v[1], (xx[2]-m[2])*v[2], (xx[3]-m[3])*v[3]
-		s0 += u0 * u0
-		s1 += u1 * u1
-		s2 += u2 * u2
-		s3 += u3 * u3
-	}
-	s := (s0 + s2) + (s1 + s3)
-	for ; j < n; j++ {
-		u := (x[j] - mu[j]) * inv[j]
+	var s float64
+	for j, v := range x {
+		u := (v - mu[j]) * inv[j]
 		s += u * u
 	}
 	return s
@@ -286,25 +278,11 @@ func welford2Go(mu, m2, sxy, xo, xn []float64, fo, wo, wyo, fn, wn, wyn float64)
 // stdPrepGo standardizes x into xa and row into xt, (x_j − μ_j)·v_j, and
 // returns Σ ((x_j − ρ_j) u_j)² and Σ xa_j²: in one pass, what an arriving
 // record needs of its features (the squared norms on the reference scale ρ,
-// u and on the working scale μ, v bound the step size). The sums are
-// stdSqGo's, to the bit.
+// u and on the working scale μ, v bound the step size).
 func stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork float64) {
 	n := len(xa)
 	xt, x, row, mu, inv, refMu, refInv = xt[:n], x[:n], row[:n], mu[:n], inv[:n], refMu[:n], refInv[:n]
-	var w, f [4]float64
-	j := 0
-	for ; j+4 <= n; j += 4 {
-		for l := range 4 {
-			u := (x[j+l] - mu[j+l]) * inv[j+l]
-			xa[j+l] = u
-			w[l] += u * u
-			r := (x[j+l] - refMu[j+l]) * refInv[j+l]
-			f[l] += r * r
-			xt[j+l] = (row[j+l] - mu[j+l]) * inv[j+l]
-		}
-	}
-	sqWork, sqRef = (w[0]+w[2])+(w[1]+w[3]), (f[0]+f[2])+(f[1]+f[3])
-	for ; j < n; j++ {
+	for j := range xa {
 		u := (x[j] - mu[j]) * inv[j]
 		xa[j] = u
 		sqWork += u * u
@@ -321,23 +299,7 @@ func stdPrepGo(xa, xt, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork 
 func stdPrep1Go(theta, x, row, mu, inv, refMu, refInv []float64) (sqRef, sqWork, da, dt float64) {
 	n := len(theta)
 	x, row, mu, inv, refMu, refInv = x[:n], row[:n], mu[:n], inv[:n], refMu[:n], refInv[:n]
-	var w, f, a, b [4]float64
-	j := 0
-	for ; j+4 <= n; j += 4 {
-		for l := range 4 {
-			th := theta[j+l]
-			u := (x[j+l] - mu[j+l]) * inv[j+l]
-			w[l] += u * u
-			a[l] += th * u
-			r := (x[j+l] - refMu[j+l]) * refInv[j+l]
-			f[l] += r * r
-			b[l] += th * ((row[j+l] - mu[j+l]) * inv[j+l])
-		}
-	}
-	sqWork, sqRef = (w[0]+w[2])+(w[1]+w[3]), (f[0]+f[2])+(f[1]+f[3])
-	da, dt = (a[0]+a[2])+(a[1]+a[3]), (b[0]+b[2])+(b[1]+b[3])
-	for ; j < n; j++ {
-		th := theta[j]
+	for j, th := range theta {
 		u := (x[j] - mu[j]) * inv[j]
 		sqWork += u * u
 		da += th * u
