@@ -10,7 +10,7 @@ package online
 // coordinate: at K = 12 members the ladder with it takes 1.3–2.1× the time
 // of the bare gonum dot products and axpys it is benchmarked against
 // (bench_test.go), and with the portable kernels 4–8× (scalar Go against
-// gonum's SSE2; 2–4× when gonum too is built without assembly, as on
+// gonum's SSE2; 2–5× when gonum too is built without assembly, as on
 // arm64). The kernels are fused so that an arriving record costs few
 // passes over its d features: one to validate it (impute), one to
 // standardize it (stdPrep), one for the scaler (welford2), and the first
