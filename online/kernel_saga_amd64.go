@@ -2,7 +2,7 @@
 
 package online
 
-// The proximal SAGA step kernels of kernel_saga_amd64.s and their
+// The proximal SAGA step kernels of kernel_amd64.s and their
 // dispatchers (see kernel.go for the portable versions). The dispatchers
 // check lengths once: the assembly trusts them.
 

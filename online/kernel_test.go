@@ -217,28 +217,44 @@ func TestFusedKernelsExact(t *testing.T) {
 	}
 }
 
-// TestSoftThreshold: the kernels' soft threshold z − clamp(z, −t, t) equals
-// max(z−t, 0) + min(z+t, 0), the prox of t|·| (Parikh & Boyd 2014, §6.5.2),
-// for finite z and t ≥ 0: the Go form to the bit, zeros included, and the
-// AVX kernel (through saga with a zero step) in value.
+// clamp returns z limited to [lo, hi], as the AVX kernels do with VMAXPD
+// then VMINPD (they may differ in the sign of a zero; NaN cannot reach
+// either from validated input).
+func clamp(z, lo, hi float64) float64 {
+	if z < lo {
+		z = lo
+	}
+	if z > hi {
+		z = hi
+	}
+	return z
+}
+
+// TestSoftThreshold: the kernels' soft threshold equals
+// max(z−t, 0) + min(z+t, 0), the prox of t|·| (Parikh & Boyd 2014,
+// §6.5.2), for finite z and t ≥ 0: the AVX form z − clamp(z, −t, t) to the
+// bit, zeros included; the portable softThreshold in value, and to the bit
+// where it is not zero; and the step kernel of this build (through saga
+// with a zero step) in value.
 func TestSoftThreshold(t *testing.T) {
 	r := rand.New(rand.NewPCG(7, 8))
-	zs := []float64{0, math.Copysign(0, -1), 1, -1, 0.5, -0.5, 1e-300, -1e-300, 3e300, -3e300}
-	ts := []float64{0, 0.5, 1, 1e-300, 2e300}
+	zs := []float64{0, math.Copysign(0, -1), 1, -1, 0.5, -0.5, 1e-300, -1e-300, 3e300, -3e300, math.MaxFloat64, -math.MaxFloat64, 5e-324, -5e-324}
+	ts := []float64{0, 0.5, 1, 1e-300, 2e300, 5e-324}
 	for range 2000 {
 		zs = append(zs, r.NormFloat64()*math.Pow(10, float64(r.IntN(20)-10)))
 		ts = append(ts, math.Abs(r.NormFloat64()))
 	}
+	same := func(got, want float64) bool {
+		return got == want && (want == 0 || math.Float64bits(got) == math.Float64bits(want))
+	}
 	for _, tv := range ts {
-		for _, z := range zs {
+		for _, z := range append(clone(zs), tv, -tv) {
 			want := max(z-tv, 0) + min(z+tv, 0)
 			if got := z - clamp(z, -tv, tv); math.Float64bits(got) != math.Float64bits(want) {
-				t.Fatalf("z=%v t=%v: %v, want %v", z, tv, got, want)
+				t.Fatalf("clamp form: z=%v t=%v: %v, want %v", z, tv, got, want)
 			}
-		}
-		for _, z := range []float64{tv, -tv} {
-			if got, want := z-clamp(z, -tv, tv), max(z-tv, 0)+min(z+tv, 0); math.Float64bits(got) != math.Float64bits(want) {
-				t.Fatalf("z=±t=%v: %v, want %v", z, got, want)
+			if got := softThreshold(z, tv); !same(got, want) {
+				t.Fatalf("softThreshold: z=%v t=%v: %v, want %v", z, tv, got, want)
 			}
 		}
 		// With c = 0 and r = 1 a step is θ = soft(θ, t).
