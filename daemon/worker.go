@@ -25,9 +25,15 @@ const reasonQueueFull = "queue_full"
 // the model goroutine. Items cycle between worker.free and worker.queue, so
 // the steady state allocates nothing of ours.
 type item struct {
-	rec   record.Record
-	names []string  // the decoder's feature order when rec was decoded (shared, read-only)
-	msg   *nats.Msg // the original message (bytes for rejects; ack hook for a durable intake)
+	rec     record.Record
+	names   []string // the decoder's feature order when rec was decoded (shared, read-only)
+	subject string   // the message's subject
+	data    []byte   // the message's bytes (republished with a reject)
+	seq     uint64   // stream sequence of a durable intake; 0 from core NATS
+	// reason and detail are set for a durable record that could not be
+	// decoded: it goes through the queue so that the model's stream
+	// position moves past it in order.
+	reason, detail string
 }
 
 // worker runs one model. Its intake half (intake) runs on the goroutine of
@@ -105,8 +111,9 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 	return w, nil
 }
 
-// intake decodes one message and queues it for the model goroutine, or
-// rejects it. It runs on the subscription's goroutine and never blocks.
+// intake decodes one core NATS message and queues it for the model
+// goroutine, or rejects it. It runs on the subscription's goroutine and
+// never blocks: a full queue rejects the record (queue_full).
 func (w *worker) intake(m *nats.Msg) {
 	var it *item
 	select {
@@ -123,8 +130,30 @@ func (w *worker) intake(m *nats.Msg) {
 		return
 	}
 	it.names = w.dec.Names()
-	it.msg = m
+	it.subject, it.data, it.seq = m.Subject, m.Data, 0
 	w.queue <- it // never blocks: at most cap(queue) items exist
+}
+
+// intakeSeq decodes one message of the model's stream (sequence seq) and
+// queues it, waiting for room: the stream is the buffer, so nothing is
+// dropped. A record that cannot be decoded is queued too, marked, so that
+// the model goroutine rejects it and moves the stream position past it in
+// order. It returns false, queueing nothing, once stop is closed.
+func (w *worker) intakeSeq(subject string, data []byte, seq uint64, stop <-chan struct{}) bool {
+	var it *item
+	select {
+	case it = <-w.free:
+	case <-stop:
+		return false
+	}
+	it.reason, it.detail = "", ""
+	if err := w.dec.Decode(data, &it.rec); err != nil {
+		it.reason, it.detail = decodeReason(err)
+	}
+	it.names = w.dec.Names()
+	it.subject, it.data, it.seq = subject, data, seq
+	w.queue <- it
+	return true
 }
 
 // batch bounds the records applied in a row before the model goroutine
@@ -186,10 +215,15 @@ func (w *worker) apply(it *item) { w.applyAt(it, time.Now()) }
 // retune.every-th record runs), sends the alerts the record raised and
 // returns the time it finished.
 func (w *worker) applyAt(it *item, start time.Time) time.Time {
+	if it.reason != "" {
+		w.d.reject(w, it.subject, it.reason, it.detail, it.data)
+		w.done1(it)
+		return time.Now()
+	}
 	st, err := w.pipe.Apply(&it.rec, it.names, start)
 	if err != nil {
 		reason, detail := decodeReason(err)
-		w.d.reject(w, it.msg.Subject, reason, detail, it.msg.Data)
+		w.d.reject(w, it.subject, reason, detail, it.data)
 		w.done1(it)
 		return time.Now()
 	}
@@ -220,11 +254,13 @@ func (w *worker) report(st *pipeline.Step) {
 	}
 }
 
-// done1 hands an item back to the intake. A durable (JetStream) intake
-// would acknowledge it.msg here, after the record is applied or rejected.
+// done1 moves the model's stream position past a durable record, applied
+// or rejected, and hands the item back to the intake.
 func (w *worker) done1(it *item) {
-	it.msg = nil
-	it.names = nil
+	if it.seq > 0 {
+		w.pipe.SetPosition(it.seq)
+	}
+	it.data, it.names = nil, nil
 	w.free <- it
 }
 

@@ -63,9 +63,10 @@ type Pipeline struct {
 	watch *watch
 	tuner *tuner // nil for a squared-loss model
 
-	version uint64
-	last    *sink.ModelDoc
-	lastPub time.Time
+	version  uint64
+	last     *sink.ModelDoc
+	lastPub  time.Time
+	position uint64 // the last stream sequence applied or rejected (durable intake)
 
 	step Step
 }
@@ -418,6 +419,14 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	}
 	return &Snapshot{Doc: doc, Model: &m, Names: names}, nil
 }
+
+// SetPosition records seq as the last sequence of the model's stream that
+// has been applied or rejected: a restored pipeline continues after it.
+func (p *Pipeline) SetPosition(seq uint64) { p.position = seq }
+
+// Position returns the last stream sequence applied or rejected (0 before
+// any, and always with core NATS intake).
+func (p *Pipeline) Position() uint64 { return p.position }
 
 // RaiseVersion makes the next version at least v+1 (versions stay monotone
 // across restarts: v is the last version found in the key-value bucket).
