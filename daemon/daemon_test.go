@@ -309,12 +309,12 @@ func TestConcurrentModels(t *testing.T) {
 	models := []config.Model{
 		testModel("conc-a", "test.conc.a", config.LossSquared),
 		testModel("conc-b", "test.conc.b", config.LossLogistic),
-		testModel("conc-c", "test.conc.*", config.LossSquared), // wildcard, overlaps a and b
+		testModel("conc-c", "test.conc.*", config.LossSquared), // wildcard, overlaps a and b (core intake only)
 	}
 	for i := range models {
 		models[i].Queue = 2 * n // this test is about concurrency, not back-pressure
 	}
-	td := startDaemon(t, testConfig(t, models...))
+	td := startDaemon(t, testConfigMode(t, config.IntakeCore, models...))
 	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	var wg sync.WaitGroup
 	for i, m := range models[:2] {

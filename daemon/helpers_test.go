@@ -36,7 +36,14 @@ func testModel(name, subject, loss string) config.Model {
 // random loopback port, HTTP on a random port and data in a temp dir.
 func testConfig(t testing.TB, models ...config.Model) *config.Config {
 	t.Helper()
+	return testConfigMode(t, config.IntakeAuto, models...)
+}
+
+// testConfigMode is testConfig with the given intake mode.
+func testConfigMode(t testing.TB, mode string, models ...config.Model) *config.Config {
+	t.Helper()
 	cfg := config.Default()
+	cfg.Intake.Mode = mode
 	cfg.NATS.Listen = "127.0.0.1:-1"
 	cfg.HTTP.Listen = "127.0.0.1:0"
 	cfg.DataDir = t.TempDir()
