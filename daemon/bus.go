@@ -10,6 +10,7 @@ import (
 
 	"github.com/nats-io/nats.go"
 
+	"lariat/config"
 	"lariat/sink"
 )
 
@@ -123,6 +124,12 @@ func (d *Daemon) explainConnErr(err error) error {
 func (d *Daemon) watchBus(ctx context.Context) {
 	poll := time.NewTicker(50 * time.Millisecond)
 	defer poll.Stop()
+	setUp := false
+	defer func() {
+		if !setUp {
+			close(d.busDone)
+		}
+	}()
 	for !d.nc.IsConnected() || d.nc.FlushTimeout(2*time.Second) != nil {
 		select {
 		case <-ctx.Done():
@@ -132,6 +139,14 @@ func (d *Daemon) watchBus(ctx context.Context) {
 	}
 	d.pub.Store(d.openPublisher(ctx))
 	d.out.kick()
+	err := d.startIntake(ctx)
+	setUp = true
+	close(d.busDone)
+	if err != nil {
+		d.intakeErr.Store(&err)
+		d.log.Error("intake not started: no records will be applied", "err", err)
+		return
+	}
 	d.busReady.Store(true)
 	d.log.Info("ready", "models", len(d.workers))
 	drops := time.NewTicker(time.Second)
@@ -145,6 +160,31 @@ func (d *Daemon) watchBus(ctx context.Context) {
 			d.in.countDrops()
 		}
 	}
+}
+
+// startIntake starts the models' intake once the bus is up: the durable
+// streams (intake.mode durable, or auto where JetStream answers), or core
+// subscriptions (auto without JetStream; core mode subscribed at start).
+func (d *Daemon) startIntake(ctx context.Context) error {
+	mode := d.cfg.Intake.Mode
+	if mode == config.IntakeCore {
+		return nil
+	}
+	s, err := newStreamIntake(ctx, d)
+	if err != nil {
+		if mode == config.IntakeDurable {
+			return err
+		}
+		d.log.Warn("JetStream unavailable: intake falls back to core NATS subscriptions (at most once: records published while lariat is down are lost)", "err", err)
+		return d.subscribeModels()
+	}
+	if err := s.start(ctx); err != nil {
+		close(s.stop)
+		return err
+	}
+	d.streams = s
+	d.log.Info("durable intake", "streams", describeStreams(d.cfg))
+	return nil
 }
 
 // openPublisher opens the sink publisher with the model KV bucket, or without

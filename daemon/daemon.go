@@ -60,16 +60,19 @@ type Daemon struct {
 	// Set while starting, read-only afterwards (published by closing started).
 	srv      *server.Server
 	nc       *nats.Conn
-	in       ingest
+	in       ingest        // core subscriptions: score subjects, and model subjects with core intake
+	streams  *streamIntake // durable intake; nil with core intake (set by watchBus, read after it joined)
 	httpSrv  *http.Server
 	httpAddr string
 	natsURL  string
 
-	conn     atomic.Pointer[nats.Conn] // d.nc for Ready, which HTTP may call while Run is starting
-	pub      atomic.Pointer[sink.Publisher]
-	busReady atomic.Bool // connected, subscriptions confirmed, publisher up
-	stopBus  context.CancelFunc
-	stopping atomic.Bool
+	conn      atomic.Pointer[nats.Conn] // d.nc for Ready, which HTTP may call while Run is starting
+	pub       atomic.Pointer[sink.Publisher]
+	busReady  atomic.Bool           // connected, subscriptions confirmed, publisher up
+	intakeErr atomic.Pointer[error] // why the intake could not start, if it could not
+	stopBus   context.CancelFunc
+	busDone   chan struct{} // closed when watchBus has finished setting up the intake
+	stopping  atomic.Bool
 
 	closeOnce sync.Once
 }
@@ -186,6 +189,8 @@ func (d *Daemon) Ready() error {
 			return fmt.Errorf("NATS not connected (%s): %w", nc.Status(), d.explainConnErr(err))
 		}
 		return fmt.Errorf("NATS not connected (%s)", nc.Status())
+	case d.intakeErr.Load() != nil:
+		return fmt.Errorf("intake not started: %w", *d.intakeErr.Load())
 	case !d.busReady.Load():
 		return errors.New("subscriptions not confirmed yet")
 	}
@@ -230,18 +235,29 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 		w.running.Store(true) // before the goroutine starts, so wait never misses it
 		wg.Go(w.run)
 	}
-	for subject, ws := range d.routes {
-		if err := d.in.subscribe(subject, ws, d.handler(subject, ws)); err != nil {
-			return fmt.Errorf("daemon: subscribing %s: %w", subject, err)
+	if d.cfg.Intake.Mode == config.IntakeCore {
+		if err := d.subscribeModels(); err != nil {
+			return err
 		}
-	}
+	} // else the durable intake starts once the bus is up (watchBus)
 	// Unlabeled records to score (logistic models' score_subject, scoring.go).
 	if err := d.subscribeScoring(); err != nil {
 		return err
 	}
 	busCtx, cancel := context.WithCancel(context.Background())
 	d.stopBus = cancel
+	d.busDone = make(chan struct{})
 	wg.Go(func() { d.watchBus(busCtx) })
+	return nil
+}
+
+// subscribeModels subscribes the models' subjects with core NATS.
+func (d *Daemon) subscribeModels() error {
+	for subject, ws := range d.routes {
+		if err := d.in.subscribe(subject, ws, d.handler(subject, ws)); err != nil {
+			return fmt.Errorf("daemon: subscribing %s: %w", subject, err)
+		}
+	}
 	return nil
 }
 
@@ -333,6 +349,14 @@ func (d *Daemon) stopAll(wg *sync.WaitGroup) error {
 	}
 	if d.stopBus != nil {
 		d.stopBus()
+		<-d.busDone // the durable intake, if any, is set up or given up
+	}
+	if d.streams != nil {
+		dctx, dcancel := context.WithTimeout(ctx, d.drainTO)
+		if err := d.streams.drain(dctx); err != nil {
+			errs = append(errs, err)
+		}
+		dcancel()
 	}
 	// 2. Drain the queues: each model applies what it holds, publishes its
 	// final document and returns.

@@ -192,7 +192,8 @@ func TestReadiness(t *testing.T) {
 	if resp.StatusCode != http.StatusOK {
 		t.Errorf("/healthz %d, want 200 while NATS is down", resp.StatusCode)
 	}
-	srv := runServer(t, port)
+	store := t.TempDir() // the restarted server keeps its JetStream store, as a real one does
+	srv := runServer(t, port, store)
 	ready := func() error {
 		if code := readyz(); code != http.StatusOK {
 			return fmt.Errorf("/readyz %d", code)
@@ -209,7 +210,7 @@ func TestReadiness(t *testing.T) {
 		}
 		return nil
 	})
-	runServer(t, port)
+	runServer(t, port, store)
 	natstest.WaitFor(t, 15*time.Second, ready)
 	if got := metricValue(t, td.Daemon, "lariat_nats_reconnects_total", nil); got < 1 {
 		t.Errorf("lariat_nats_reconnects_total %v after a server restart", got)
@@ -228,14 +229,16 @@ func TestReadiness(t *testing.T) {
 	})
 }
 
-// TestGracefulShutdown stops the daemon with records in flight: every
-// record the subscription received is applied (or rejected) before Run
-// returns, and the ladder and holdout account for every accepted one.
+// TestGracefulShutdown stops the daemon with records in flight, with core
+// intake: every record the subscription received is applied (or rejected)
+// before Run returns, and the ladder and holdout account for every
+// accepted one. (With the durable intake, what is not applied stays in the
+// stream for the next start: TestDurableRestart.)
 func TestGracefulShutdown(t *testing.T) {
 	const n = 8000
 	m := testModel("drain", "test.drain", config.LossSquared)
 	m.Queue = n
-	td := startDaemon(t, testConfig(t, m))
+	td := startDaemon(t, testConfigMode(t, config.IntakeCore, m))
 	nc := connect(t, td.NATSURL())
 	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	final := make(chan *sink.ModelDoc, 100)

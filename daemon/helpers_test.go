@@ -321,10 +321,14 @@ func sameBits(a, b []online.Model) error {
 }
 
 // runServer starts a NATS server (natstest.Options) on the given port, or
-// a random one for -1.
-func runServer(t testing.TB, port int) *server.Server {
+// a random one for -1, with its JetStream store in dir (a new temporary
+// directory for "").
+func runServer(t testing.TB, port int, dir string) *server.Server {
 	t.Helper()
 	o := natstest.Options(t)
 	o.Port = port
+	if dir != "" {
+		o.StoreDir = dir
+	}
 	return natstest.RunServer(t, o)
 }

@@ -120,7 +120,7 @@ func TestRejects(t *testing.T) {
 func TestRejectQueueFull(t *testing.T) {
 	m := testModel("rej-queue", "test.rej.queue", config.LossSquared)
 	m.Queue = 4
-	td := startDaemon(t, testConfig(t, m), withoutIdle())
+	td := startDaemon(t, testConfigMode(t, config.IntakeCore, m), withoutIdle()) // a full queue rejects only with core intake
 	nc := connect(t, td.NATSURL())
 	rejects := make(chan *nats.Msg, 64)
 	nc.ChanSubscribe("lariat.reject.rej-queue", rejects)

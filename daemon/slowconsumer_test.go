@@ -79,7 +79,7 @@ func TestSlowConsumer(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			m := testModel("slow", "test.slow", config.LossSquared)
 			m.Queue = tc.queue
-			cfg := testConfig(t, m)
+			cfg := testConfigMode(t, config.IntakeCore, m) // slow consumers are a core NATS matter
 			cfg.NATS.PendingMsgs = 10
 			cfg.NATS.PendingBytes = 1 << 20 // the minimum config.Validate accepts
 			if err := cfg.Validate(); err != nil {

@@ -64,6 +64,10 @@ type worker struct {
 	// model goroutine state
 	pipe      *pipeline.Pipeline
 	idleSteps int
+	// startPos is the stream position the model starts from (its
+	// restored checkpoint's; 0 without one). The durable intake reads it
+	// once, before the model goroutine has applied anything of the stream.
+	startPos uint64
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -154,6 +158,14 @@ func (w *worker) intakeSeq(subject string, data []byte, seq uint64, stop <-chan 
 	it.subject, it.data, it.seq = subject, data, seq
 	w.queue <- it
 	return true
+}
+
+// skipped counts n records of the model's stream that it will never
+// apply (retention discarded them first) and logs why.
+func (w *worker) skipped(n uint64, why string) {
+	w.mm.Skipped.Add(float64(n))
+	w.log.Warn("records lost before they were applied: the stream's retention (intake.max_age, intake.max_bytes) was shorter than the time lariat was behind",
+		"records", n, "detail", why)
 }
 
 // batch bounds the records applied in a row before the model goroutine

@@ -30,6 +30,8 @@ type Metrics struct {
 	version     *prometheus.GaugeVec
 	reconnects  prometheus.Counter
 	slowDrops   *prometheus.CounterVec
+	skipped     *prometheus.CounterVec
+	checkpoints *prometheus.CounterVec
 	alerts      *prometheus.CounterVec
 	publishErrs *prometheus.CounterVec
 	depth       *depthCollector
@@ -68,6 +70,8 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 			Name: "lariat_nats_reconnects_total", Help: "Reconnections to the NATS server.",
 		}),
 		slowDrops:   counter("lariat_nats_slow_consumer_drops_total", "Messages the NATS client dropped as a slow consumer.", "model"),
+		skipped:     counter("lariat_intake_skipped_total", "Records of a model's stream that retention discarded before the model applied them.", "model"),
+		checkpoints: counter("lariat_checkpoints_total", "Checkpoints of a model's state, by result (saved, failed, restored, refused).", "model", "result"),
 		alerts:      counter("lariat_alerts_total", "Alerts raised, by kind.", "model", "kind"),
 		publishErrs: counter("lariat_publish_errors_total", "Failed publishes, by kind (model, kv, alert, reject).", "kind"),
 		depth: &depthCollector{
@@ -78,7 +82,7 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 	}
 	for _, c := range []prometheus.Collector{
 		m.accepted, m.rejected, m.update, m.dropped, m.lambda, m.lambdaIndex, m.nonzero,
-		m.holdoutLoss, m.version, m.reconnects, m.slowDrops, m.alerts, m.publishErrs, m.depth,
+		m.holdoutLoss, m.version, m.reconnects, m.slowDrops, m.skipped, m.checkpoints, m.alerts, m.publishErrs, m.depth,
 	} {
 		if err := reg.Register(c); err != nil {
 			return nil, err
@@ -111,6 +115,9 @@ type ModelMetrics struct {
 	// SlowConsumerDrops counts messages the NATS client dropped
 	// (lariat_nats_slow_consumer_drops_total).
 	SlowConsumerDrops prometheus.Counter
+	// Skipped counts records of the model's stream that retention discarded
+	// before the model applied them (lariat_intake_skipped_total).
+	Skipped prometheus.Counter
 
 	name        string
 	parent      *Metrics
@@ -121,6 +128,20 @@ type ModelMetrics struct {
 	nonzero     prometheus.Gauge
 	holdoutLoss prometheus.Gauge
 	version     prometheus.Gauge
+}
+
+// Checkpoint results, the label values of lariat_checkpoints_total.
+const (
+	CheckpointSaved    = "saved"    // a checkpoint was written
+	CheckpointFailed   = "failed"   // writing a checkpoint failed
+	CheckpointRestored = "restored" // the model started from a checkpoint
+	CheckpointRefused  = "refused"  // a checkpoint was corrupt, truncated or foreign and was passed over
+)
+
+// Checkpoint counts one checkpoint event of the model with result (one of
+// the Checkpoint* constants).
+func (mm *ModelMetrics) Checkpoint(result string) {
+	mm.parent.checkpoints.WithLabelValues(mm.name, result).Inc()
 }
 
 // Model returns the metrics of model name, creating its children (at zero)
@@ -136,6 +157,7 @@ func (m *Metrics) Model(name string) *ModelMetrics {
 		UpdateSeconds:     m.update.WithLabelValues(name),
 		QueueDropped:      m.dropped.WithLabelValues(name),
 		SlowConsumerDrops: m.slowDrops.WithLabelValues(name),
+		Skipped:           m.skipped.WithLabelValues(name),
 		name:              name,
 		parent:            m,
 		lambda:            m.lambda.WithLabelValues(name),

@@ -44,6 +44,9 @@ lariat_alerts_total{kind="prediction",model="pump"} 0
 # HELP lariat_holdout_loss Mean held-out loss of the published model.
 # TYPE lariat_holdout_loss gauge
 lariat_holdout_loss{model="pump"} 0.7
+# HELP lariat_intake_skipped_total Records of a model's stream that retention discarded before the model applied them.
+# TYPE lariat_intake_skipped_total counter
+lariat_intake_skipped_total{model="pump"} 0
 # HELP lariat_lambda Penalty strength λ of the published model.
 # TYPE lariat_lambda gauge
 lariat_lambda{model="pump"} 0.05

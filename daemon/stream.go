@@ -1,0 +1,175 @@
+package daemon
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/nats-io/nats.go/jetstream"
+
+	"lariat/config"
+)
+
+// streamIntake is the durable intake: each model's subject is captured by a
+// JetStream stream of its own, <intake.stream_prefix>_<model>, and one
+// reader goroutine per model reads it with an ordered consumer from the
+// first sequence after the model's position (the last one its pipeline
+// applied or rejected, restored from its checkpoint). The stream is the log
+// and the checkpoint the position: a record published while lariat is down
+// is read when it comes back, and a record applied before the last
+// checkpoint is never read again. Readers wait for room in the model's
+// queue instead of dropping (the stream is the buffer).
+type streamIntake struct {
+	d       *Daemon
+	js      jetstream.JetStream
+	stop    chan struct{}
+	wg      sync.WaitGroup
+	mu      sync.Mutex
+	readers []jetstream.MessagesContext
+}
+
+// streamName returns the stream of model m.
+func streamName(c *config.Config, m *config.Model) string {
+	return c.Intake.StreamPrefix + "_" + m.Name
+}
+
+// errNoJetStream means the server does not answer JetStream requests.
+var errNoJetStream = errors.New("daemon: the NATS server has no JetStream (intake.mode durable needs it; use auto or core)")
+
+// newStreamIntake checks that JetStream answers and returns the intake.
+func newStreamIntake(ctx context.Context, d *Daemon) (*streamIntake, error) {
+	js, err := jetstream.New(d.nc)
+	if err != nil {
+		return nil, fmt.Errorf("daemon: JetStream: %w", err)
+	}
+	if _, err := js.AccountInfo(ctx); err != nil {
+		return nil, fmt.Errorf("%w: %v", errNoJetStream, err)
+	}
+	return &streamIntake{d: d, js: js, stop: make(chan struct{})}, nil
+}
+
+// start ensures every model's stream (created, or updated to the
+// configured subject and retention) and starts its reader.
+func (s *streamIntake) start(ctx context.Context) error {
+	for _, w := range s.d.workers {
+		if err := s.startOne(ctx, w); err != nil {
+			return fmt.Errorf("daemon: model %s: %w", w.name, err)
+		}
+	}
+	return nil
+}
+
+func (s *streamIntake) startOne(ctx context.Context, w *worker) error {
+	in := s.d.cfg.Intake
+	name := streamName(s.d.cfg, w.cfg)
+	st, err := s.js.CreateOrUpdateStream(ctx, jetstream.StreamConfig{
+		Name:        name,
+		Description: "lariat: labeled records of model " + w.name,
+		Subjects:    []string{w.cfg.Subject},
+		Retention:   jetstream.LimitsPolicy,
+		Discard:     jetstream.DiscardOld,
+		MaxAge:      in.MaxAge.Std(),
+		MaxBytes:    in.MaxBytes,
+		Storage:     jetstream.FileStorage,
+	})
+	if err != nil {
+		return fmt.Errorf("stream %s: %w", name, err)
+	}
+	info, err := st.Info(ctx)
+	if err != nil {
+		return fmt.Errorf("stream %s: %w", name, err)
+	}
+	next := w.startPos + 1
+	if first := info.State.FirstSeq; info.State.Msgs > 0 && first > next {
+		// Retention discarded records this model never applied.
+		w.skipped(first-next, fmt.Sprintf("stream %s starts at %d, the model's checkpoint needs %d", name, first, next))
+		next = first
+	}
+	cc := jetstream.OrderedConsumerConfig{
+		FilterSubjects: []string{w.cfg.Subject},
+		DeliverPolicy:  jetstream.DeliverByStartSequencePolicy,
+		OptStartSeq:    next,
+	}
+	cons, err := st.OrderedConsumer(ctx, cc)
+	if err != nil {
+		return fmt.Errorf("reader of stream %s: %w", name, err)
+	}
+	it, err := cons.Messages(jetstream.PullMaxMessages(min(w.cfg.Queue, 1024)))
+	if err != nil {
+		return fmt.Errorf("reader of stream %s: %w", name, err)
+	}
+	s.mu.Lock()
+	s.readers = append(s.readers, it)
+	s.mu.Unlock()
+	w.log.Info("reading the model's stream", "stream", name, "from", next, "stored", info.State.Msgs)
+	s.wg.Go(func() { s.read(w, it, next-1) })
+	return nil
+}
+
+// read hands every message of it to w in order until the intake stops. A
+// jump in the stream sequence (retention discarded records while the model
+// was behind) is counted as skipped.
+func (s *streamIntake) read(w *worker, it jetstream.MessagesContext, last uint64) {
+	for {
+		m, err := it.Next()
+		if err != nil {
+			if errors.Is(err, jetstream.ErrMsgIteratorClosed) {
+				return
+			}
+			select {
+			case <-s.stop:
+				return
+			case <-time.After(100 * time.Millisecond): // heartbeat missed: the bus is down; the consumer recovers itself
+			}
+			continue
+		}
+		meta, err := m.Metadata()
+		if err != nil {
+			w.log.Error("stream message without metadata; skipped", "err", err)
+			continue
+		}
+		seq := meta.Sequence.Stream
+		if seq <= last {
+			continue // delivered again after a consumer reset
+		}
+		if seq > last+1 && last > 0 {
+			w.skipped(seq-last-1, fmt.Sprintf("the stream jumped from %d to %d (retention discarded records before they were read)", last, seq))
+		}
+		last = seq
+		if !w.intakeSeq(m.Subject(), m.Data(), seq, s.stop) {
+			return
+		}
+	}
+}
+
+// drain stops every reader and waits for them (messages a reader holds and
+// has not queued are read again after the next start: the position only
+// moves when the model goroutine has applied a record).
+func (s *streamIntake) drain(ctx context.Context) error {
+	close(s.stop)
+	s.mu.Lock()
+	for _, it := range s.readers {
+		it.Stop()
+	}
+	s.mu.Unlock()
+	done := make(chan struct{})
+	go func() { s.wg.Wait(); close(done) }()
+	select {
+	case <-done:
+		return nil
+	case <-ctx.Done():
+		return fmt.Errorf("daemon: stopping the stream readers: %w", ctx.Err())
+	}
+}
+
+// describeStreams lists the streams, for the start-up log.
+func describeStreams(c *config.Config) string {
+	names := make([]string, len(c.Models))
+	for i := range c.Models {
+		names[i] = streamName(c, &c.Models[i])
+	}
+	return strings.Join(names, ", ")
+}
