@@ -174,3 +174,13 @@ func sumRows(s, x, g []float64, d, k int) {
 	}
 	sumRowsGo(s, x, g, d, k)
 }
+
+// Arithmetic names the floating-point path the learners run on in this
+// process: "avx2" (the assembly kernels) or "portable" (pure Go). The same
+// records give bit-identical models only on the same path.
+func Arithmetic() string {
+	if useAVX {
+		return "avx2"
+	}
+	return "portable"
+}

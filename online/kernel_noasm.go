@@ -52,3 +52,8 @@ func sagaAll(theta, s, x, mu, inv, xa, xo, xn []float64, prm []stepParam, c floa
 func dot2All(theta, x, y, out []float64) { dot2AllGo(theta, x, y, out) }
 
 func sumRows(s, x, g []float64, d, k int) { sumRowsGo(s, x, g, d, k) }
+
+// Arithmetic names the floating-point path the learners run on in this
+// process: always "portable" (pure Go) in this build. The same records
+// give bit-identical models only on the same path.
+func Arithmetic() string { return "portable" }
