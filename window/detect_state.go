@@ -112,6 +112,9 @@ func (a *ADWIN) UnmarshalBinary(b []byte) error {
 		}
 		width += uint64(c) << r
 	}
+	if d.Err() == nil && t.rows > 0 && t.cnt[t.rows-1] == 0 {
+		d.Failf("top row %d is empty", t.rows-1)
+	}
 	if d.Err() == nil && width != uint64(t.n) {
 		d.Failf("width %d, buckets hold %d", t.n, width)
 	}

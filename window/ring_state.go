@@ -73,8 +73,10 @@ func (r *Ring[T]) encode(e *Encoder, put func(e *Encoder, slot int, v T)) {
 // DecodeState replaces the ring's state, capacity included, by one that
 // EncodeState wrote, each value read by get (which reports malformed data
 // through d). r may be the zero value. On error (d.Err, wrapping ErrState)
-// r is left unchanged. Decoding allocates a new buffer of the saved
-// capacity, at most MaxStateCap.
+// r is left unchanged; a caller decoding a larger state that holds r
+// keeps it whole on a later error by decoding into a temporary Ring and
+// assigning it after Decoder.Finish. Decoding allocates a new buffer of
+// the saved capacity, at most MaxStateCap.
 func (r *Ring[T]) DecodeState(d *Decoder, get func(d *Decoder) T) error {
 	t, err := decodeRing(d, nil, func(d *Decoder, _ int) T { return get(d) })
 	if err == nil {
