@@ -34,8 +34,12 @@ func adwinConfigError(delta float64, m, clock int, rng float64) string {
 
 // AppendBinary appends the state of a to b (see MarshalBinary).
 func (a *ADWIN) AppendBinary(b []byte) ([]byte, error) {
-	if msg := adwinConfigError(a.delta, a.m, a.clock, a.rng); msg != "" || a.sum == nil {
-		return b, stateError("ADWIN", "not built by NewADWIN")
+	msg := adwinConfigError(a.delta, a.m, a.clock, a.rng)
+	if a.sum == nil {
+		msg = "not built by NewADWIN"
+	}
+	if msg != "" {
+		return b, stateError("ADWIN", msg)
 	}
 	e := NewEncoder(b)
 	e.header(tagADWIN)
@@ -66,7 +70,9 @@ func (a *ADWIN) AppendBinary(b []byte) ([]byte, error) {
 // StateVersion): version, 'A', δ, M, Clock, Range, |W|, ΣW, squared
 // deviations, inserts since the last check, Dropped, rows, then per row
 // its bucket count and each bucket's sum and squared deviations. It fails
-// (wrapping ErrState) only for an ADWIN not built by a constructor.
+// (wrapping ErrState) only for an ADWIN not built by a constructor or
+// with Buckets beyond 4096 (memory is 64·(M+1) buckets whatever the
+// width, so a state's M is bounded to keep decoding cheap).
 func (a *ADWIN) MarshalBinary() ([]byte, error) { return a.AppendBinary(nil) }
 
 // UnmarshalBinary replaces a's whole state, options included, by one

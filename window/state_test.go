@@ -277,6 +277,9 @@ func TestStateUnbuilt(t *testing.T) {
 			t.Errorf("%s: MarshalBinary of the zero value: %v, want ErrState", name, err)
 		}
 	}
+	if _, err := NewADWINOptions(&ADWINOptions{Buckets: 5000}).MarshalBinary(); !errors.Is(err, ErrState) {
+		t.Errorf("ADWIN with 5000 buckets: %v, want ErrState", err)
+	}
 	if _, err := NewRing[string](2).MarshalBinary(); !errors.Is(err, ErrState) {
 		t.Errorf("Ring[string]: %v, want ErrState", err)
 	}
@@ -699,4 +702,37 @@ func BenchmarkADWINMarshal(b *testing.B) {
 			b.SetBytes(int64(len(buf)))
 		})
 	}
+}
+
+// A detector saved in the middle of a stream and restored elsewhere goes
+// on exactly as the original.
+func ExampleADWIN_MarshalBinary() {
+	a := NewADWIN(0.002)
+	r := rand.New(rand.NewPCG(1, 2))
+	for range 1000 {
+		a.Add(0.2 + 0.1*r.Float64())
+	}
+	saved, err := a.MarshalBinary()
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	var b ADWIN
+	if err := b.UnmarshalBinary(saved); err != nil {
+		fmt.Println(err)
+		return
+	}
+	same := true
+	for i := range 1000 {
+		x := 0.7 + 0.1*r.Float64()
+		if a.Add(x) != b.Add(x) || a.Mean() != b.Mean() {
+			same = false
+			fmt.Println("diverged at", i)
+		}
+	}
+	fmt.Println(len(saved) < 1000, same, a.Width() == b.Width(), a.Width() < 2000)
+	fmt.Println(errors.Is(b.UnmarshalBinary(saved[:10]), ErrState))
+	// Output:
+	// true true true true
+	// true
 }
