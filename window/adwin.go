@@ -180,7 +180,9 @@ func (a *ADWIN) check() bool {
 		nb := float64(uint64(1) << r)
 		a.remove(nb, a.sum[i], a.m2[i])
 		a.shift(r, 1)
-		if a.cnt[r] == 0 {
+		// With M = 1 a merge can empty a row below the top, so drop every
+		// empty top row (with M >= 2 only rows at the top are ever empty).
+		for a.rows > 0 && a.cnt[a.rows-1] == 0 {
 			a.rows--
 		}
 		dropped += 1 << r

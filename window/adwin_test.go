@@ -336,3 +336,27 @@ func ExampleADWIN() {
 	// change at record 2047: dropped 1952, window 96, mean 0.47
 	// change at record 2079: dropped 32, window 96, mean 0.69
 }
+
+// TestADWINOneBucket: with M = 1 a merge empties row 0 while a higher row
+// fills, so a cut can leave an empty row on top; dropping the next bucket
+// from it used to index past the row (a panic). Alternating means force
+// many cuts.
+func TestADWINOneBucket(t *testing.T) {
+	for seed := range uint64(50) {
+		r := rand.New(rand.NewPCG(seed, 1))
+		a := NewADWINOptions(&ADWINOptions{Buckets: 1, Clock: 1 + int(seed%3)})
+		cuts := 0
+		for i := range 3000 {
+			x := r.Float64() * 0.2
+			if (i/300)%2 == 1 {
+				x += 0.8
+			}
+			if a.Add(x) {
+				cuts++
+			}
+		}
+		if cuts == 0 {
+			t.Errorf("seed %d: no cut on alternating means", seed)
+		}
+	}
+}

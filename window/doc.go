@@ -10,6 +10,15 @@
 // (Ring.Push, Timed.Push, ADWIN.Add, PageHinkley.Add, Splitter.Holdout) do
 // not allocate.
 //
+// Every stateful type (ADWIN, PageHinkley, ShiftReference, Ring, Timed)
+// saves its whole state, options included, with MarshalBinary (and
+// AppendBinary) and restores it with UnmarshalBinary, so a restored value
+// continues bit for bit as the saved one would have. The format is
+// versioned (StateVersion) and malformed input is refused with errors
+// wrapping ErrState; Encoder and Decoder write and read the same format
+// for callers that save states of their own. Splitter is configuration
+// only and holds no state.
+//
 // Concurrency: no type in this package is safe for concurrent use; each
 // value is owned by one goroutine (the model's), which calls it without
 // locks.
