@@ -127,7 +127,7 @@ func decodeOptions(d *decoder) Options {
 	o.Span = time.Duration(d.int64())
 	o.Size = d.int(maxStateSize, "size")
 	o.Floor, o.Lambda = d.f(), d.f()
-	o.Steps = d.int(maxStateInt, "steps")
+	o.Steps = d.int(maxStateSteps, "steps")
 	o.Seed = d.u64()
 	o.Learner = d.str(16, "learner")
 	o.HalfLife = d.f()
@@ -144,14 +144,14 @@ func decodeOptions(d *decoder) Options {
 		d.fail("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
 		return o
 	}
-	cells, perMember := o.Size*o.Features, 2*o.Features
+	words, perMember := o.Size*(2*o.Features+16), 2*o.Features
 	if o.Learner == "decay" {
-		perMember = 4 * o.Features
+		words, perMember = o.Size*(4*o.Features+8)+12*o.Features, 4*o.Features
 	} else {
-		cells += o.Window * (o.Features + o.Size)
+		words += o.Window*(o.Features+o.Size+sagaSlotWords) + 12*o.Features
 	}
-	if cells > maxStateCells {
-		d.fail("buffers of %d values above %d", cells, maxStateCells)
+	if words > stateWordLimit {
+		d.fail("buffers of %d words above %d", words, stateWordLimit)
 		return o
 	}
 	// Each member saves at least perMember float64 (its vectors).

@@ -31,13 +31,31 @@ const (
 // corrupt encoding from making the restore allocate without limit: the
 // window capacity and the holdout capacity at most maxStateCap records,
 // at most maxStateFeatures features and maxStateSize members, and at most
-// maxStateCells float64 in the buffers allocated for them (2 GiB).
+// maxStateSteps steps per record, so that a restored ladder cannot stall
+// its caller. The buffers a restore allocates are bounded by
+// stateWordLimit.
 const (
 	maxStateCap      = 100_000_000
 	maxStateFeatures = 1 << 20
 	maxStateSize     = 1 << 12
-	maxStateCells    = 1 << 28
+	maxStateSteps    = 1 << 20
 	maxStateInt      = 1<<62 - 1
+)
+
+// stateWordLimit bounds the 8-byte words of the buffers that a restore
+// allocates for the capacity, features and members an encoding claims:
+// 2^29 words, 4 GiB. A window of 10^7 records of 40 features with 12
+// members fits; a larger ladder cannot be restored (a known limitation).
+// It is a variable so that the fuzz test can lower it.
+var stateWordLimit = 1 << 29
+
+// Words per slot of a buffer sized by a capacity, beyond the features and
+// the gradients: the window's per-record metadata (3), the slot scratch
+// (1) and the finishing pass's scratch (3); the holdout's label, weight,
+// missing flag, score scratch (1) and rank scratch (3).
+const (
+	sagaSlotWords    = 7
+	holdoutSlotWords = 7
 )
 
 var (
@@ -300,8 +318,8 @@ func (h *Holdout) UnmarshalBinary(b []byte) error {
 	switch {
 	case features < 1 || capacity < 1:
 		d.fail("features %d, capacity %d", features, capacity)
-	case features*capacity > maxStateCells:
-		d.fail("features %d × capacity %d above %d", features, capacity, maxStateCells)
+	case capacity*(features+holdoutSlotWords) > stateWordLimit:
+		d.fail("capacity %d × %d features above %d words", capacity, features, stateWordLimit)
 	case head >= capacity || n > capacity:
 		d.fail("head %d, %d records, capacity %d", head, n, capacity)
 	}

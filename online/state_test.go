@@ -448,12 +448,12 @@ func TestStateInconsistent(t *testing.T) {
 		b    []byte
 	}{
 		{"ladder window above 1e8", ladder(100_000_001, 2, 1, "saga")},
-		{"ladder cells too many", ladder(10_000_000, 1000, 12, "saga")},
+		{"ladder buffers too large", ladder(10_000_000, 1000, 12, "saga")},
 		{"ladder members missing", ladder(10, 4, 12, "saga")},
 		{"ladder zero features", ladder(10, 0, 1, "saga")},
 		{"ladder unknown learner", ladder(10, 2, 1, "sgd")},
 		{"holdout capacity above 1e8", holdout(1, 100_000_001, 0, 0)},
-		{"holdout cells too many", holdout(1000, 10_000_000, 0, 0)},
+		{"holdout buffers too large", holdout(1000, 10_000_000, 0, 0)},
 		{"holdout head beyond capacity", holdout(2, 4, 4, 0)},
 		{"holdout more records than capacity", holdout(2, 4, 0, 5)},
 		{"holdout records missing", holdout(2, 4, 0, 3)},
@@ -479,6 +479,9 @@ func FuzzLadderState(f *testing.F) {
 	f.Add(smallLadder(f, "saga", 0))
 	f.Add(smallLadder(f, "decay", 0))
 	f.Add(smallLadder(f, "saga", 0.1))
+	// Keep each input's allocation small, so that the fuzzer runs fast.
+	defer func(v int) { stateWordLimit = v }(stateWordLimit)
+	stateWordLimit = 1 << 20
 	f.Fuzz(func(t *testing.T, b []byte) {
 		var h Holdout
 		_ = h.UnmarshalBinary(b)
