@@ -29,7 +29,7 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	}
 	e := encoder{}
 	if s, ok := l.lrn.(*sagaLearner); ok {
-		e.b = make([]byte, 0, 256+len(l.lambdas)*8*(2*l.d+16)+s.ts.ring.Len()*8*(l.d+3+s.k))
+		e.b = make([]byte, 0, 256+8*16*l.d+len(l.lambdas)*8*(2*l.d+16)+s.ts.ring.Len()*8*(l.d+3+s.k))
 	}
 	e.header(stateLadder)
 	o := &l.opt
@@ -144,13 +144,15 @@ func decodeOptions(d *decoder) Options {
 		d.fail("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
 		return o
 	}
-	words, perMember := o.Size*(2*o.Features+16), 2*o.Features
+	// In int64: the product can exceed a 32-bit int.
+	d64, k64 := int64(o.Features), int64(o.Size)
+	words, perMember := k64*(2*d64+16), 2*o.Features
 	if o.Learner == "decay" {
-		words, perMember = o.Size*(4*o.Features+8)+12*o.Features, 4*o.Features
+		words, perMember = k64*(4*d64+8)+12*d64, 4*o.Features
 	} else {
-		words += o.Window*(o.Features+o.Size+sagaSlotWords) + 12*o.Features
+		words += int64(o.Window)*(d64+k64+sagaSlotWords) + 12*d64
 	}
-	if words > stateWordLimit {
+	if words > int64(stateWordLimit) {
 		d.fail("buffers of %d words above %d", words, stateWordLimit)
 		return o
 	}

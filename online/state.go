@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 )
 
 // ErrState reports a saved state that cannot be restored: truncated,
@@ -39,7 +40,7 @@ const (
 	maxStateFeatures = 1 << 20
 	maxStateSize     = 1 << 12
 	maxStateSteps    = 1 << 20
-	maxStateInt      = 1<<62 - 1
+	maxStateInt      = math.MaxInt
 )
 
 // stateWordLimit bounds the 8-byte words of the buffers that a restore
@@ -83,8 +84,10 @@ func (e *encoder) f(v float64)   { e.u64(math.Float64bits(v)) }
 
 // fs appends the values of v; their number is known from context.
 func (e *encoder) fs(v []float64) {
-	for _, x := range v {
-		e.f(x)
+	n := len(e.b)
+	e.b = slices.Grow(e.b, 8*len(v))[:n+8*len(v)]
+	for i, x := range v {
+		binary.LittleEndian.PutUint64(e.b[n+8*i:], math.Float64bits(x))
 	}
 }
 
@@ -318,7 +321,7 @@ func (h *Holdout) UnmarshalBinary(b []byte) error {
 	switch {
 	case features < 1 || capacity < 1:
 		d.fail("features %d, capacity %d", features, capacity)
-	case capacity*(features+holdoutSlotWords) > stateWordLimit:
+	case int64(capacity)*int64(features+holdoutSlotWords) > int64(stateWordLimit):
 		d.fail("capacity %d × %d features above %d words", capacity, features, stateWordLimit)
 	case head >= capacity || n > capacity:
 		d.fail("head %d, %d records, capacity %d", head, n, capacity)
