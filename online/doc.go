@@ -26,6 +26,13 @@
 // coefficient 0. Invalid records are rejected with an error and change
 // nothing.
 //
+// A Ladder, a Holdout and a Chooser save their whole state with
+// MarshalBinary (a versioned binary format, floats as their exact bits)
+// and restore it with UnmarshalLadder or UnmarshalBinary; a restored value
+// continues bit-identically on a machine that takes the same arithmetic
+// path (assembly kernels or -tags purego). A defective encoding is refused
+// with an error wrapping ErrState.
+//
 // Nothing in this package is safe for concurrent use: one goroutine owns a
 // Ladder (and a Holdout) and drives it.
 package online

@@ -58,6 +58,7 @@ type sagaLearner struct {
 	alpha float64
 	span  int64 // milliseconds; 0 = none
 	rng   *rand.Rand
+	src   *rand.PCG // rng's source, kept so that its state can be saved
 	gamma float64
 	kind  lossKind  // the loss, devirtualized for deriv
 	k     int       // K, the stride of the gradient table
@@ -96,8 +97,9 @@ func newSAGA(o *Options, d int) *sagaLearner {
 	s := &sagaLearner{
 		ts: newTrainset(d, o.Window), loss: o.Loss, kind: kindOf(o.Loss), curv: o.Loss.Curvature(),
 		alpha: o.Penalty.Mix, pen: o.Penalty, span: o.Span.Milliseconds(), scr: newScratch(d, o.Window),
-		rng: rand.New(rand.NewPCG(o.Seed, seedStream)), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
+		src: rand.NewPCG(o.Seed, seedStream), xt: make([]float64, d), xn: make([]float64, d), xa: make([]float64, d), first: -1,
 	}
+	s.rng = rand.New(s.src)
 	// One gradient table for all members, slot-major, so a step reads the
 	// K gradients of its record from one or two cache lines.
 	s.k = o.Size
