@@ -19,6 +19,7 @@ import (
 
 	"lariat/config"
 	"lariat/sink"
+	"lariat/sink/checkpoint"
 )
 
 // Errors returned by the daemon.
@@ -56,6 +57,7 @@ type Daemon struct {
 	run     atomic.Bool
 	started chan struct{} // closed once listeners are bound and models subscribed
 	out     *outbox
+	ckpt    *checkpoint.Dir // the models' checkpoints (set by start, before the model goroutines)
 
 	// Set while starting, read-only afterwards (published by closing started).
 	srv      *server.Server
@@ -228,6 +230,9 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 	if err := d.startNATS(); err != nil {
 		return err
 	}
+	if err := d.restoreModels(); err != nil {
+		return err
+	}
 	d.in = newCoreIngest(d.nc, d.cfg.NATS.PendingMsgs, d.cfg.NATS.PendingBytes)
 	d.out.running.Store(true)
 	wg.Go(d.out.run)
@@ -248,6 +253,20 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 	d.stopBus = cancel
 	d.busDone = make(chan struct{})
 	wg.Go(func() { d.watchBus(busCtx) })
+	return nil
+}
+
+// restoreModels opens the checkpoint store under data_dir and restores
+// every model that has a good checkpoint, before any model goroutine runs.
+func (d *Daemon) restoreModels() error {
+	store, err := openCheckpoints(d.cfg.DataDir)
+	if err != nil {
+		return fmt.Errorf("daemon: %w", err)
+	}
+	d.ckpt = store
+	for _, w := range d.workers {
+		w.restored = w.restore()
+	}
 	return nil
 }
 

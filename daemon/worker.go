@@ -64,10 +64,15 @@ type worker struct {
 	// model goroutine state
 	pipe      *pipeline.Pipeline
 	idleSteps int
+	popts     pipeline.Options // how the pipeline is built (fresh or restored)
 	// startPos is the stream position the model starts from (its
 	// restored checkpoint's; 0 without one). The durable intake reads it
 	// once, before the model goroutine has applied anything of the stream.
 	startPos uint64
+	restored bool // the pipeline came from a checkpoint: publish at once
+	// checkpoints (checkpoint.go)
+	sinceSave             int // records consumed since the last checkpoint
+	lastSave, lastSaveLog time.Time
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -80,33 +85,30 @@ type worker struct {
 
 func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 	log := d.log.With("model", m.Name)
-	pipe, err := pipeline.New(pipeline.Options{
+	popts := pipeline.Options{
 		Model:      m,
 		MinPublish: d.minPublish,
 		Threshold:  thresholdOverrideFor(d.cfg.DataDir, m, log),
-	})
+	}
+	pipe, err := pipeline.New(popts)
 	if err != nil {
 		return nil, fmt.Errorf("daemon: %w", err)
 	}
 	dim := pipe.Width()
 	w := &worker{
 		d: d, cfg: m, name: m.Name, dim: dim,
-		log:   log,
-		mm:    d.metrics.Model(m.Name),
-		ctl:   make(chan func()),
-		quit:  make(chan struct{}),
-		done:  make(chan struct{}),
-		free:  make(chan *item, m.Queue),
-		queue: make(chan *item, m.Queue),
-		dec: record.NewDecoder(&record.DecoderOptions{
-			Features:    m.Features,
-			MaxFeatures: dim,
-			Logistic:    m.Logistic(),
-			Missing:     m.Missing,
-		}),
+		log:       log,
+		mm:        d.metrics.Model(m.Name),
+		ctl:       make(chan func()),
+		quit:      make(chan struct{}),
+		done:      make(chan struct{}),
+		free:      make(chan *item, m.Queue),
+		queue:     make(chan *item, m.Queue),
 		pipe:      pipe,
+		popts:     popts,
 		idleSteps: m.Learner.IdleSteps,
 	}
+	w.dec = w.newDecoder(nil)
 	for range m.Queue {
 		w.free <- &item{rec: record.Record{X: make([]float64, 0, dim)}}
 	}
@@ -179,6 +181,11 @@ func (w *worker) run() {
 	defer close(w.done)
 	tick := time.NewTicker(w.d.tick)
 	defer tick.Stop()
+	now := time.Now()
+	w.lastSave = now
+	if w.restored {
+		w.publish(now, true) // the restored model is served and on the bus at once
+	}
 	for {
 		select {
 		case it := <-w.queue:
@@ -196,6 +203,9 @@ func (w *worker) run() {
 				}
 				break
 			}
+			if w.d.ckpt != nil && w.saveDue(t) {
+				w.save(t)
+			}
 		case f := <-w.ctl:
 			f()
 		case now := <-tick.C:
@@ -210,7 +220,11 @@ func (w *worker) run() {
 				}
 				break
 			}
-			w.publish(time.Now(), true)
+			now := time.Now()
+			w.publish(now, true)
+			if w.d.ckpt != nil {
+				w.save(now)
+			}
 			return
 		}
 	}
@@ -272,6 +286,7 @@ func (w *worker) done1(it *item) {
 	if it.seq > 0 {
 		w.pipe.SetPosition(it.seq)
 	}
+	w.sinceSave++
 	it.data, it.names = nil, nil
 	w.free <- it
 }
@@ -285,6 +300,9 @@ func (w *worker) onTick(now time.Time) {
 		w.pipe.Idle(w.idleSteps)
 	}
 	w.publish(now, false)
+	if w.d.ckpt != nil && w.saveDue(now) {
+		w.save(now)
+	}
 }
 
 // publish asks the pipeline for a new version and, when one is due, makes

@@ -420,6 +420,10 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	return &Snapshot{Doc: doc, Model: &m, Names: names}, nil
 }
 
+// Names returns the feature names as of the last record (shared,
+// read-only); a restored pipeline returns the names it was saved with.
+func (p *Pipeline) Names() []string { return p.at.names }
+
 // SetPosition records seq as the last sequence of the model's stream that
 // has been applied or rejected: a restored pipeline continues after it.
 func (p *Pipeline) SetPosition(seq uint64) { p.position = seq }

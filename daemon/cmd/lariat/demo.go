@@ -28,7 +28,7 @@ It runs until Ctrl-C, or for --duration.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.Data, "data", "", "data directory (default: a temporary directory, removed at exit)")
+	f.StringVar(&o.Data, "data", "", "data directory: streams and checkpoints, kept across runs so a restarted demo continues where it stopped (default ./lariat-demo-data; remove it for a fresh start)")
 	f.DurationVar(&o.Duration, "duration", 0, "stop after this long (default: run until Ctrl-C)")
 	f.DurationVar(&o.FaultAfter, "fault-after", 3*time.Minute, "when the simulated bearing fault begins (negative: never)")
 	f.Float64Var(&o.Rate, "rate", 200, "records per second published by the plant")

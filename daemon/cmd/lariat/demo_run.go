@@ -10,7 +10,6 @@ import (
 	"io"
 	"log/slog"
 	"net"
-	"os"
 	"strings"
 	"time"
 
@@ -23,8 +22,8 @@ import (
 
 // demoOptions configures runDemo; the zero value gives the defaults shown.
 type demoOptions struct {
-	// Data is the data directory; default a temporary directory removed at
-	// the end.
+	// Data is the data directory (streams and checkpoints); default the
+	// demo configuration's data_dir, ./lariat-demo-data, kept across runs.
 	Data string
 	// Duration bounds the run; 0 runs until ctx is done.
 	Duration time.Duration
@@ -67,15 +66,9 @@ func runDemo(ctx context.Context, o demoOptions) error {
 	if err != nil {
 		return fmt.Errorf("demo: config: %w", err)
 	}
-	if o.Data == "" {
-		dir, err := os.MkdirTemp("", "lariat-demo-")
-		if err != nil {
-			return fmt.Errorf("demo: data directory: %w", err)
-		}
-		defer os.RemoveAll(dir)
-		o.Data = dir
-	}
-	cfg.DataDir = o.Data
+	if o.Data != "" {
+		cfg.DataDir = o.Data
+	} // else the demo configuration's data_dir: kept, so a restarted demo continues where it stopped
 	if o.NATSListen != "" {
 		cfg.NATS.Listen = o.NATSListen
 	}
@@ -213,6 +206,7 @@ func printBanner(w io.Writer, cfg *config.Config, d *daemon.Daemon, p *plant.Pla
 		fmt.Fprintf(w, "; pump p%d's bearing starts to degrade after %s", po.FaultPump+1, po.FaultAfter)
 	}
 	fmt.Fprintf(w, "\n  NATS:    %s\n  status:  %s/\n  models:  %s/v1/models\n  metrics: %s/metrics\n", d.NATSURL(), http, http, http)
+	fmt.Fprintf(w, "  data:    %s (streams and checkpoints: run the demo again to continue where it stopped; remove the directory for a fresh start)\n", cfg.DataDir)
 	for _, m := range cfg.Models {
 		fmt.Fprintf(w, "  %-13s reads %-26s publishes %s.model.%s\n", m.Name, m.Subject, cfg.SubjectPrefix, m.Name)
 		if m.ScoreSubject != "" {
