@@ -8,6 +8,7 @@ import (
 	"net"
 	"net/http"
 	"os"
+	"strconv"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -300,6 +301,7 @@ func (d *Daemon) startHTTP(wg *sync.WaitGroup) error {
 		Gatherer:     d.reg,
 		MaxBodyBytes: d.cfg.HTTP.MaxBodyBytes,
 		Version:      d.version,
+		Epoch:        strconv.FormatInt(time.Now().UnixNano(), 36),
 	})
 	d.httpSrv = sink.NewServer(ln.Addr().String(), h)
 	d.httpAddr = ln.Addr().String()

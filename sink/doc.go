@@ -23,13 +23,10 @@
 //
 // # Known limitations
 //
-// Checkpoints (persisting the learner's state, which the model JSON does
-// not carry, for an exact resume) are not implemented: a restarted daemon
-// learns again from the stream. Versions do continue across restarts: the daemon reads
-// each model's last version back from the key-value bucket when its
-// publisher opens, and the next version follows it. Without the bucket
-// (JetStream unavailable, so models go to core NATS only, or the entry
-// missing or unreadable) a restarted daemon starts its versions again at 1,
-// so an HTTP client holding an old ETag may see a spurious 304 for a model
-// whose version counter has come back to the same number.
+// Versions continue across restarts: the daemon restores each model's
+// checkpoint (package sink/checkpoint frames and stores them), and reads the
+// last version back from the key-value bucket. An HTTP ETag carries the
+// daemon's start epoch with the version (HandlerOptions.Epoch), so a client
+// holding an ETag from before a restart never gets a 304 for a different
+// model, even where a version number comes round again.
 package sink

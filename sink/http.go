@@ -21,7 +21,7 @@ import (
 //	Method  Path                          Success                      Errors
 //	GET     /                             status page (HTML)           404 (other paths)
 //	GET     /v1/models                    {"models": [summary…]}
-//	GET     /v1/models/{name}             ModelDoc, ETag "<version>"   304 (If-None-Match), 404, 503 (no version yet)
+//	GET     /v1/models/{name}             ModelDoc, ETag "<epoch>-<version>"   304 (If-None-Match), 404, 503 (no version yet)
 //	GET     /v1/models/{name}/pmml        PMML 4.4 XML, same ETag      304, 404, 503
 //	GET     /v1/models/{name}/ladder      {model, version, lambda_index, ladder}  404, 503
 //	GET     /v1/models/{name}/threshold   {model, version, threshold, roc}        404 (unknown or not logistic), 503
@@ -117,6 +117,12 @@ type HandlerOptions struct {
 	Refresh time.Duration
 	// Version is the program version shown on the status page.
 	Version string
+	// Epoch goes into every ETag with the model version ("<epoch>-<version>"),
+	// so that a client's cached ETag can never match a different model
+	// after a restart, even where a version number comes round again (a
+	// daemon without checkpoints or key-value bucket). The daemon uses its
+	// start time. Empty: the ETag is the version alone.
+	Epoch string
 }
 
 // handler serves the API.
@@ -265,7 +271,7 @@ func (h *handler) list(w http.ResponseWriter, r *http.Request) {
 // model serves GET /v1/models/{name} with ETag and If-None-Match.
 func (h *handler) model(w http.ResponseWriter, r *http.Request) {
 	sd, ok := h.published(w, r)
-	if !ok || notModified(w, r, sd.doc.Version) {
+	if !ok || notModified(w, r, h.o.Epoch, sd.doc.Version) {
 		return
 	}
 	writeRaw(w, http.StatusOK, "application/json", sd.json)
@@ -274,7 +280,7 @@ func (h *handler) model(w http.ResponseWriter, r *http.Request) {
 // pmml serves GET /v1/models/{name}/pmml.
 func (h *handler) pmml(w http.ResponseWriter, r *http.Request) {
 	sd, ok := h.published(w, r)
-	if !ok || notModified(w, r, sd.doc.Version) {
+	if !ok || notModified(w, r, h.o.Epoch, sd.doc.Version) {
 		return
 	}
 	b, err := PMML(sd.doc)
@@ -288,8 +294,11 @@ func (h *handler) pmml(w http.ResponseWriter, r *http.Request) {
 // notModified sets the validator headers of version and, if the request's
 // If-None-Match matches, answers 304 and returns true (RFC 9110 §13.1.2,
 // §15.4.5).
-func notModified(w http.ResponseWriter, r *http.Request, version uint64) bool {
+func notModified(w http.ResponseWriter, r *http.Request, epoch string, version uint64) bool {
 	etag := `"` + strconv.FormatUint(version, 10) + `"`
+	if epoch != "" {
+		etag = `"` + epoch + "-" + strconv.FormatUint(version, 10) + `"`
+	}
 	w.Header().Set("ETag", etag)
 	w.Header().Set("Cache-Control", "no-cache")
 	if inm := r.Header.Values("If-None-Match"); len(inm) > 0 && matchETag(strings.Join(inm, ","), etag) {

@@ -439,3 +439,32 @@ func BenchmarkHandlerModel(b *testing.B) {
 		h.ServeHTTP(httptest.NewRecorder(), req)
 	}
 }
+
+// TestETagEpoch: with an epoch, the ETag is "<epoch>-<version>", and an
+// ETag from another epoch (a daemon before its restart) never gives a 304,
+// even for the same version number.
+func TestETagEpoch(t *testing.T) {
+	store := NewStore()
+	if err := store.SetModel(testDoc(t, "lin", "squared", 3)); err != nil {
+		t.Fatal(err)
+	}
+	get := func(epoch, inm string) *httptest.ResponseRecorder {
+		rec := httptest.NewRecorder()
+		req := httptest.NewRequest(http.MethodGet, "/v1/models/lin", nil)
+		if inm != "" {
+			req.Header.Set("If-None-Match", inm)
+		}
+		NewHandler(HandlerOptions{Store: store, Epoch: epoch}).ServeHTTP(rec, req)
+		return rec
+	}
+	before := get("k1x9", "")
+	if tag := before.Header().Get("ETag"); tag != `"k1x9-3"` {
+		t.Fatalf("ETag %q, want \"k1x9-3\"", tag)
+	}
+	if c := get("k1x9", `"k1x9-3"`).Code; c != http.StatusNotModified {
+		t.Errorf("same epoch and version: %d, want 304", c)
+	}
+	if c := get("k2aa", `"k1x9-3"`).Code; c != http.StatusOK {
+		t.Errorf("another epoch, same version: %d, want 200", c)
+	}
+}
