@@ -2,14 +2,17 @@ package daemon
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
 
+	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
 
 	"lariat/config"
@@ -196,5 +199,129 @@ func TestDurableBadCheckpoint(t *testing.T) {
 	}
 	if s := logs.String(); !strings.Contains(s, "checkpoint refused") || !strings.Contains(s, "payload checksum") {
 		t.Errorf("log does not name the refused checkpoint and why:\n%s", s)
+	}
+}
+
+// publishRetry publishes recs through JetStream on a connection that
+// reconnects forever, retrying each record until the stream acknowledges
+// it, with a message ID per record so that a retry after a lost
+// acknowledgement is not stored twice (the stream's duplicate window).
+func publishRetry(t *testing.T, url, subject string, recs [][]byte, first int) {
+	t.Helper()
+	nc, err := nats.Connect(url, nats.MaxReconnects(-1), nats.ReconnectWait(50*time.Millisecond), nats.RetryOnFailedConnect(true))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer nc.Close()
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	deadline := time.Now().Add(60 * time.Second)
+	for i, r := range recs {
+		for {
+			ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+			_, err := js.Publish(ctx, subject, r, jetstream.WithMsgID(strconv.Itoa(first+i)))
+			cancel()
+			if err == nil {
+				break
+			}
+			if time.Now().After(deadline) {
+				t.Fatalf("record %d not acknowledged: %v", first+i, err)
+			}
+			time.Sleep(20 * time.Millisecond)
+		}
+	}
+}
+
+// TestDurableBusRestart restarts an external NATS server (the one go.mod
+// pins, in process, on the same port and JetStream store) twice while
+// records are published: the daemon reports not ready while the server is
+// away and ready after, and ends with every record applied exactly once
+// and the same model, bit for bit, as a daemon on a server that never went
+// away. Source: the durability rules of README.md, "Durability", no
+// external source.
+func TestDurableBusRestart(t *testing.T) {
+	const n = 5000
+	recs := sparseTruth(8).records(n, true, 13)
+	subject := durableModel().Subject
+
+	refSrv := runServer(t, -1, t.TempDir())
+	ref := startDaemon(t, durableConfig(t, refSrv.ClientURL(), t.TempDir()), withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, ref.Ready)
+	publishAcked(t, refSrv.ClientURL(), subject, recs)
+	waitApplied(t, ref, "durable", n)
+	want := snapshotLadder(t, ref.byName["durable"])
+
+	port := freePort(t)
+	store := t.TempDir()
+	url := fmt.Sprintf("nats://127.0.0.1:%d", port)
+	srv := runServer(t, port, store)
+	td := startDaemon(t, durableConfig(t, url, t.TempDir()), withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	cuts := []int{1500, 3200}
+	from := 0
+	for _, cut := range append(cuts, n) {
+		publishRetry(t, url, subject, recs[from:cut], from)
+		from = cut
+		if cut == n {
+			break
+		}
+		srv.Shutdown()
+		srv.WaitForShutdown()
+		natstest.WaitFor(t, 10*time.Second, func() error {
+			if err := td.Ready(); err == nil {
+				return errors.New("ready while the server is down")
+			}
+			return nil
+		})
+		srv = runServer(t, port, store)
+		natstest.WaitFor(t, 20*time.Second, td.Ready)
+	}
+	waitApplied(t, td, "durable", n)
+	cnt, pos := applied(t, td, "durable")
+	if cnt != n || pos != n {
+		t.Errorf("applied %d records up to position %d, want %d exactly once", cnt, pos, n)
+	}
+	if err := sameBits(want, snapshotLadder(t, td.byName["durable"])); err != nil {
+		t.Errorf("after two server restarts the model differs from the uninterrupted one: %v", err)
+	}
+	if got := metricValue(t, td.Daemon, "lariat_nats_reconnects_total", nil); got < 2 {
+		t.Errorf("lariat_nats_reconnects_total %v after two server restarts", got)
+	}
+}
+
+// TestDurableRetentionSkip: when the stream's retention (here 1 MiB) has
+// discarded records the model never applied, the restart says how many it
+// skipped, counts them in lariat_intake_skipped_total, and applies the
+// rest: skipped + applied = published, nothing crashes.
+func TestDurableRetentionSkip(t *testing.T) {
+	srv := runServer(t, -1, t.TempDir())
+	url := srv.ClientURL()
+	subject := durableModel().Subject
+	dir := t.TempDir()
+	cfg := durableConfig(t, url, dir)
+	cfg.Intake.MaxBytes = 1 << 20
+	td := startDaemon(t, cfg, withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	recs := sparseTruth(8).records(14000, true, 14)
+	publishAcked(t, url, subject, recs[:500])
+	waitApplied(t, td, "durable", 500)
+	if err := td.stop(t); err != nil {
+		t.Fatal(err)
+	}
+	publishAcked(t, url, subject, recs[500:]) // more than 1 MiB while lariat is down
+	var logs syncBuffer
+	td = startDaemon(t, cfg, withoutIdle(), WithLogger(slog.New(slog.NewTextHandler(&logs, nil))))
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	waitApplied(t, td, "durable", uint64(len(recs)))
+	cnt, _ := applied(t, td, "durable")
+	skipped := metricValue(t, td.Daemon, "lariat_intake_skipped_total", map[string]string{"model": "durable"})
+	t.Logf("published %d, applied %d, skipped %v", len(recs), cnt, skipped)
+	if skipped < 1 || float64(cnt)+skipped != float64(len(recs)) {
+		t.Errorf("applied %d + skipped %v, want %d with some skipped", cnt, skipped, len(recs))
+	}
+	if s := logs.String(); !strings.Contains(s, "records lost before they were applied") {
+		t.Errorf("the skip is not logged:\n%s", s)
 	}
 }
