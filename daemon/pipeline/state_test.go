@@ -179,3 +179,44 @@ func FuzzRestore(f *testing.F) {
 		}
 	})
 }
+
+// BenchmarkPipelineState saves and restores a pipeline with the daemon's
+// default settings and a full window: 10,000 train records, d = 64, K = 12,
+// a held-out ring of 2,000 (the configuration a user gets by default), and
+// reports the state's size. The baseline in the same run is copying the
+// state's bytes once (the least any restore must do).
+func BenchmarkPipelineState(b *testing.B) {
+	m := config.DefaultModel()
+	m.Name, m.Subject = "bench", "bench"
+	m.Features, m.MaxFeatures = featureNames(64), 64
+	h := newHarness(b, m)
+	s := &sparseStream{rng: rand.New(rand.NewPCG(1, 2))}
+	x := make([]float64, 64)
+	for range 13000 {
+		h.feed(x, s.next(x))
+	}
+	state, err := h.p.MarshalBinary()
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Run("marshal", func(b *testing.B) {
+		for b.Loop() {
+			if _, err := h.p.MarshalBinary(); err != nil {
+				b.Fatal(err)
+			}
+		}
+		b.ReportMetric(float64(len(state)), "state-bytes")
+	})
+	b.Run("restore", func(b *testing.B) {
+		for b.Loop() {
+			if _, err := Restore(Options{Model: h.p.cfg}, state); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("copy-baseline", func(b *testing.B) {
+		for b.Loop() {
+			_ = bytes.Clone(state)
+		}
+	})
+}
