@@ -56,10 +56,18 @@ func benchRecords(n, d int) ([][]byte, []string) {
 // server and messages, (a) a plain subscriber that only receives and (b)
 // one that also decodes each message with encoding/json into a map. It
 // reports msgs/s for each and the ratios daemon/(a) and daemon/(b); ns/op
-// covers all three phases and means little on its own.
+// covers all three phases and means little on its own. It runs with the
+// durable intake (the default: the records go through the model's
+// JetStream stream, stored on disk) and with core intake.
 //
 //	go test -run '^$' -bench Throughput -benchtime 200000x ./daemon/
 func BenchmarkThroughput(b *testing.B) {
+	for _, mode := range []string{config.IntakeDurable, config.IntakeCore} {
+		b.Run("intake="+mode, func(b *testing.B) { throughput(b, mode) })
+	}
+}
+
+func throughput(b *testing.B, mode string) {
 	const d, queue = 32, 1 << 15
 	msgs, names := benchRecords(4096, d)
 	size := 0
@@ -70,7 +78,7 @@ func BenchmarkThroughput(b *testing.B) {
 	m.Name, m.Subject = "bench", "bench.records"
 	m.Features, m.MaxFeatures = names, d
 	m.Queue = queue
-	td := startDaemon(b, testConfig(b, m))
+	td := startDaemon(b, testConfigMode(b, mode, m))
 	natstest.WaitFor(b, 10*time.Second, td.Ready)
 	pub := connect(b, td.NATSURL())
 	n := b.N
