@@ -1,194 +1,105 @@
 package pipeline
 
 import (
-	"encoding/binary"
 	"errors"
 	"fmt"
 	"math"
+
+	"lariat/window"
 )
 
 // ErrState is wrapped by every error of Restore about the bytes it was
 // given: truncated, trailing, of another format, or inconsistent.
 var ErrState = errors.New("pipeline: bad state")
 
-// enc appends the pieces of a state in a fixed binary layout: unsigned
-// varints, float64 as their IEEE 754 bits (little-endian), length-prefixed
-// byte strings.
-type enc struct{ b []byte }
+// enc writes a pipeline state with window's state codec (the layout every
+// saved state of lariat uses: uvarints, zig-zag varints, float64 bits,
+// length-prefixed blobs), adding the pipeline's own composite types.
+type enc struct{ *window.Encoder }
 
-func (e *enc) uvarint(v uint64) { e.b = binary.AppendUvarint(e.b, v) }
-func (e *enc) int(v int)        { e.b = binary.AppendVarint(e.b, int64(v)) }
-func (e *enc) int64(v int64)    { e.b = binary.AppendVarint(e.b, v) }
-func (e *enc) f64(v float64)    { e.b = binary.LittleEndian.AppendUint64(e.b, math.Float64bits(v)) }
-func (e *enc) bytes(v []byte)   { e.uvarint(uint64(len(v))); e.b = append(e.b, v...) }
-func (e *enc) str(v string)     { e.uvarint(uint64(len(v))); e.b = append(e.b, v...) }
-
-func (e *enc) bool(v bool) {
-	if v {
-		e.b = append(e.b, 1)
-	} else {
-		e.b = append(e.b, 0)
-	}
-}
-
-func (e *enc) f64s(v []float64) {
-	e.uvarint(uint64(len(v)))
+func newEnc() enc              { return enc{window.NewEncoder(make([]byte, 0, 1<<16))} }
+func (e enc) uvarint(v uint64) { e.PutUvarint(v) }
+func (e enc) int(v int)        { e.PutVarint(int64(v)) }
+func (e enc) int64(v int64)    { e.PutVarint(v) }
+func (e enc) f64(v float64)    { e.PutFloat64(v) }
+func (e enc) bool(v bool)      { e.PutBool(v) }
+func (e enc) bytes(v []byte)   { e.PutBlob(v) }
+func (e enc) str(v string)     { e.PutBlob([]byte(v)) }
+func (e enc) f64s(v []float64) { e.PutFloat64s(v) }
+func (e enc) ints(v []int)     { e.uvarint(uint64(len(v))); forEach(v, e.int) }
+func (e enc) bools(v []bool)   { e.uvarint(uint64(len(v))); forEach(v, e.bool) }
+func (e enc) strs(v []string)  { e.uvarint(uint64(len(v))); forEach(v, e.str) }
+func forEach[T any](v []T, f func(T)) {
 	for _, x := range v {
-		e.f64(x)
+		f(x)
 	}
 }
 
-func (e *enc) ints(v []int) {
-	e.uvarint(uint64(len(v)))
-	for _, x := range v {
-		e.int(x)
-	}
-}
+// dec reads what enc wrote. The first problem sticks (window.Decoder);
+// done reports it wrapped in ErrState.
+type dec struct{ *window.Decoder }
 
-func (e *enc) bools(v []bool) {
-	e.uvarint(uint64(len(v)))
-	for _, x := range v {
-		e.bool(x)
-	}
-}
+func newDec(b []byte) dec             { return dec{window.NewDecoder(b)} }
+func (d dec) failed() bool            { return d.Err() != nil }
+func (d dec) fail(f string, a ...any) { d.Failf(f, a...) }
+func (d dec) uvarint() uint64         { return d.Uvarint() }
+func (d dec) int64() int64            { return d.Varint() }
+func (d dec) f64() float64            { return d.Float64() }
+func (d dec) bool() bool              { return d.Bool() }
+func (d dec) bytes() []byte           { return d.Blob() }
+func (d dec) str() string             { return string(d.Blob()) }
+func (d dec) f64s() []float64         { return d.Float64s() }
 
-func (e *enc) strs(v []string) {
-	e.uvarint(uint64(len(v)))
-	for _, x := range v {
-		e.str(x)
-	}
-}
-
-// dec reads what enc wrote. The first problem sticks: later reads return
-// zero values, and err reports it (wrapping ErrState).
-type dec struct {
-	b   []byte
-	err error
-}
-
-func (d *dec) fail(format string, args ...any) {
-	if d.err == nil {
-		d.err = fmt.Errorf("%w: %s", ErrState, fmt.Sprintf(format, args...))
-	}
-	d.b = nil
-}
-
-func (d *dec) uvarint() uint64 {
-	v, n := binary.Uvarint(d.b)
-	if n <= 0 {
-		d.fail("truncated or overlong number")
-		return 0
-	}
-	d.b = d.b[n:]
-	return v
-}
-
-func (d *dec) int64() int64 {
-	v, n := binary.Varint(d.b)
-	if n <= 0 {
-		d.fail("truncated or overlong number")
-		return 0
-	}
-	d.b = d.b[n:]
-	return v
-}
-
-func (d *dec) int() int {
-	v := d.int64()
+func (d dec) int() int {
+	v := d.Varint()
 	if v < math.MinInt32 || v > math.MaxInt32 {
-		d.fail("number %d out of range", v)
+		d.Failf("number %d out of range", v)
 		return 0
 	}
 	return int(v)
 }
 
-func (d *dec) f64() float64 {
-	if len(d.b) < 8 {
-		d.fail("truncated float")
-		return 0
-	}
-	v := math.Float64frombits(binary.LittleEndian.Uint64(d.b))
-	d.b = d.b[8:]
-	return v
-}
-
-func (d *dec) bool() bool {
-	if len(d.b) < 1 {
-		d.fail("truncated flag")
-		return false
-	}
-	v := d.b[0]
-	d.b = d.b[1:]
-	if v > 1 {
-		d.fail("flag %d", v)
-	}
-	return v == 1
-}
-
 // count reads a length whose elements take at least size bytes each, and
 // refuses one the remaining bytes cannot hold (so hostile input cannot
 // make a huge allocation).
-func (d *dec) count(size int) int {
-	n := d.uvarint()
-	if d.err != nil {
-		return 0
-	}
-	if n > uint64(len(d.b)/max(size, 1)) {
-		d.fail("length %d exceeds the %d bytes left", n, len(d.b))
-		return 0
-	}
-	return int(n)
-}
+func (d dec) count(size int) int { return d.Count("length", d.Len()/max(size, 1)) }
 
-func (d *dec) bytes() []byte {
-	n := d.count(1)
-	v := d.b[:n:n]
-	d.b = d.b[n:]
-	return v
-}
-
-func (d *dec) str() string { return string(d.bytes()) }
-
-func (d *dec) f64s() []float64 {
-	n := d.count(8)
-	v := make([]float64, n)
-	for i := range v {
-		v[i] = d.f64()
-	}
-	return v
-}
-
-func (d *dec) ints() []int {
-	n := d.count(1)
-	v := make([]int, n)
+func (d dec) ints() []int {
+	v := make([]int, d.count(1))
 	for i := range v {
 		v[i] = d.int()
 	}
 	return v
 }
 
-func (d *dec) bools() []bool {
-	n := d.count(1)
-	v := make([]bool, n)
+func (d dec) bools() []bool {
+	v := make([]bool, d.count(1))
 	for i := range v {
 		v[i] = d.bool()
 	}
 	return v
 }
 
-func (d *dec) strs() []string {
-	n := d.count(1)
-	v := make([]string, n)
+func (d dec) strs() []string {
+	v := make([]string, d.count(1))
 	for i := range v {
 		v[i] = d.str()
 	}
 	return v
 }
 
-// done reports the first problem, or trailing bytes.
-func (d *dec) done() error {
-	if d.err == nil && len(d.b) > 0 {
-		d.fail("%d bytes after the end", len(d.b))
+// err returns the first problem, wrapped in ErrState.
+func (d dec) err() error {
+	if err := d.Err(); err != nil {
+		return fmt.Errorf("%w: %v", ErrState, err)
 	}
-	return d.err
+	return nil
+}
+
+// done reports the first problem, or trailing bytes, wrapped in ErrState.
+func (d dec) done() error {
+	if err := d.Finish(); err != nil {
+		return fmt.Errorf("%w: %v", ErrState, err)
+	}
+	return nil
 }

@@ -35,7 +35,7 @@ func fingerprint(m *config.Model) uint64 {
 // threshold tuner, the version, the last published document and the stream
 // position. Restore brings it back bit for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
-	e := &enc{b: make([]byte, 0, 1<<16)}
+	e := newEnc()
 	e.uvarint(stateFormat)
 	e.str(p.name)
 	e.uvarint(fingerprint(p.cfg))
@@ -48,10 +48,10 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 		return nil, err
 	}
 	p.marshalTuner(e)
-	return e.b, nil
+	return e.Bytes(), e.Err()
 }
 
-func (p *Pipeline) marshalModel(e *enc) error {
+func (p *Pipeline) marshalModel(e enc) error {
 	lb, err := p.ladder.MarshalBinary()
 	if err != nil {
 		return err
@@ -73,7 +73,7 @@ func (p *Pipeline) marshalModel(e *enc) error {
 	return nil
 }
 
-func (p *Pipeline) marshalCounters(e *enc) {
+func (p *Pipeline) marshalCounters(e enc) {
 	e.uvarint(p.seq)
 	e.uvarint(p.held)
 	e.int(p.sinceRetune)
@@ -96,7 +96,7 @@ func (p *Pipeline) marshalCounters(e *enc) {
 	e.bytes(doc)
 }
 
-func (p *Pipeline) marshalTuner(e *enc) {
+func (p *Pipeline) marshalTuner(e enc) {
 	e.bool(p.tuner != nil)
 	if t := p.tuner; t != nil {
 		e.str(t.mode)
@@ -126,17 +126,17 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if err != nil {
 		return nil, err
 	}
-	d := &dec{b: b}
-	if v := d.uvarint(); d.err == nil && v != stateFormat {
+	d := newDec(b)
+	if v := d.uvarint(); !d.failed() && v != stateFormat {
 		return nil, fmt.Errorf("%w: format %d (this build reads %d)", ErrState, v, stateFormat)
 	}
-	if name := d.str(); d.err == nil && name != p.name {
+	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
 	}
-	if fp := d.uvarint(); d.err == nil && fp != fingerprint(p.cfg) {
+	if fp := d.uvarint(); !d.failed() && fp != fingerprint(p.cfg) {
 		return nil, fmt.Errorf("%w: the model's learning configuration changed since the state was saved", ErrState)
 	}
-	if dim := d.int(); d.err == nil && dim != p.dim {
+	if dim := d.int(); !d.failed() && dim != p.dim {
 		return nil, fmt.Errorf("%w: %d columns, the model has %d", ErrState, dim, p.dim)
 	}
 	if err := p.restoreModel(d); err != nil {
@@ -163,10 +163,10 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	return p, nil
 }
 
-func (p *Pipeline) restoreModel(d *dec) error {
+func (p *Pipeline) restoreModel(d dec) error {
 	lb := d.bytes()
-	if d.err != nil {
-		return d.err
+	if d.failed() {
+		return d.err()
 	}
 	lad, err := online.UnmarshalLadder(lb)
 	if err != nil {
@@ -181,8 +181,8 @@ func (p *Pipeline) restoreModel(d *dec) error {
 	}
 	if p.hold != nil {
 		hb := d.bytes()
-		if d.err != nil {
-			return d.err
+		if d.failed() {
+			return d.err()
 		}
 		h := new(online.Holdout)
 		if err := h.UnmarshalBinary(hb); err != nil {
@@ -194,16 +194,16 @@ func (p *Pipeline) restoreModel(d *dec) error {
 		p.hold = h
 	}
 	cb := d.bytes()
-	if d.err != nil {
-		return d.err
+	if d.failed() {
+		return d.err()
 	}
 	if err := p.chooser.UnmarshalBinary(cb); err != nil {
 		return fmt.Errorf("%w: chooser: %v", ErrState, err)
 	}
-	return d.err
+	return d.err()
 }
 
-func (p *Pipeline) restoreCounters(d *dec) {
+func (p *Pipeline) restoreCounters(d dec) {
 	p.seq, p.held = d.uvarint(), d.uvarint()
 	p.sinceRetune = d.int()
 	n := d.count(11)
@@ -224,7 +224,7 @@ func (p *Pipeline) restoreCounters(d *dec) {
 	p.version = d.uvarint()
 	p.lastPub = time.Unix(0, d.int64())
 	p.position = d.uvarint()
-	if doc := d.bytes(); len(doc) > 0 && d.err == nil {
+	if doc := d.bytes(); len(doc) > 0 && !d.failed() {
 		var last sink.ModelDoc
 		if err := json.Unmarshal(doc, &last); err != nil {
 			d.fail("last document: %v", err)
@@ -234,7 +234,7 @@ func (p *Pipeline) restoreCounters(d *dec) {
 	}
 }
 
-func (p *Pipeline) restoreTuner(d *dec) {
+func (p *Pipeline) restoreTuner(d dec) {
 	if has := d.bool(); has != (p.tuner != nil) {
 		d.fail("threshold tuner present %v, the model's %v", has, p.tuner != nil)
 		return
@@ -256,13 +256,13 @@ func (p *Pipeline) restoreTuner(d *dec) {
 			t.roc[i] = r
 		}
 	}
-	if d.err == nil && CheckThreshold(t.mode, min(max(t.target, 1e-300), 1-1e-16)) != nil {
+	if !d.failed() && CheckThreshold(t.mode, min(max(t.target, 1e-300), 1-1e-16)) != nil {
 		d.fail("threshold mode %q", t.mode)
 	}
 }
 
 // marshal writes the drift watch's state.
-func (wt *watch) marshal(e *enc) error {
+func (wt *watch) marshal(e enc) error {
 	e.bool(wt.warm)
 	e.f64(wt.yScale)
 	s := wt.sample
@@ -301,7 +301,7 @@ func (wt *watch) marshal(e *enc) error {
 	return wt.marshalDetector(e)
 }
 
-func (wt *watch) marshalDetector(e *enc) error {
+func (wt *watch) marshalDetector(e enc) error {
 	e.bool(wt.det != nil)
 	if wt.det == nil {
 		return nil
@@ -322,17 +322,17 @@ func (wt *watch) marshalDetector(e *enc) error {
 }
 
 // restore reads what marshal wrote into a watch built for the same model.
-func (wt *watch) restore(d *dec) error {
+func (wt *watch) restore(d dec) error {
 	wt.warm = d.bool()
 	wt.yScale = d.f64()
 	s := wt.sample
 	rows, ys := d.f64s(), d.f64s()
 	pos, n := d.int(), d.int()
-	if d.err == nil && (len(rows) != len(s.rows) || len(ys) != len(s.y) || pos < 0 || pos >= max(len(s.y), 1) || n < 0 || n > len(s.y)) {
+	if !d.failed() && (len(rows) != len(s.rows) || len(ys) != len(s.y) || pos < 0 || pos >= max(len(s.y), 1) || n < 0 || n > len(s.y)) {
 		d.fail("data sample of %d×%d (at %d, %d filled), the model's is %d×%d", len(ys), len(rows)/max(len(ys), 1), pos, n, len(s.y), s.d)
 	}
-	if d.err != nil {
-		return d.err
+	if d.failed() {
+		return d.err()
 	}
 	copy(s.rows, rows)
 	copy(s.y, ys)
@@ -340,8 +340,8 @@ func (wt *watch) restore(d *dec) error {
 	wt.ref = nil
 	if d.bool() {
 		rb := d.bytes()
-		if d.err != nil {
-			return d.err
+		if d.failed() {
+			return d.err()
 		}
 		ref := new(window.ShiftReference)
 		if err := ref.UnmarshalBinary(rb); err != nil {
@@ -356,7 +356,7 @@ func (wt *watch) restore(d *dec) error {
 	wt.sinceRef, wt.sinceData = d.int(), d.int()
 	wt.retake = d.bool()
 	support, streak := d.bools(), d.ints()
-	if d.err == nil && (len(support) != len(wt.support) || len(streak) != len(wt.streak)) {
+	if !d.failed() && (len(support) != len(wt.support) || len(streak) != len(wt.streak)) {
 		d.fail("support of %d features, the model has %d", len(support), len(wt.support))
 	}
 	copy(wt.support, support)
@@ -374,16 +374,16 @@ func (wt *watch) restore(d *dec) error {
 	return wt.restoreDetector(d)
 }
 
-func (wt *watch) restoreDetector(d *dec) error {
+func (wt *watch) restoreDetector(d dec) error {
 	if has := d.bool(); has != (wt.det != nil) {
 		d.fail("performance detector present %v, the model's %v", has, wt.det != nil)
 	}
-	if d.err != nil || wt.det == nil {
-		return d.err
+	if d.failed() || wt.det == nil {
+		return d.err()
 	}
 	b := d.bytes()
-	if d.err != nil {
-		return d.err
+	if d.failed() {
+		return d.err()
 	}
 	var err error
 	if wt.det.adwin != nil {
@@ -395,5 +395,5 @@ func (wt *watch) restoreDetector(d *dec) error {
 		return fmt.Errorf("%w: performance detector: %v", ErrState, err)
 	}
 	wt.det.sinceZero = d.int()
-	return d.err
+	return d.err()
 }
