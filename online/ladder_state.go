@@ -3,6 +3,8 @@ package online
 import (
 	"fmt"
 	"time"
+
+	"lariat/window"
 )
 
 // MarshalBinary returns the whole state of the ladder: its options (the
@@ -27,37 +29,37 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	if err != nil {
 		return nil, err
 	}
-	e := encoder{}
+	e := window.NewEncoder(nil)
 	if s, ok := l.lrn.(*sagaLearner); ok {
-		e.b = make([]byte, 0, 256+8*16*l.d+len(l.lambdas)*8*(2*l.d+16)+s.ts.ring.Len()*8*(l.d+3+s.k))
+		e = window.NewEncoder(make([]byte, 0, 256+8*16*l.d+len(l.lambdas)*8*(2*l.d+16)+s.ts.ring.Len()*(8*(l.d+3+s.k)+2)))
 	}
-	e.header(stateLadder)
+	putHeader(e, stateLadder)
 	o := &l.opt
-	e.str(name)
-	e.f(o.Penalty.Mix)
-	e.int(o.Features)
-	e.int(o.Window)
-	e.int64(int64(o.Span))
-	e.int(o.Size)
-	e.f(o.Floor)
-	e.f(o.Lambda)
-	e.int(o.Steps)
-	e.u64(o.Seed)
-	e.str(o.Learner)
-	e.f(o.HalfLife)
-	e.uint(l.seen)
-	e.f(l.lmax)
-	e.f(l.anchor)
-	e.flen(l.lambdas)
+	putString(e, name)
+	e.PutFloat64(o.Penalty.Mix)
+	e.PutUvarint(uint64(o.Features))
+	e.PutUvarint(uint64(o.Window))
+	e.PutVarint(int64(o.Span))
+	e.PutUvarint(uint64(o.Size))
+	e.PutFloat64(o.Floor)
+	e.PutFloat64(o.Lambda)
+	e.PutUvarint(uint64(o.Steps))
+	e.PutUvarint(o.Seed)
+	putString(e, o.Learner)
+	e.PutFloat64(o.HalfLife)
+	e.PutUvarint(l.seen)
+	e.PutFloat64(l.lmax)
+	e.PutFloat64(l.anchor)
+	e.PutFloat64s(l.lambdas)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
-		if err := lrn.encode(&e); err != nil {
+		if err := lrn.encode(e); err != nil {
 			return nil, err
 		}
 	case *decayLearner:
-		lrn.encode(&e)
+		lrn.encode(e)
 	}
-	return e.b, nil
+	return e.Bytes(), nil
 }
 
 // UnmarshalLadder returns the ladder whose state MarshalBinary saved in b.
@@ -66,19 +68,20 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // wrapping ErrState; no input makes it panic, and it allocates only the
 // buffers of the ladder that b describes.
 //
-// The format, version 1: the version byte 1 and the type byte 'L'; the
-// options (loss name, penalty mix, features, window, span in
-// nanoseconds, size, floor, fixed λ, steps, seed as 8 bytes, learner name,
-// half-life); the records seen, λ_max, the anchor of the grid and the
-// grid; then the learner's state (sagaLearner.encode, decayLearner.encode).
-// Integers are varints, float64 their little-endian IEEE 754 bits,
-// strings and slices carry a varint length.
+// The format, version 2, written with window.Encoder: the version byte 2
+// and the type byte 'L'; the options (loss name, penalty mix, features,
+// window, span in nanoseconds, size, floor, fixed λ, steps, seed, learner
+// name, half-life); the records seen, λ_max, the anchor of the grid and
+// the grid; then the learner's state (sagaLearner.encode,
+// decayLearner.encode). Integers are varints, float64 their little-endian
+// IEEE 754 bits, strings, byte strings and float64 slices carry a varint
+// length.
 func UnmarshalLadder(b []byte) (*Ladder, error) {
-	d := decoder{b: b}
-	d.header(stateLadder)
-	opt := decodeOptions(&d)
-	if d.err != nil {
-		return nil, d.err
+	d := window.NewDecoder(b)
+	header(d, stateLadder)
+	opt := decodeOptions(d)
+	if d.Err() != nil {
+		return nil, stateErr(d.Err())
 	}
 	l, err := NewLadder(&opt)
 	if err != nil {
@@ -88,16 +91,16 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 		l.opt.Floor != opt.Floor || l.opt.HalfLife != opt.HalfLife {
 		return nil, fmt.Errorf("%w: options not in resolved form", ErrState)
 	}
-	l.seen = d.uint()
-	l.lmax, l.anchor = d.f(), d.f()
-	d.flen(l.lambdas, "lambda grid")
+	l.seen = d.Uvarint()
+	l.lmax, l.anchor = d.Float64(), d.Float64()
+	d.Float64sInto(l.lambdas)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
-		lrn.decode(&d, l.xbuf)
+		lrn.decode(d, l.xbuf)
 	case *decayLearner:
-		lrn.decode(&d)
+		lrn.decode(d)
 	}
-	if err := d.end(); err != nil {
+	if err := finish(d); err != nil {
 		return nil, err
 	}
 	return l, nil
@@ -118,30 +121,30 @@ func (l *Ladder) UnmarshalBinary(b []byte) error {
 // decodeOptions reads the options and checks that the buffers they call
 // for stay within the bounds of a restore, and that the input is long
 // enough to hold the members they claim, before anything is allocated.
-func decodeOptions(d *decoder) Options {
-	name := d.str(64, "loss")
-	mix := d.f()
+func decodeOptions(d *window.Decoder) Options {
+	name := str(d, 64, "loss")
+	mix := d.Float64()
 	var o Options
-	o.Features = d.int(maxStateFeatures, "features")
-	o.Window = d.int(maxStateCap, "window")
-	o.Span = time.Duration(d.int64())
-	o.Size = d.int(maxStateSize, "size")
-	o.Floor, o.Lambda = d.f(), d.f()
-	o.Steps = d.int(maxStateSteps, "steps")
-	o.Seed = d.u64()
-	o.Learner = d.str(16, "learner")
-	o.HalfLife = d.f()
-	if d.err != nil {
+	o.Features = d.Count("features", maxStateFeatures)
+	o.Window = d.Count("window", maxStateCap)
+	o.Span = time.Duration(d.Varint())
+	o.Size = d.Count("size", maxStateSize)
+	o.Floor, o.Lambda = d.Float64(), d.Float64()
+	o.Steps = d.Count("steps", maxStateSteps)
+	o.Seed = d.Uvarint()
+	o.Learner = str(d, 16, "learner")
+	o.HalfLife = d.Float64()
+	if d.Err() != nil {
 		return o
 	}
 	loss, ok := LossByName(name)
 	if !ok {
-		d.fail("unknown loss %q", name)
+		d.Failf("unknown loss %q", name)
 		return o
 	}
 	o.Loss, o.Penalty = loss, &Penalty{Mix: mix}
 	if o.Features < 1 || o.Window < 1 || o.Size < 1 || o.Steps < 1 || o.Learner == "" {
-		d.fail("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
+		d.Failf("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
 		return o
 	}
 	// In int64: the product can exceed a 32-bit int.
@@ -153,86 +156,86 @@ func decodeOptions(d *decoder) Options {
 		words += int64(o.Window)*(d64+k64+sagaSlotWords) + 12*d64
 	}
 	if words > int64(stateWordLimit) {
-		d.fail("buffers of %d words above %d", words, stateWordLimit)
+		d.Failf("buffers of %d words above %d", words, stateWordLimit)
 		return o
 	}
 	// Each member saves at least perMember float64 (its vectors).
-	d.need(o.Size, 8*perMember, "members")
+	need(d, o.Size, 8*perMember, "members")
 	return o
 }
 
 // encode appends the SAGA learner's state: the train window, then the
 // learner's scalars and generator, then the members.
-func (s *sagaLearner) encode(e *encoder) error {
+func (s *sagaLearner) encode(e *window.Encoder) error {
 	s.ts.encode(e, s.ms)
-	e.f(s.gamma)
-	e.f(s.gkey.maxW)
-	e.f(s.gkey.bound)
-	e.f(s.gkey.w)
-	e.int(s.gkey.n)
-	e.f(s.c)
-	e.f(s.cGamma)
-	e.f(s.cW)
-	e.bool(s.pending)
-	e.bool(s.pfull)
-	e.int(s.pslot)
-	e.int64(int64(s.first))
-	e.bool(s.primed)
+	e.PutFloat64(s.gamma)
+	e.PutFloat64(s.gkey.maxW)
+	e.PutFloat64(s.gkey.bound)
+	e.PutFloat64(s.gkey.w)
+	e.PutUvarint(uint64(s.gkey.n))
+	e.PutFloat64(s.c)
+	e.PutFloat64(s.cGamma)
+	e.PutFloat64(s.cW)
+	e.PutBool(s.pending)
+	e.PutBool(s.pfull)
+	e.PutUvarint(uint64(s.pslot))
+	e.PutVarint(int64(s.first))
+	e.PutBool(s.primed)
 	if s.pending {
-		e.fs(s.pend)
+		e.PutFloat64s(s.pend)
 	}
 	rng, err := s.src.MarshalBinary()
 	if err != nil {
 		return fmt.Errorf("%w: %w", ErrState, err)
 	}
-	e.bytes(rng)
-	e.int(len(s.ms))
+	e.PutBlob(rng)
+	e.PutUvarint(uint64(len(s.ms)))
 	for _, m := range s.ms {
-		e.f(m.lambda)
-		e.f(m.b)
-		e.f(m.gsum)
-		e.f(m.thr)
-		e.f(m.shrink)
-		e.f(m.eta)
-		e.f(m.gnew)
-		e.f(m.gold)
-		e.fs(m.theta)
-		e.fs(m.s)
+		e.PutFloat64(m.lambda)
+		e.PutFloat64(m.b)
+		e.PutFloat64(m.gsum)
+		e.PutFloat64(m.thr)
+		e.PutFloat64(m.shrink)
+		e.PutFloat64(m.eta)
+		e.PutFloat64(m.gnew)
+		e.PutFloat64(m.gold)
+		e.PutFloat64s(m.theta)
+		e.PutFloat64s(m.s)
 	}
 	return nil
 }
 
 // decode reads what encode wrote into a learner fresh from newSAGA; xbuf
 // is the ladder's record buffer, which a pending admission refers to.
-func (s *sagaLearner) decode(d *decoder, xbuf []float64) {
+func (s *sagaLearner) decode(d *window.Decoder, xbuf []float64) {
 	s.ts.decode(d, s.ms, s.k)
-	s.gamma = d.f()
-	s.gkey.maxW, s.gkey.bound, s.gkey.w = d.f(), d.f(), d.f()
-	s.gkey.n = d.int(maxStateCap, "step key length")
-	s.c, s.cGamma, s.cW = d.f(), d.f(), d.f()
-	s.pending, s.pfull = d.bool("pending"), d.bool("pending full")
-	s.pslot = d.int(maxStateCap, "pending slot")
-	s.first = int(d.int64())
-	s.primed = d.bool("primed")
+	s.gamma = d.Float64()
+	s.gkey.maxW, s.gkey.bound, s.gkey.w = d.Float64(), d.Float64(), d.Float64()
+	s.gkey.n = d.Count("step key length", maxStateCap)
+	s.c, s.cGamma, s.cW = d.Float64(), d.Float64(), d.Float64()
+	s.pending, s.pfull = d.Bool(), d.Bool()
+	s.pslot = d.Count("pending slot", maxStateCap)
+	s.first = int(d.Varint())
+	s.primed = d.Bool()
 	if s.pending {
 		s.pend = xbuf
-		d.fs(s.pend, "pending record")
+		d.Float64sInto(s.pend)
 	}
-	rng := d.bytes(64, "generator")
-	if d.err == nil {
+	rng := blob(d, 64, "generator")
+	if d.Err() == nil {
 		if err := s.src.UnmarshalBinary(rng); err != nil {
-			d.fail("generator: %v", err)
+			d.Failf("generator: %v", err)
 		}
 	}
-	if n := d.int(maxStateSize, "members"); d.err == nil && n != len(s.ms) {
-		d.fail("%d members, want %d", n, len(s.ms))
+	if n := d.Count("members", maxStateSize); d.Err() == nil && n != len(s.ms) {
+		d.Failf("%d members, want %d", n, len(s.ms))
 	}
 	for _, m := range s.ms {
-		m.lambda, m.b, m.gsum = d.f(), d.f(), d.f()
-		m.thr, m.shrink = d.f(), d.f()
-		m.eta, m.gnew, m.gold = d.f(), d.f(), d.f()
-		d.fs(m.theta, "coefficients")
-		d.fs(m.s, "gradient sums")
+		m.lambda, m.b, m.gsum = d.Float64(), d.Float64(), d.Float64()
+		m.thr, m.shrink = d.Float64(), d.Float64()
+		m.eta, m.gnew, m.gold = d.Float64(), d.Float64(), d.Float64()
+		d.Float64sInto(m.theta)
+		d.Float64sInto(m.s)
 	}
 	s.check(d)
 }
@@ -240,71 +243,74 @@ func (s *sagaLearner) decode(d *decoder, xbuf []float64) {
 // check refuses step bookkeeping that would send the next step outside
 // the window: a first step is drawn (first ≥ 0) exactly when the members'
 // predictors are primed, and a pending admission is the newest record.
-func (s *sagaLearner) check(d *decoder) {
-	if d.err != nil {
+func (s *sagaLearner) check(d *window.Decoder) {
+	if d.Err() != nil {
 		return
 	}
 	n := s.ts.ring.Len()
 	switch {
 	case s.primed != (s.first >= 0) || s.first < -1 || s.first >= n:
-		d.fail("first step %d (primed %v) in a window of %d", s.first, s.primed, n)
+		d.Failf("first step %d (primed %v) in a window of %d", s.first, s.primed, n)
 	case s.pending && (!s.primed || s.pslot != s.ts.ring.Slot(n-1)):
-		d.fail("pending admission in slot %d", s.pslot)
+		d.Failf("pending admission in slot %d", s.pslot)
 	}
 }
 
 // encode appends the window: the ring's head slot and length, each record
 // oldest first (label, weight, time, features and the members' gradients),
 // the exact scaler, the working scale and the pieces of the step bound.
-func (ts *trainset) encode(e *encoder, ms []*sagaMember) {
+func (ts *trainset) encode(e *window.Encoder, ms []*sagaMember) {
 	n := ts.ring.Len()
 	head := 0
 	if n > 0 {
 		head = ts.ring.Slot(0)
 	}
-	e.int(head)
-	e.int(n)
+	e.PutUvarint(uint64(head))
+	e.PutUvarint(uint64(n))
 	k := len(ms)
 	for i := range n {
 		r, s := ts.ring.At(i), ts.ring.Slot(i)
-		e.f(r.y)
-		e.f(r.w)
-		e.u64(uint64(r.t))
-		e.fs(ts.row(s))
-		e.fs(ms[0].g[s*k : s*k+k])
+		e.PutFloat64(r.y)
+		e.PutFloat64(r.w)
+		e.PutVarint(r.t)
+		e.PutFloat64s(ts.row(s))
+		e.PutFloat64s(ms[0].g[s*k : s*k+k])
 	}
-	e.f(ts.sc.w)
-	e.f(ts.sc.wy)
-	e.fs(ts.sc.mean)
-	e.fs(ts.sc.m2)
-	e.fs(ts.sc.sxy)
-	e.fs(ts.mu)
-	e.fs(ts.sd)
-	e.fs(ts.inv)
-	e.int(ts.since)
-	e.fs(ts.refMu)
-	e.fs(ts.refInv)
+	e.PutFloat64(ts.sc.w)
+	e.PutFloat64(ts.sc.wy)
+	e.PutFloat64s(ts.sc.mean)
+	e.PutFloat64s(ts.sc.m2)
+	e.PutFloat64s(ts.sc.sxy)
+	e.PutFloat64s(ts.mu)
+	e.PutFloat64s(ts.sd)
+	e.PutFloat64s(ts.inv)
+	e.PutUvarint(uint64(ts.since))
+	e.PutFloat64s(ts.refMu)
+	e.PutFloat64s(ts.refInv)
 	for _, v := range []float64{ts.maxW, ts.maxWA2, ts.rmax, ts.mnorm, ts.atRefresh, ts.sinceMax, ts.boundAtResync} {
-		e.f(v)
+		e.PutFloat64(v)
 	}
-	e.int(ts.dref)
-	e.int(ts.dunref)
-	e.int(ts.arrivals)
-	e.int(ts.resyncLen)
+	e.PutUvarint(uint64(ts.dref))
+	e.PutUvarint(uint64(ts.dunref))
+	e.PutUvarint(uint64(ts.arrivals))
+	e.PutUvarint(uint64(ts.resyncLen))
 }
 
 // decode reads what encode wrote into an empty trainset. The records go
 // back into the ring slots they held (the physical layout decides how a
 // resync groups the rows for its kernel calls), by advancing the empty
 // ring's head to the saved slot first.
-func (ts *trainset) decode(d *decoder, ms []*sagaMember, k int) {
+func (ts *trainset) decode(d *window.Decoder, ms []*sagaMember, k int) {
 	c := ts.ring.Cap()
-	head := d.int(maxStateCap, "ring head")
-	n := d.int(maxStateCap, "window length")
-	if d.err == nil && (head >= c || n > c) {
-		d.fail("ring head %d, length %d, capacity %d", head, n, c)
+	head := d.Count("ring head", maxStateCap)
+	n := d.Count("window length", maxStateCap)
+	if d.Err() == nil && (head >= c || n > c) {
+		d.Failf("ring head %d, length %d, capacity %d", head, n, c)
 	}
-	if !d.need(n, 8*(3+ts.d+k), "window records") {
+	// A record holds at least its label and weight (8 bytes each), its time
+	// (a varint, 1 byte or more) and its features and gradients (8 bytes
+	// each after a length of 1 byte or more).
+	if !need(d, n, 8*(2+ts.d+k)+3, "window records") {
 		return
 	}
 	for range head {
@@ -314,80 +320,80 @@ func (ts *trainset) decode(d *decoder, ms []*sagaMember, k int) {
 	table := ms[0].g
 	for range n {
 		var r meta
-		r.y, r.w, r.t = d.f(), d.f(), int64(d.u64())
+		r.y, r.w, r.t = d.Float64(), d.Float64(), d.Varint()
 		ts.ring.Push(r)
 		s := ts.ring.Slot(ts.ring.Len() - 1)
-		d.fs(ts.row(s), "record")
-		d.fs(table[s*k:s*k+k], "gradients")
+		d.Float64sInto(ts.row(s))
+		d.Float64sInto(table[s*k : s*k+k])
 	}
-	ts.sc.w, ts.sc.wy = d.f(), d.f()
-	d.fs(ts.sc.mean, "scaler")
-	d.fs(ts.sc.m2, "scaler")
-	d.fs(ts.sc.sxy, "scaler")
-	d.fs(ts.mu, "scale")
-	d.fs(ts.sd, "scale")
-	d.fs(ts.inv, "scale")
-	ts.since = d.int(maxStateInt, "since")
-	d.fs(ts.refMu, "reference scale")
-	d.fs(ts.refInv, "reference scale")
+	ts.sc.w, ts.sc.wy = d.Float64(), d.Float64()
+	d.Float64sInto(ts.sc.mean)
+	d.Float64sInto(ts.sc.m2)
+	d.Float64sInto(ts.sc.sxy)
+	d.Float64sInto(ts.mu)
+	d.Float64sInto(ts.sd)
+	d.Float64sInto(ts.inv)
+	ts.since = d.Count("since", maxStateInt)
+	d.Float64sInto(ts.refMu)
+	d.Float64sInto(ts.refInv)
 	for _, p := range []*float64{&ts.maxW, &ts.maxWA2, &ts.rmax, &ts.mnorm, &ts.atRefresh, &ts.sinceMax, &ts.boundAtResync} {
-		*p = d.f()
+		*p = d.Float64()
 	}
-	ts.dref = d.int(ts.d, "features with a reference scale")
-	ts.dunref = d.int(ts.d-ts.dref, "features without a reference scale")
-	ts.arrivals = d.int(maxStateInt, "arrivals")
-	ts.resyncLen = d.int(c, "length at resync")
+	ts.dref = d.Count("features with a reference scale", ts.d)
+	ts.dunref = d.Count("features without a reference scale", ts.d-ts.dref)
+	ts.arrivals = d.Count("arrivals", maxStateInt)
+	ts.resyncLen = d.Count("length at resync", c)
 }
 
 // encode appends the decay learner's state: its clock and decayed counts,
 // the per-feature scale and last-touch clocks, then every member's
 // FTRL-Proximal state.
-func (l *decayLearner) encode(e *encoder) {
-	e.int64(l.clock)
-	e.f(l.count)
-	e.f(l.wsum)
-	e.int(l.since)
+func (l *decayLearner) encode(e *window.Encoder) {
+	e.PutVarint(l.clock)
+	e.PutFloat64(l.count)
+	e.PutFloat64(l.wsum)
+	e.PutUvarint(uint64(l.since))
 	for _, t := range l.last {
-		e.int64(t)
+		e.PutVarint(t)
 	}
 	for _, v := range [][]float64{l.fw, l.mean, l.m2, l.ymean, l.cxy, l.sd, l.inv} {
-		e.fs(v)
+		e.PutFloat64s(v)
 	}
-	e.int(len(l.ms))
+	e.PutUvarint(uint64(len(l.ms)))
 	for _, m := range l.ms {
-		e.f(m.lambda)
-		e.f(m.b)
-		e.f(m.zb)
-		e.f(m.nb)
-		e.fs(m.theta)
-		e.fs(m.z)
-		e.fs(m.n)
-		e.fs(m.sqn)
+		e.PutFloat64(m.lambda)
+		e.PutFloat64(m.b)
+		e.PutFloat64(m.zb)
+		e.PutFloat64(m.nb)
+		e.PutFloat64s(m.theta)
+		e.PutFloat64s(m.z)
+		e.PutFloat64s(m.n)
+		e.PutFloat64s(m.sqn)
 	}
 }
 
 // decode reads what encode wrote into a learner fresh from newDecay.
-func (l *decayLearner) decode(d *decoder) {
-	l.clock = d.int64()
-	l.count, l.wsum = d.f(), d.f()
-	l.since = d.int(maxStateInt, "since")
-	if !d.need(len(l.last), 1, "last touches") {
+func (l *decayLearner) decode(d *window.Decoder) {
+	l.clock = d.Varint()
+	l.count, l.wsum = d.Float64(), d.Float64()
+	l.since = d.Count("since", maxStateInt)
+	if !need(d, len(l.last), 1, "last touches") {
 		return
 	}
 	for j := range l.last {
-		l.last[j] = d.int64()
+		l.last[j] = d.Varint()
 	}
 	for _, v := range [][]float64{l.fw, l.mean, l.m2, l.ymean, l.cxy, l.sd, l.inv} {
-		d.fs(v, "scale")
+		d.Float64sInto(v)
 	}
-	if n := d.int(maxStateSize, "members"); d.err == nil && n != len(l.ms) {
-		d.fail("%d members, want %d", n, len(l.ms))
+	if n := d.Count("members", maxStateSize); d.Err() == nil && n != len(l.ms) {
+		d.Failf("%d members, want %d", n, len(l.ms))
 	}
 	for _, m := range l.ms {
-		m.lambda, m.b, m.zb, m.nb = d.f(), d.f(), d.f(), d.f()
-		d.fs(m.theta, "coefficients")
-		d.fs(m.z, "accumulators")
-		d.fs(m.n, "accumulators")
-		d.fs(m.sqn, "accumulators")
+		m.lambda, m.b, m.zb, m.nb = d.Float64(), d.Float64(), d.Float64(), d.Float64()
+		d.Float64sInto(m.theta)
+		d.Float64sInto(m.z)
+		d.Float64sInto(m.n)
+		d.Float64sInto(m.sqn)
 	}
 }

@@ -3,8 +3,16 @@ package online
 import (
 	"bytes"
 	"errors"
+	"flag"
 	"fmt"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
 	"testing"
+	"time"
+
+	wnd "lariat/window"
 )
 
 // smallLadder returns the encoding of a small ladder whose window has
@@ -74,34 +82,34 @@ func TestStateHostile(t *testing.T) {
 // TestStateInconsistent checks hand-made encodings whose sizes do not fit.
 func TestStateInconsistent(t *testing.T) {
 	ladder := func(window, features, size int, learner string) []byte {
-		var e encoder
-		e.header(stateLadder)
-		e.str("squared")
-		e.f(1)
-		e.int(features)
-		e.int(window)
-		e.int64(0)
-		e.int(size)
-		e.f(1e-3)
-		e.f(0)
-		e.int(2)
-		e.u64(1)
-		e.str(learner)
-		e.f(100)
-		e.uint(0)
-		e.f(0)
-		e.f(0)
-		return e.b
+		e := wnd.NewEncoder(nil)
+		putHeader(e, stateLadder)
+		putString(e, "squared")
+		e.PutFloat64(1)
+		e.PutUvarint(uint64(features))
+		e.PutUvarint(uint64(window))
+		e.PutVarint(0)
+		e.PutUvarint(uint64(size))
+		e.PutFloat64(1e-3)
+		e.PutFloat64(0)
+		e.PutUvarint(2)
+		e.PutUvarint(1)
+		putString(e, learner)
+		e.PutFloat64(100)
+		e.PutUvarint(0)
+		e.PutFloat64(0)
+		e.PutFloat64(0)
+		return e.Bytes()
 	}
 	holdout := func(features, capacity, head, n int) []byte {
-		var e encoder
-		e.header(stateHoldout)
-		e.int(features)
-		e.int(capacity)
-		e.int(head)
-		e.int(n)
-		e.str("")
-		return e.b
+		e := wnd.NewEncoder(nil)
+		putHeader(e, stateHoldout)
+		e.PutUvarint(uint64(features))
+		e.PutUvarint(uint64(capacity))
+		e.PutUvarint(uint64(head))
+		e.PutUvarint(uint64(n))
+		putString(e, "")
+		return e.Bytes()
 	}
 	for _, tc := range []struct {
 		name string
@@ -162,4 +170,101 @@ func FuzzLadderState(f *testing.F) {
 			l.KKT(i)
 		}
 	})
+}
+
+var updateSeeds = flag.Bool("update-seeds", false, "rewrite the committed seeds of FuzzLadderState in testdata/fuzz")
+
+// fuzzSeeds returns the committed seeds of FuzzLadderState by file name:
+// valid encodings of small ladders (SAGA with a wrapped window, with a
+// fixed λ and with a span that evicted records; decay), of a holdout that
+// has wrapped and holds missing features, and of a chooser.
+func fuzzSeeds(t testing.TB) map[string][]byte {
+	span := stateCase{opt: Options{Features: 3, Window: 5, Span: 3 * time.Second, Size: 2, Seed: 4}, timed: true}
+	l, err := NewLadder(&span.opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, r := range span.records(9) {
+		if i == 6 { // a gap in time: the span evicts two records at once
+			continue
+		}
+		if err := l.Add(r); err != nil {
+			t.Fatal(err)
+		}
+	}
+	h := NewHoldout(2, 4)
+	for _, r := range (stateCase{opt: Options{Features: 2}, nan: true}).records(6) {
+		if err := h.Add(r); err != nil {
+			t.Fatal(err)
+		}
+	}
+	c := Chooser{Rule: RuleOneSE}
+	c.Update([]Score{{Lambda: 1, Loss: 1}, {Lambda: 0.5, Loss: 0.5}})
+	return map[string][]byte{
+		"saga_wrapped":      smallLadder(t, "saga", 0),
+		"saga_fixed_lambda": smallLadder(t, "saga", 0.1),
+		"saga_span":         must(l.MarshalBinary()),
+		"decay":             smallLadder(t, "decay", 0),
+		"holdout":           must(h.MarshalBinary()),
+		"chooser":           must(c.MarshalBinary()),
+	}
+}
+
+// TestFuzzSeeds checks that every committed seed of FuzzLadderState is a
+// valid encoding, so that the fuzzer starts from states that restore
+// (the seeds themselves may differ in their last bits from what this
+// machine computes, see the kernels). With -update-seeds it first rewrites
+// them from fuzzSeeds.
+func TestFuzzSeeds(t *testing.T) {
+	dir := filepath.Join("testdata", "fuzz", "FuzzLadderState")
+	if *updateSeeds {
+		for name, b := range fuzzSeeds(t) {
+			data := "go test fuzz v1\n[]byte(" + strconv.Quote(string(b)) + ")\n"
+			if err := os.WriteFile(filepath.Join(dir, name), []byte(data), 0o644); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	files, err := os.ReadDir(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	seen := map[string]bool{}
+	for _, f := range files {
+		raw, err := os.ReadFile(filepath.Join(dir, f.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		lines := strings.Split(strings.TrimSpace(string(raw)), "\n")
+		if len(lines) != 2 || lines[0] != "go test fuzz v1" ||
+			!strings.HasPrefix(lines[1], "[]byte(") || !strings.HasSuffix(lines[1], ")") {
+			t.Fatalf("%s: not a seed of one []byte", f.Name())
+		}
+		s, err := strconv.Unquote(strings.TrimSuffix(strings.TrimPrefix(lines[1], "[]byte("), ")"))
+		if err != nil || len(s) < 2 {
+			t.Fatalf("%s: %q: %v", f.Name(), lines[1], err)
+		}
+		b := []byte(s)
+		switch b[1] {
+		case stateLadder:
+			_, err = UnmarshalLadder(b)
+		case stateHoldout:
+			var h Holdout
+			err = h.UnmarshalBinary(b)
+		case stateChooser:
+			var c Chooser
+			err = c.UnmarshalBinary(b)
+		default:
+			err = fmt.Errorf("type byte %q", b[1])
+		}
+		if err != nil {
+			t.Errorf("%s: %v", f.Name(), err)
+		}
+		seen[f.Name()] = true
+	}
+	for name := range fuzzSeeds(t) {
+		if !seen[name] {
+			t.Errorf("seed %s missing", name)
+		}
+	}
 }
