@@ -13,7 +13,10 @@ import (
 // ch. 2 and 5). The grid spans two decades (Floor 0.01): for the lasso at
 // λ = 10⁻³·λ_max with d > n the solution nearly interpolates and coordinate
 // descent crawls along the flat valley (a known limitation, written down in
-// the report); the ridge closed-form test covers d > n at small λ. The KKT
+// the report); the ridge closed-form test covers d > n at small λ. The
+// epoch budget is 600: with 60, one problem in a few hundred (lasso, n = 9,
+// d = 11, λ = 0.01·λ_max; rapid seed 15865804918756712539) stopped at KKT
+// 2.4e-6, and 600 passed 20,000 random problems (-rapid.checks=20000). The KKT
 // measure itself is checked independently in TestKKTDetectsNonOptimal.
 func TestKKTProperty(t *testing.T) {
 	rapid.Check(t, func(t *rapid.T) {
@@ -32,7 +35,7 @@ func TestKKTProperty(t *testing.T) {
 			t.Fatal(err)
 		}
 		feed(t, l, p, 0, n)
-		if !l.Converge(1e-7, 60) {
+		if !l.Converge(1e-7, 600) {
 			for i := range l.Size() {
 				t.Logf("member %d λ=%g KKT %g", i, l.Lambda(i), l.KKT(i))
 			}
