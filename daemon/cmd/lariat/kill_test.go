@@ -47,7 +47,8 @@ const (
 // model must end with every record applied exactly once (records.applied
 // equals the number published and the stream holds each record once) and
 // equal bit for bit to a process that ran once over the same records, and
-// a last graceful restart must serve the same model from its checkpoint.
+// a last graceful restart must serve the same model from its checkpoint,
+// with no temporary file of a killed checkpoint write left behind.
 //
 // The models are compared as their JSON documents over HTTP (the intercept,
 // coefficients, standardized coefficients, scale, λ, the held-out metrics,
@@ -96,11 +97,18 @@ func TestKillNine(t *testing.T) {
 		}
 		acked := pub.acked.Load()
 		l.kill(t)
+		if during && hits > 0 && strings.HasPrefix(what, "while ") {
+			if _, err := os.Stat(filepath.Join(l.dir, "data", "checkpoints", strings.Fields(what)[1])); err == nil {
+				what += " (left unrenamed)"
+			} else {
+				what += " (renamed before the kill landed)"
+			}
+		}
 		time.Sleep(time.Duration(rng.IntN(300)) * time.Millisecond) // records pile up at the publisher
 		down := time.Now()
 		l.start(t)
-		t.Logf("kill %d at %d records acked (point %d), %s; back up in %v",
-			i+1, acked, k, what, time.Since(down).Round(time.Millisecond))
+		t.Logf("kill %d at %d records acked (point %d), %s; back up in %v, %s",
+			i+1, acked, k, what, time.Since(down).Round(time.Millisecond), l.restoredAt())
 	}
 	if err := pub.wait(killTimeout); err != nil {
 		t.Fatal(err)
@@ -128,6 +136,11 @@ func TestKillNine(t *testing.T) {
 	}
 	if g, w := modelJSON(restored), modelJSON(want); !bytes.Equal(g, w) {
 		t.Errorf("the model restored after the graceful stop differs:\n got %s\nwant %s", g, w)
+	}
+	// A kill during a checkpoint write leaves its temporary file; the next
+	// start removes it. The newest two checkpoints stay.
+	if files := readDir(filepath.Join(l.dir, "data", "checkpoints")); !slices.Equal(files, []string{"kill.ckpt", "kill.prev.ckpt"}) {
+		t.Errorf("checkpoint directory holds %v, want the newest two checkpoints only", files)
 	}
 	l.stop(t)
 }
@@ -378,6 +391,23 @@ func readDir(dir string) []string {
 		names[i] = e.Name()
 	}
 	return names
+}
+
+// restoredAt reads the log of the current run and says where the model
+// started: the restored checkpoint's stream position, or fresh.
+func (l *killLariat) restoredAt() string {
+	b, _ := os.ReadFile(l.logs[len(l.logs)-1])
+	for line := range strings.Lines(string(b)) {
+		var e struct {
+			Msg      string `json:"msg"`
+			Position uint64 `json:"position"`
+			Written  string `json:"written"`
+		}
+		if json.Unmarshal([]byte(line), &e) == nil && e.Msg == "restored from checkpoint" {
+			return fmt.Sprintf("restored at stream position %d", e.Position)
+		}
+	}
+	return "no checkpoint restored (fresh start)"
 }
 
 // doc fetches the model's document.
