@@ -125,7 +125,7 @@ func TestKillNine(t *testing.T) {
 	if err := pub.wait(killTimeout); err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("kills aimed at a checkpoint write: %d of 2 landed during one", hits)
+	t.Logf("kills aimed at a checkpoint write: %d of 2 saw its .tmp file just before the signal", hits)
 	got := l.final(t, len(recs))
 	if msgs := streamMsgs(t, l.natsURL); msgs != uint64(len(recs)) {
 		t.Errorf("stream holds %d records, want %d (each once)", msgs, len(recs))
