@@ -83,6 +83,9 @@ func TestEndToEnd(t *testing.T) {
 				if doc.Records.Seen != n*4/5 { // every 5th record is held out
 					return fmt.Errorf("version %d has seen %d train records, want %d", doc.Version, doc.Records.Seen, n*4/5)
 				}
+				if doc.Records.Applied != n { // train and held out
+					return fmt.Errorf("version %d has applied %d records, want %d", doc.Version, doc.Records.Applied, n)
+				}
 				return checkSupport(doc, tr)
 			})
 			natstest.WaitFor(t, 10*time.Second, func() error {

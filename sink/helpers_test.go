@@ -75,7 +75,7 @@ func testDoc(t testing.TB, name, loss string, version uint64) *ModelDoc {
 	m := testModel(loss, []float64{0.5, 0, -1.25}, []float64{10, 2, -3}, []float64{2, 1, 0.5}, 0.75)
 	in := &DocInput{
 		Name: name, Version: version, Features: []string{"a", "b", "c"}, Model: m,
-		Scores: testScores(loss), Holdout: 250, Rejected: 7,
+		Scores: testScores(loss), Holdout: 250, Applied: 6250, Rejected: 7,
 		Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
 	}
 	if loss == "logistic" {

@@ -138,6 +138,10 @@ type RecordCounts struct {
 	Holdout int `json:"holdout"`
 	// Seen is the number of records ever accepted for training.
 	Seen uint64 `json:"seen"`
+	// Applied is the number of records ever applied: for training and
+	// held out (a durable model applies each record of its stream exactly
+	// once, across restarts).
+	Applied uint64 `json:"applied"`
 	// Rejected is the number of records rejected so far.
 	Rejected uint64 `json:"rejected"`
 }
@@ -217,6 +221,8 @@ type DocInput struct {
 	Scores []online.Score
 	// Holdout is the number of records in the held-out ring.
 	Holdout int
+	// Applied is the number of records ever applied (train and held out).
+	Applied uint64
 	// Rejected is the number of records rejected so far.
 	Rejected uint64
 	// Threshold is the logistic model's threshold; ignored for squared.
@@ -251,7 +257,7 @@ func NewModelDoc(in *DocInput) (*ModelDoc, error) {
 		Features:     append([]string(nil), in.Features...),
 		Scale:        make(map[string]Scale, d),
 		Ladder:       make([]LadderEntry, 0, len(in.Scores)),
-		Records:      RecordCounts{Window: m.Records, Holdout: in.Holdout, Seen: m.Seen, Rejected: in.Rejected},
+		Records:      RecordCounts{Window: m.Records, Holdout: in.Holdout, Seen: m.Seen, Applied: in.Applied, Rejected: in.Rejected},
 		Updated:      in.Updated.UTC(),
 	}
 	for j, name := range in.Features {

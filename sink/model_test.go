@@ -40,7 +40,7 @@ func TestNewModelDoc(t *testing.T) {
 			if doc.Holdout.Loss != 0.7 || doc.Holdout.Records != 250 || doc.LambdaIndex != 3 {
 				t.Errorf("holdout = %+v (want the score of index 3), lambda index %d", doc.Holdout, doc.LambdaIndex)
 			}
-			if doc.Records != (RecordCounts{Window: 1000, Holdout: 250, Seen: 5000, Rejected: 7}) {
+			if doc.Records != (RecordCounts{Window: 1000, Holdout: 250, Seen: 5000, Applied: 6250, Rejected: 7}) {
 				t.Errorf("records = %+v", doc.Records)
 			}
 			if (doc.Threshold != nil) != tc.threshold {
@@ -257,7 +257,7 @@ func ExampleNewModelDoc() {
 	doc, err := NewModelDoc(&DocInput{
 		Name: "kiln", Version: 3, Features: []string{"temp_c", "fan_amps"}, Model: m,
 		Scores:  []online.Score{{Index: 4, Lambda: 0.1, Nonzero: 1, Loss: 0.5, SE: 0.05, RMSE: 1, MAE: 0.8, R2: 0.9}},
-		Holdout: 120, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
+		Holdout: 120, Applied: 920, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
 	})
 	if err != nil {
 		fmt.Println(err)
@@ -322,6 +322,7 @@ func ExampleNewModelDoc() {
 	//     "window": 500,
 	//     "holdout": 120,
 	//     "seen": 800,
+	//     "applied": 920,
 	//     "rejected": 0
 	//   },
 	//   "updated": "2026-03-04T05:06:07Z"

@@ -410,6 +410,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 		Model:     &m,
 		Scores:    p.ladderNow(),
 		Holdout:   p.HeldOutLen(),
+		Applied:   p.seq,
 		Rejected:  rejected,
 		Threshold: th,
 		Updated:   now,

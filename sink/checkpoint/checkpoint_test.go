@@ -6,6 +6,7 @@ import (
 	"hash/crc32"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -142,6 +143,39 @@ func TestDirNone(t *testing.T) {
 		if err := d.Save(bad, Encode(nil, Meta{})); err == nil {
 			t.Errorf("Save(%q) accepted", bad)
 		}
+	}
+}
+
+// TestDirRemovesTemporary: a process killed while it wrote a checkpoint
+// leaves Save's temporary file; the next NewDir removes it and nothing
+// else.
+func TestDirRemovesTemporary(t *testing.T) {
+	dir := t.TempDir()
+	d, err := NewDir(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := d.Save("pump-trip", Encode([]byte("kept"), Meta{})); err != nil {
+		t.Fatal(err)
+	}
+	for _, name := range []string{".pump-trip.1967595753.tmp", "notes.tmp", ".pump-trip.x.tmp"} {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte("half"), 0o600); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if d, err = NewDir(dir); err != nil {
+		t.Fatal(err)
+	}
+	var names []string
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		names = append(names, e.Name())
+	}
+	if want := []string{".pump-trip.x.tmp", "notes.tmp", "pump-trip.ckpt"}; !slices.Equal(names, want) {
+		t.Errorf("files %v, want %v", names, want)
+	}
+	if p, _, _, err := d.Load("pump-trip"); err != nil || string(p) != "kept" {
+		t.Errorf("Load: %q %v", p, err)
 	}
 }
 

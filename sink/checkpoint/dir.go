@@ -35,11 +35,24 @@ var _ Store = (*Dir)(nil)
 // names are a subset).
 var validName = regexp.MustCompile(`^[A-Za-z0-9][A-Za-z0-9_.-]{0,127}$`)
 
+// tmpName matches the temporary files of Save (os.CreateTemp's random part
+// is decimal digits).
+var tmpName = regexp.MustCompile(`^\.[A-Za-z0-9][A-Za-z0-9_.-]{0,127}\.[0-9]+\.tmp$`)
+
 // NewDir returns the Store in directory path, creating it (mode 0750) if
-// needed.
+// needed. It removes the temporary files of a process that was killed
+// while it wrote a checkpoint (each as large as a checkpoint; nothing else
+// would ever remove them), best effort: the directory belongs to one
+// process at a time.
 func NewDir(path string) (*Dir, error) {
 	if err := os.MkdirAll(path, 0o750); err != nil {
 		return nil, fmt.Errorf("checkpoint: directory: %w", err)
+	}
+	entries, _ := os.ReadDir(path)
+	for _, e := range entries {
+		if e.Type().IsRegular() && tmpName.MatchString(e.Name()) {
+			os.Remove(filepath.Join(path, e.Name()))
+		}
 	}
 	return &Dir{path: path}, nil
 }
