@@ -9,7 +9,6 @@ import (
 	"math"
 	"math/rand/v2"
 	"net/http"
-	"strconv"
 	"testing"
 	"time"
 
@@ -18,6 +17,7 @@ import (
 	dto "github.com/prometheus/client_model/go"
 
 	"lariat/config"
+	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
 	"lariat/sink/natstest"
@@ -229,18 +229,11 @@ func (tr truth) records(n int, logistic bool, seed uint64) [][]byte {
 		} else {
 			y = eta + 0.5*rng.NormFloat64()
 		}
-		b := []byte(`{"y":`)
-		b = strconv.AppendFloat(b, y, 'g', -1, 64)
-		b = append(b, `,"x":{`...)
-		for j, name := range tr.names {
-			if j > 0 {
-				b = append(b, ',')
-			}
-			b = strconv.AppendQuote(b, name)
-			b = append(b, ':')
-			b = strconv.AppendFloat(b, x[j], 'f', 5, 64)
+		r := record.Record{X: make([]float64, len(x)), Y: y}
+		for j := range x {
+			r.X[j] = round5(x[j])
 		}
-		out[i] = append(b, "}}"...)
+		out[i] = record.AppendJSON(nil, tr.names, &r)
 	}
 	return out
 }

@@ -10,7 +10,6 @@ import (
 	"net/http"
 	"os"
 	"path/filepath"
-	"strconv"
 	"sync"
 	"testing"
 	"time"
@@ -19,6 +18,7 @@ import (
 
 	"lariat/config"
 	"lariat/daemon/pipeline"
+	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
 	"lariat/sink/natstest"
@@ -75,23 +75,18 @@ func (s *alertSink) of(kind sink.AlertKind) ([]sink.Alert, []map[string]any) {
 // namedRecord encodes a record with named features a, b, c, a label and a
 // time in Unix ms.
 func namedRecord(names []string, x []float64, y float64, labeled bool, tms int64) []byte {
-	b := []byte(`{"t":`)
-	b = strconv.AppendInt(b, tms, 10)
+	r := record.Record{X: make([]float64, len(names)), Y: math.NaN(), T: tms, HasT: true}
+	for j := range names {
+		r.X[j] = round5(x[j])
+	}
 	if labeled {
-		b = append(b, `,"y":`...)
-		b = strconv.AppendFloat(b, y, 'g', -1, 64)
+		r.Y = y
 	}
-	b = append(b, `,"x":{`...)
-	for j, n := range names {
-		if j > 0 {
-			b = append(b, ',')
-		}
-		b = strconv.AppendQuote(b, n)
-		b = append(b, ':')
-		b = strconv.AppendFloat(b, x[j], 'f', 5, 64)
-	}
-	return append(b, "}}"...)
+	return record.AppendJSON(nil, names, &r)
 }
+
+// round5 rounds v to 5 decimals, as the tests' records carry their values.
+func round5(v float64) float64 { return math.Round(v*1e5) / 1e5 }
 
 // TestAlertEndToEnd runs a daemon on an embedded NATS server: a feature's
 // mean shifts by 5σ, and the data alert must arrive on
