@@ -174,7 +174,8 @@ type Intake struct {
 // shutdown. The newest two checkpoints of each model are kept.
 type Checkpoint struct {
 	// Records saves after this many records since the last save, 1 to
-	// 10000000. Default 10000.
+	// 10000000. Default 100000 (about 1 s of replay after a crash at
+	// the daemon's durable throughput; a save costs about 10 ms at d = 64).
 	Records int `yaml:"records"`
 	// Interval saves at least this often while records arrive, 1s to 1h.
 	// Default 30s.
@@ -372,7 +373,7 @@ func Default() *Config {
 			MaxAge:       Duration(72 * time.Hour),
 			MaxBytes:     1 << 30,
 		},
-		Checkpoint: Checkpoint{Records: 10000, Interval: Duration(30 * time.Second)},
+		Checkpoint: Checkpoint{Records: 100000, Interval: Duration(30 * time.Second)},
 	}
 }
 
