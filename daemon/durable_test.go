@@ -325,3 +325,42 @@ func TestDurableRetentionSkip(t *testing.T) {
 		t.Errorf("the skip is not logged:\n%s", s)
 	}
 }
+
+// TestDurableStreamReplaced: a server whose JetStream store was replaced
+// (the stream gone) holds fewer records than the model's checkpoint
+// applied; the restart says so and reads the new stream from its first
+// record instead of waiting past a position that means nothing there.
+func TestDurableStreamReplaced(t *testing.T) {
+	port := freePort(t)
+	url := fmt.Sprintf("nats://127.0.0.1:%d", port)
+	subject := durableModel().Subject
+	dir := t.TempDir()
+	recs := sparseTruth(8).records(1500, true, 15)
+	srv := runServer(t, port, t.TempDir())
+	td := startDaemon(t, durableConfig(t, url, dir), withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	publishAcked(t, url, subject, recs[:1000])
+	waitApplied(t, td, "durable", 1000)
+	if err := td.stop(t); err != nil {
+		t.Fatal(err)
+	}
+	srv.Shutdown()
+	srv.WaitForShutdown()
+	runServer(t, port, t.TempDir()) // a new, empty store
+	var logs syncBuffer
+	td = startDaemon(t, durableConfig(t, url, dir), withoutIdle(), WithLogger(slog.New(slog.NewTextHandler(&logs, nil))))
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	publishAcked(t, url, subject, recs[1000:])
+	natstest.WaitFor(t, 20*time.Second, func() error {
+		if n, _ := applied(t, td, "durable"); n < 1500 {
+			return fmt.Errorf("applied %d of 1500", n)
+		}
+		return nil
+	})
+	if n, pos := applied(t, td, "durable"); n != 1500 || pos != 500 {
+		t.Errorf("applied %d records, position %d in the new stream; want 1500 and 500", n, pos)
+	}
+	if s := logs.String(); !strings.Contains(s, "behind its checkpoint") {
+		t.Errorf("the replaced stream is not logged:\n%s", s)
+	}
+}

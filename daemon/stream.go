@@ -83,6 +83,15 @@ func (s *streamIntake) startOne(ctx context.Context, w *worker) error {
 		return fmt.Errorf("stream %s: %w", name, err)
 	}
 	next := w.startPos + 1
+	if last := info.State.LastSeq; last < w.startPos {
+		// The stream holds fewer records than the checkpoint applied: it
+		// was deleted or the server's store was replaced. Its sequences
+		// started again, so the position means nothing in it: read it
+		// from the start.
+		w.log.Warn("the model's stream is behind its checkpoint (deleted or replaced since); reading it from its first record",
+			"stream", name, "stream_last", last, "checkpoint_position", w.startPos)
+		next = 1
+	}
 	if first := info.State.FirstSeq; info.State.Msgs > 0 && first > next {
 		// Retention discarded records this model never applied.
 		w.skipped(first-next, fmt.Sprintf("stream %s starts at %d, the model's checkpoint needs %d", name, first, next))
