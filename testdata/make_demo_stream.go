@@ -29,8 +29,8 @@ import (
 
 const (
 	records  = 6000
-	keep     = 20             // channels written: 14 process, 6 auxiliary
-	rate     = 2.0            // plant records per second (trip and bearing)
+	keep     = 20  // channels written: 14 process, 6 auxiliary
+	rate     = 2.0 // plant records per second (trip and bearing)
 	duration = records * 2 / rate * float64(time.Second)
 	out      = "testdata/demo-stream.jsonl"
 )
