@@ -353,9 +353,10 @@ func nonzero(m online.Model, names []string) (raw, std map[string]float64) {
 // clip returns a copy of the first n values of v.
 func clip(v []float64, n int) []float64 { return append([]float64(nil), v[:min(n, len(v))]...) }
 
-// ModelFromFlags is a helper for commands: config.DefaultModel named name
-// (the daemon's defaults), to be adjusted and then checked with Check.
-func ModelFromFlags(name string) config.Model {
+// DefaultModel returns config.DefaultModel (the daemon's defaults) named
+// name, with a placeholder subject, for settings given without a
+// configuration file; adjust it and check it with Check.
+func DefaultModel(name string) config.Model {
 	m := config.DefaultModel()
 	m.Name, m.Subject = name, "replay."+name
 	return m

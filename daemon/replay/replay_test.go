@@ -160,7 +160,7 @@ func TestCSV(t *testing.T) {
 	if err := os.WriteFile(file, []byte(b.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	m := replay.ModelFromFlags("csv")
+	m := replay.DefaultModel("csv")
 	m.Retune.Every = 100
 	m.Window.Records = 200
 	m.Holdout.Records = 50
@@ -204,7 +204,7 @@ func TestNoTime(t *testing.T) {
 	if err := os.WriteFile(file, []byte(b.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	m := replay.ModelFromFlags("nt")
+	m := replay.DefaultModel("nt")
 	m.Lambda = 0.1 // fixed λ publishes from the first record
 	m.Holdout.Every = 0
 	res, err := replay.Run(file, replay.Options{Model: &m})

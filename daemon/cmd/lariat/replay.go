@@ -129,7 +129,7 @@ func runReplay(cmd *cobra.Command, file string, rf *replayFlags) error {
 // resolveModel returns the model: the configuration's or the daemon's
 // defaults, with the given flags over it, validated.
 func (rf *replayFlags) resolveModel(cmd *cobra.Command) (*config.Model, error) {
-	m := replay.ModelFromFlags("replay")
+	m := replay.DefaultModel("replay")
 	if rf.config != "" {
 		cfg, err := config.Load(rf.config)
 		if err != nil {
