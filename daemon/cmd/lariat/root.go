@@ -38,6 +38,7 @@ held-out data, and publishes the current models on NATS and over HTTP.`,
 		newDemoCmd(lf),
 		newPullCmd(),
 		newFitCmd(),
+		newReplayCmd(),
 		newVersionCmd(),
 	)
 	return root

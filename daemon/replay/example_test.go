@@ -1,0 +1,34 @@
+package replay_test
+
+import (
+	"fmt"
+	"log"
+
+	"lariat/config"
+	"lariat/daemon/replay"
+)
+
+// Example replays the bundled (invented) recording through the demo's
+// bearing-temperature model and reports what happened.
+func Example() {
+	c, err := config.Demo()
+	if err != nil {
+		log.Fatal(err)
+	}
+	m, _ := c.Model("bearing-temp")
+	m.Window.Records = 2000
+	res, err := replay.Run("../../testdata/demo-stream.jsonl", replay.Options{Model: m})
+	if err != nil {
+		log.Fatal(err)
+	}
+	fmt.Println("applied", res.Applied, "retunes", len(res.History))
+	for _, a := range res.Alerts[:2] {
+		fmt.Println(a.Index, a.Alert.Kind)
+	}
+	fmt.Println("final version", res.Final.Version, "λ index", res.Final.LambdaIndex)
+	// Output:
+	// applied 6000 retunes 30
+	// 3010 performance
+	// 3106 performance
+	// final version 4418 λ index 4
+}
