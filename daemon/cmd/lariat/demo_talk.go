@@ -49,8 +49,15 @@ type narrator struct {
 	order    []string // models in the order their first alert arrived
 	predNew  map[string]int
 	detected *faultDetection
-	applied  map[string]uint64 // records applied at the last line
-	last     time.Time
+	seen     map[string]docMark // the document shown at the last line
+}
+
+// docMark is where a model's document stood: its records applied and its
+// publication time, and the rate computed when it was first shown.
+type docMark struct {
+	applied uint64
+	updated time.Time
+	rate    string
 }
 
 // newNarrator subscribes to prefix.alert.> on the NATS server at url; the
@@ -61,8 +68,7 @@ func newNarrator(w io.Writer, url, prefix string, models func() []*sink.ModelDoc
 		msgs:    make(chan *nats.Msg, 4096),
 		counts:  map[string]map[sink.AlertKind]int{},
 		predNew: map[string]int{},
-		applied: map[string]uint64{},
-		last:    start,
+		seen:    map[string]docMark{},
 	}
 	nc, err := nats.Connect(url, nats.Name("lariat-demo-narrator"))
 	if err != nil {
@@ -123,22 +129,28 @@ func (n *narrator) elapsed(now time.Time) string {
 
 // lines prints one line per published model: version, λ index, nonzero
 // count, held-out loss and AUC or R², records per second since the last
-// line and prediction alerts since the last line (logistic).
+// line and prediction alerts since the last line (logistic). The rate is
+// that of records applied between the documents shown (their publication
+// times), so it does not depend on when in a publication cycle a line
+// falls; an unchanged document keeps the rate shown before, and the first
+// has none ("n/a").
 func (n *narrator) lines(now time.Time) {
 	n.mu.Lock()
 	defer n.mu.Unlock()
-	dt := now.Sub(n.last).Seconds()
-	n.last = now
 	for _, doc := range n.models() {
 		applied := doc.Records.Applied
 		if applied == 0 {
 			applied = doc.Records.Seen
 		}
+		mark, ok := n.seen[doc.Model]
 		rate := "n/a"
-		if prev, ok := n.applied[doc.Model]; ok && dt > 0 && applied >= prev {
-			rate = fmt.Sprintf("%.0f", float64(applied-prev)/dt)
+		switch dt := doc.Updated.Sub(mark.updated).Seconds(); {
+		case ok && dt <= 0:
+			rate = mark.rate
+		case ok && applied >= mark.applied:
+			rate = fmt.Sprintf("%.0f", float64(applied-mark.applied)/dt)
 		}
-		n.applied[doc.Model] = applied
+		n.seen[doc.Model] = docMark{applied: applied, updated: doc.Updated, rate: rate}
 		h := doc.Holdout
 		var score string
 		if doc.Logistic() {
@@ -146,10 +158,10 @@ func (n *narrator) lines(now time.Time) {
 		} else {
 			score = "R² " + metric(h.R2)
 		}
-		fmt.Fprintf(n.w, "%s %-13s v%d λ#%d nonzero %d loss %s %s %s rec/s",
+		fmt.Fprintf(n.w, "%s %-13s v%d λ#%d nonzero %d loss %s %s, %s rec/s",
 			n.elapsed(now), doc.Model, doc.Version, doc.LambdaIndex, len(doc.Coefficients), metric(h.Loss), score, rate)
 		if doc.Logistic() {
-			fmt.Fprintf(n.w, " %d flagged", n.predNew[doc.Model])
+			fmt.Fprintf(n.w, ", %d flagged", n.predNew[doc.Model])
 			n.predNew[doc.Model] = 0
 		}
 		fmt.Fprintln(n.w)

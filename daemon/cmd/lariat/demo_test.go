@@ -8,6 +8,8 @@ import (
 	"io"
 	"math"
 	"net/http"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -34,6 +36,49 @@ func TestRunDemo(t *testing.T) {
 		if !strings.Contains(s, want) {
 			t.Errorf("output lacks %q:\n%s", want, s)
 		}
+	}
+}
+
+// TestDemoTalks runs the demo for a few seconds at 400 records/s with a
+// narration line every 500 ms and the fault after 1 s, and checks the
+// narration lines, the alert counts and the fault line of the summary.
+// Detection within the run is not asserted: the models need a few thousand
+// records before their drift detectors can fire, more than these seconds
+// give (see the report of the measured 4-minute run).
+func TestDemoTalks(t *testing.T) {
+	if testing.Short() {
+		t.Skip("demo: a few seconds")
+	}
+	var out bytes.Buffer
+	err := runDemo(context.Background(), demoOptions{
+		Duration: 4 * time.Second, Rate: 400, FaultAfter: time.Second, Every: 500 * time.Millisecond,
+		Out: &out, Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: "127.0.0.1:0",
+	})
+	if err != nil {
+		t.Fatalf("runDemo: %v\n%s", err, out.String())
+	}
+	s := out.String()
+	num := `(?:-?[0-9.e+-]+|n/a)`
+	for _, re := range []string{
+		`(?m)^\d+:\d\d pump-trip +v\d+ λ#\d+ nonzero \d+ loss ` + num + ` AUC ` + num + `, ` + num + ` rec/s, \d+ flagged$`,
+		`(?m)^\d+:\d\d bearing-temp +v\d+ λ#\d+ nonzero \d+ loss ` + num + ` R² ` + num + `, ` + num + ` rec/s$`,
+		`(?m)^  alerts pump-trip +performance \d+, data \d+, model \d+, prediction \d+$`,
+		`(?m)^  alerts bearing-temp +performance \d+, data \d+, model \d+, prediction \d+$`,
+		`(?m)^  fault: began after 1s, (detected by (pump-trip|bearing-temp) [0-9.]+m?s later \(\d+ records\)|not detected in the [0-9.]+s since)$`,
+	} {
+		if !regexp.MustCompile(re).MatchString(s) {
+			t.Errorf("output lacks a line matching %s:\n%s", re, s)
+		}
+	}
+	// A third of the 400 records/s go to each training stream (the third
+	// third are the unlabeled readings scored for pump-trip).
+	var rates []int
+	for _, m := range regexp.MustCompile(`(?m)^\d+:\d\d bearing-temp .*, (\d+) rec/s$`).FindAllStringSubmatch(s, -1) {
+		r, _ := strconv.Atoi(m[1])
+		rates = append(rates, r)
+	}
+	if len(rates) == 0 || rates[len(rates)-1] < 90 || rates[len(rates)-1] > 180 {
+		t.Errorf("bearing-temp rates %v rec/s, want the last near 133:\n%s", rates, s)
 	}
 }
 
