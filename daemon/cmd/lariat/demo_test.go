@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"encoding/xml"
 	"fmt"
 	"io"
 	"math"
@@ -209,4 +210,125 @@ func post(url string, body []byte) (int, []byte, error) {
 	defer resp.Body.Close()
 	b, err := io.ReadAll(resp.Body)
 	return resp.StatusCode, b, err
+}
+
+// TestDemoPMMLPredict runs the demo, fetches pump-trip as PMML with
+// `lariat pull --pmml`, evaluates the document by the PMML 4.4 Regression
+// rules (from memory of the specification: y = intercept + Σ
+// coefficient·x^exponent, p = 1/(1 + e^−y) for normalizationMethod
+// "logit"; sink/pmml_eval_test.go has the full evaluator and name check)
+// and compares with the daemon's POST /v1/models/pump-trip/predict answer
+// for the same version, to 1e-9.
+func TestDemoPMMLPredict(t *testing.T) {
+	if testing.Short() {
+		t.Skip("demo: a few seconds")
+	}
+	addr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	done := make(chan error, 1)
+	go func() { // joined below
+		done <- runDemo(ctx, demoOptions{Duration: time.Minute, Rate: 400, FaultAfter: -1,
+			Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: addr})
+	}()
+	base := "http://" + addr
+	deadline := time.Now().Add(30 * time.Second)
+	for checked := 0; checked < 3; {
+		err := checkPMMLPredict(t, base, "pump-trip")
+		if err == nil {
+			checked++
+			continue
+		}
+		if time.Now().After(deadline) {
+			t.Fatal(err)
+		}
+		select {
+		case err := <-done:
+			t.Fatalf("demo stopped early: %v", err)
+		case <-time.After(50 * time.Millisecond):
+		}
+	}
+	cancel()
+	if err := <-done; err != nil {
+		t.Errorf("demo: %v", err)
+	}
+}
+
+// pmmlDoc is what TestDemoPMMLPredict reads of a PMML 4.4 document.
+type pmmlDoc struct {
+	XMLName xml.Name `xml:"http://www.dmg.org/PMML-4_4 PMML"`
+	Header  struct {
+		ModelVersion string `xml:"modelVersion,attr"`
+	} `xml:"Header"`
+	Fields []struct {
+		Name string `xml:"name,attr"`
+	} `xml:"DataDictionary>DataField"`
+	Model struct {
+		Normalization string `xml:"normalizationMethod,attr"`
+		Mining        []struct {
+			Name  string `xml:"name,attr"`
+			Usage string `xml:"usageType,attr"`
+		} `xml:"MiningSchema>MiningField"`
+		Tables []struct {
+			Intercept  float64 `xml:"intercept,attr"`
+			Predictors []struct {
+				Name        string  `xml:"name,attr"`
+				Exponent    float64 `xml:"exponent,attr"`
+				Coefficient float64 `xml:"coefficient,attr"`
+			} `xml:"NumericPredictor"`
+		} `xml:"RegressionTable"`
+	} `xml:"RegressionModel"`
+}
+
+// checkPMMLPredict fetches model's PMML with the pull command, evaluates it
+// on one record and compares with the daemon's prediction, failing t on a
+// difference. An error means "not yet": no version, or a new version
+// between the calls.
+func checkPMMLPredict(t *testing.T, base, model string) error {
+	t.Helper()
+	out, _, err := run(t, "pull", model, "--from", base, "--pmml")
+	if err != nil {
+		return err
+	}
+	var p pmmlDoc
+	if err := xml.Unmarshal([]byte(out), &p); err != nil {
+		t.Fatalf("pull --pmml: %v\n%s", err, out)
+	}
+	target := ""
+	for _, f := range p.Model.Mining {
+		if f.Usage == "target" {
+			target = f.Name
+		}
+	}
+	x := map[string]float64{}
+	for i, f := range p.Fields {
+		if f.Name != target {
+			x[f.Name] = 1 + 0.25*float64(i%7)
+		}
+	}
+	tb := p.Model.Tables[0]
+	y := tb.Intercept
+	for _, np := range tb.Predictors {
+		y += np.Coefficient * math.Pow(x[np.Name], np.Exponent)
+	}
+	if p.Model.Normalization != "logit" || len(p.Model.Tables) != 2 {
+		t.Fatalf("pump-trip PMML: normalization %q, %d tables", p.Model.Normalization, len(p.Model.Tables))
+	}
+	prob := 1 / (1 + math.Exp(-y))
+	body, _ := json.Marshal(map[string]any{"x": x})
+	code, ans, err := post(base+"/v1/models/"+model+"/predict", body)
+	if err != nil || code != http.StatusOK {
+		return fmt.Errorf("predict: %d %s %v", code, ans, err)
+	}
+	var got sink.Prediction
+	if err := json.Unmarshal(ans, &got); err != nil {
+		return err
+	}
+	if v := strconv.FormatUint(got.Version, 10); v != p.Header.ModelVersion {
+		return fmt.Errorf("versions %s and %s: retry", v, p.Header.ModelVersion)
+	}
+	if math.Abs(got.Eta-y) > 1e-9*math.Max(1, math.Abs(y)) || got.Probability == nil || math.Abs(*got.Probability-prob) > 1e-9 {
+		t.Fatalf("version %s: PMML says η %.17g, p %.17g; the daemon %+v", p.Header.ModelVersion, y, prob, got)
+	}
+	return nil
 }
