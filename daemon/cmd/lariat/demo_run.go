@@ -34,8 +34,12 @@ type demoOptions struct {
 	Rate float64
 	// Seed seeds the plant; default 1.
 	Seed uint64
-	// Out receives the banner and the summary; default io.Discard.
+	// Out receives the banner, the narration and the summary; default
+	// io.Discard.
 	Out io.Writer
+	// Every is the narration period: a line per model this often; default
+	// 5s.
+	Every time.Duration
 	// Logger is the daemon's logger; default discards.
 	Logger *slog.Logger
 	// Version is shown on the status page.
@@ -61,6 +65,9 @@ func runDemo(ctx context.Context, o demoOptions) error {
 	}
 	if o.Seed == 0 {
 		o.Seed = 1
+	}
+	if o.Every <= 0 {
+		o.Every = 5 * time.Second
 	}
 	cfg, err := config.Demo()
 	if err != nil {
@@ -105,23 +112,44 @@ func runDemo(ctx context.Context, o demoOptions) error {
 	}
 	plantCtx, stopPlant := context.WithCancel(ctx)
 	defer stopPlant()
-	pl, sent, err := startPlant(plantCtx, cfg, d.NATSURL(), o)
+	start := time.Now()
+	talk, err := newNarrator(o.Out, d.NATSURL(), cfg.SubjectPrefix, d.Store().Models, start)
 	if err != nil {
 		stopDaemon()
 		return errors.Join(err, <-runErr)
 	}
+	pl, sent, err := startPlant(plantCtx, cfg, d.NATSURL(), start, o)
+	if err != nil {
+		talk.nc.Close()
+		stopDaemon()
+		return errors.Join(err, <-runErr)
+	}
+	po := pl.Options() // with the plant's defaults filled in
+	talk.schedule(po.Rate, po.FaultAfter)
 	printBanner(o.Out, cfg, d, pl, notes)
+	stopTalk, talked := make(chan struct{}), make(chan struct{})
+	go func() { talk.run(o.Every, stopTalk); close(talked) }() // joined below
 	select {
 	case <-ctx.Done():
 	case err := <-runErr: // the daemon failed on its own
 		stopPlant()
 		<-sent
+		close(stopTalk)
+		<-talked
 		return err
 	}
 	n := <-sent // the plant has stopped publishing
+	end := time.Now()
 	stopDaemon()
-	err = <-runErr
+	err = <-runErr // the daemon has published its last alerts
+	close(stopTalk)
+	<-talked
 	printSummary(o.Out, d, n)
+	names := make([]string, 0, len(cfg.Models))
+	for _, m := range cfg.Models {
+		names = append(names, m.Name)
+	}
+	talk.summary(o.Out, names, end)
 	return err
 }
 
@@ -145,7 +173,7 @@ func freeOr(addr, what string, notes []string) (string, []string) {
 
 // startPlant connects a plain NATS client and publishes the simulated plant
 // until ctx is done; the count of records sent arrives on the channel.
-func startPlant(ctx context.Context, cfg *config.Config, url string, o demoOptions) (*plant.Plant, <-chan uint64, error) {
+func startPlant(ctx context.Context, cfg *config.Config, url string, start time.Time, o demoOptions) (*plant.Plant, <-chan uint64, error) {
 	nc, err := nats.Connect(url, nats.Name("lariat-demo-plant"))
 	if err != nil {
 		return nil, nil, fmt.Errorf("demo: plant: %w", err)
@@ -160,7 +188,7 @@ func startPlant(ctx context.Context, cfg *config.Config, url string, o demoOptio
 	if m, ok := cfg.Model(demoBearing); ok {
 		po.TempSubject = subjectFor(m.Subject)
 	}
-	p := plant.New(po, time.Now())
+	p := plant.New(po, start)
 	sent := make(chan uint64, 1)
 	go func() { // owned by runDemo: ends with ctx, reports on sent
 		n, err := p.Run(ctx, nc)

@@ -1,7 +1,10 @@
 package main
 
 import (
+	"net/http/httptest"
 	"os"
+	"strings"
+	"testing"
 	"time"
 
 	"lariat/online"
@@ -32,4 +35,49 @@ func Example_writeModel() {
 	// (intercept)                 20
 	// vib_x_mms                    6        3.0000     3  0.5
 	// oil_temp_c                 0.5        1.5000    55    3
+}
+
+// TestPullPMML serves a document from a store and checks that pull --pmml
+// prints the daemon's PMML answer unchanged, and fails on an unknown model
+// and together with --json.
+func TestPullPMML(t *testing.T) {
+	m := &online.Model{
+		Loss: "logistic", Penalty: online.Lasso(), Lambda: 0.05, Index: 3,
+		Intercept: -1.5, Coef: []float64{2, 0, -0.5}, Standardized: []float64{1, 0, -0.25},
+		Mean: []float64{0, 1, 2}, Std: []float64{0.5, 1, 0.5}, Records: 100, Weight: 100, Seen: 120,
+	}
+	doc, err := sink.NewModelDoc(&sink.DocInput{
+		Name: "pump-trip", Version: 9, Features: []string{"vib", "amps", "temp"}, Model: m,
+		Holdout: 20, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	store := sink.NewStore()
+	if err := store.SetModel(doc); err != nil {
+		t.Fatal(err)
+	}
+	srv := httptest.NewServer(sink.NewHandler(sink.HandlerOptions{Store: store}))
+	defer srv.Close()
+
+	out, _, err := run(t, "pull", "pump-trip", "--from", srv.URL, "--pmml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, err := sink.PMML(doc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out != string(want) {
+		t.Errorf("pull --pmml printed\n%s\nwant\n%s", out, want)
+	}
+	if !strings.HasPrefix(out, `<?xml version="1.0" encoding="UTF-8"?>`) || !strings.Contains(out, `<PMML xmlns="http://www.dmg.org/PMML-4_4" version="4.4">`) {
+		t.Errorf("not a PMML 4.4 document:\n%s", out)
+	}
+	if _, _, err := run(t, "pull", "nope", "--from", srv.URL, "--pmml"); err == nil || !strings.Contains(err.Error(), "404") {
+		t.Errorf("unknown model: %v", err)
+	}
+	if _, _, err := run(t, "pull", "pump-trip", "--from", srv.URL, "--pmml", "--json"); err == nil {
+		t.Errorf("--pmml with --json: no error")
+	}
 }
