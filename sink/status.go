@@ -41,8 +41,8 @@ section.model{background:#fff;border:1px solid #e4e7ec;border-radius:8px;padding
 .card{min-width:0}
 svg.chart{display:block;width:100%;height:auto;background:#fff}
 svg.roc{max-width:320px}
-svg text{font:10px system-ui,sans-serif;fill:#475467}
-svg text.lb{font-size:10.5px;fill:#1d2939}svg text.ax{font-size:10.5px}svg text.mk{font-size:10.5px;font-weight:bold;fill:#b42318}
+svg text{font:11px system-ui,sans-serif;fill:#475467}
+svg text.lb{font-size:11.5px;fill:#1d2939}svg text.ax{font-size:11.5px}svg text.mk{font-size:11.5px;font-weight:bold;fill:#b42318}
 .legend{font-size:.85em;color:#667085;margin:.2em 0 0}
 .pos{color:#2563eb}.neg{color:#dc6803}
 ul.alerts{list-style:none;margin:0;padding:0}

@@ -27,7 +27,7 @@ type svgBox struct {
 }
 
 // run runs a on ctx's tab and returns its value, failing the test on error.
-func run[T any](t *testing.T, ctx context.Context, a chromedp.Action[T]) T {
+func run[T any](ctx context.Context, t *testing.T, a chromedp.Action[T]) T {
 	t.Helper()
 	v, err := chromedp.Run(ctx, a)
 	if err != nil {
@@ -122,14 +122,14 @@ func TestStatusPageBrowser(t *testing.T) {
 			); err != nil {
 				t.Fatal(err)
 			}
-			title := run(t, ctx, chromedp.Title())
-			models := run(t, ctx, chromedp.Evaluate[[]string](`[...document.querySelectorAll('section.model h2 a')].map(a => a.textContent)`))
-			boxes := run(t, ctx, chromedp.Evaluate[[]svgBox](`[...document.querySelectorAll('svg')].map(s => {
+			title := run(ctx, t, chromedp.Title())
+			models := run(ctx, t, chromedp.Evaluate[[]string](`[...document.querySelectorAll('section.model h2 a')].map(a => a.textContent)`))
+			boxes := run(ctx, t, chromedp.Evaluate[[]svgBox](`[...document.querySelectorAll('svg')].map(s => {
 				const r = s.getBoundingClientRect();
 				return {class: s.getAttribute('class'), width: r.width, height: r.height};
 			})`))
-			overflow := run(t, ctx, chromedp.Evaluate[bool](`document.documentElement.scrollWidth > window.innerWidth + 1`))
-			png := run(t, ctx, chromedp.FullScreenshot(100))
+			overflow := run(ctx, t, chromedp.Evaluate[bool](`document.documentElement.scrollWidth > window.innerWidth + 1`))
+			png := run(ctx, t, chromedp.FullScreenshot(100))
 			if title != "lariat status" {
 				t.Errorf("title %q", title)
 			}

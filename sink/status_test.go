@@ -37,6 +37,12 @@ func statusDoc(t testing.TB, name, loss string, names []string, theta []float64)
 	if err != nil {
 		t.Fatal(err)
 	}
+	// A U-shaped held-out loss: the minimum at index 3 (λ*), the one-SE
+	// rule at index 2.
+	for i := range doc.Ladder {
+		doc.Ladder[i].Loss = Metric(0.7 + 0.04*float64((i-3)*(i-3)))
+		doc.Ladder[i].SE = 0.05
+	}
 	return doc
 }
 
@@ -164,7 +170,7 @@ func TestStatusPageCharts(t *testing.T) {
 			if strings.Join(got, ",") != strings.Join(tc.want, ",") {
 				t.Errorf("SVGs %q, want %q", got, tc.want)
 			}
-			for _, want := range []string{`id="model-clf"`, `id="model-lin"`, "λ*", "1-SE", ">min<"} {
+			for _, want := range []string{`id="model-clf"`, `id="model-lin"`, "λ*", ">1-SE<", ">min<"} {
 				if !strings.Contains(page, want) {
 					t.Errorf("page lacks %s", want)
 				}

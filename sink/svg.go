@@ -131,7 +131,7 @@ func ticks(lo, hi float64, n int) []float64 {
 	}
 	var out []float64
 	for v := math.Ceil(lo/step) * step; v <= hi+step*1e-9; v += step {
-		out = append(out, math.Round(v/step)*step)
+		out = append(out, math.Round(v/step)*step+0) // +0: no "-0" label
 	}
 	return out
 }
@@ -312,10 +312,15 @@ func lambdaScale(lx []float64, x0, x1 float64) scale {
 	return scale{lo: hi, hi: lo, a: x0, b: x1}
 }
 
-// lambdaMarker draws a labelled vertical line at log10 λ = x.
+// lambdaMarker draws a labelled vertical line at log10 λ = x, the label
+// on the side with more room.
 func (b *svgBuilder) lambdaMarker(p plotBox, x float64, col, label string, dash bool, row int) {
 	b.line(x, p.y0, x, p.y1, col, 1.3, dash)
-	b.text(x+3, p.y0+10+11*float64(row), "start", "mk", label)
+	if x > (p.x0+p.x1)/2 {
+		b.text(x-3, p.y0+10+12*float64(row), "end", "mk", label)
+	} else {
+		b.text(x+3, p.y0+10+12*float64(row), "start", "mk", label)
+	}
 }
 
 // pathChart draws every feature's standardized coefficient against log10 λ
@@ -428,9 +433,13 @@ func lossChart(d *ModelDoc) template.HTML {
 		return 0, false
 	}
 	if x, ok := xOf(minIdx); ok {
-		b.lambdaMarker(p, x, colPos, "min", true, 0)
+		label := "min"
+		if oneSE == minIdx {
+			label = "min = 1-SE"
+		}
+		b.lambdaMarker(p, x, colPos, label, true, 0)
 	}
-	if x, ok := xOf(oneSE); ok {
+	if x, ok := xOf(oneSE); ok && oneSE != minIdx {
 		b.lambdaMarker(p, x, colNeg, "1-SE", true, 1)
 	}
 	var px, py []float64
@@ -452,8 +461,14 @@ func lossChart(d *ModelDoc) template.HTML {
 		b.circle(xs.at(q.x), ys.at(q.loss), r, col,
 			"λ "+num(q.lambda)+" (index "+strconv.Itoa(q.idx)+"): loss "+num(q.loss)+" ± "+num(q.se))
 	}
-	if x, ok := xOf(d.LambdaIndex); ok {
-		b.text(x, p.y1-6, "middle", "mk", "λ*")
+	for _, q := range pts {
+		if q.idx == d.LambdaIndex {
+			y := ys.at(q.loss) + 18 // below the point, or above it at the bottom
+			if y > p.y1-2 {
+				y = ys.at(q.loss) - 9
+			}
+			b.text(xs.at(q.x), y, "middle", "mk", "λ*")
+		}
 	}
 	return b.done()
 }
