@@ -322,6 +322,7 @@ func (w *worker) publish(now time.Time, force bool) {
 	if err := w.d.store.SetModel(s.Doc); err != nil {
 		w.log.Error("model not stored", "err", err)
 	}
+	w.d.store.SetPath(w.name, s.PathLambdas, s.Path)
 	w.mm.Published(s.Doc)
 	w.d.out.put(s.Doc)
 }

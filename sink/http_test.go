@@ -382,15 +382,15 @@ func TestStatusPage(t *testing.T) {
 	for _, want := range []string{
 		`<meta http-equiv="refresh" content="7">`,
 		`<a href="/v1/models/clf">clf</a>`, `<a href="/v1/models/lin">lin</a>`,
-		`<td class="n">0.05</td>`,  // λ
-		`<td class="n">2 / 3</td>`, // nonzero / features
-		`<td class="n">0.7</td>`,   // held-out loss of the chosen member
-		`AUC 0.75`, `R² 0.3`,       // quality by loss
+		`<dd>0.05 (index 3)</dd>`, // λ*
+		`<dd>2 / 3</dd>`,          // nonzero / features
+		`<dd>0.7 ± 0.01</dd>`,     // held-out loss of the chosen member
+		`AUC 0.75`, `R² 0.3`,      // quality by loss
 		`not ready: replaying`, `v0.1.0`, // readiness and version
 		`PSI of a is 0.4 &gt; 0.25 &lt;b&gt;`, // alert message, escaped
 		`class="critical"`,
 		`waiting for a first version: pending`,
-		`<td>warning data 2026-03-04T05:00:00Z</td>`, // clf's last alert
+		`<dd>warning data 2026-03-04T05:00:00Z</dd>`, // clf's last alert
 	} {
 		if !strings.Contains(page, want) {
 			t.Errorf("status page lacks %s", want)
@@ -399,9 +399,11 @@ func TestStatusPage(t *testing.T) {
 	if strings.Contains(page, "<script") || strings.Contains(page, "http://") || strings.Contains(page, "https://") {
 		t.Error("status page has scripts or external references")
 	}
-	// Newest alert first.
-	if strings.Index(page, "loss rose") > strings.Index(page, "PSI of a") {
-		t.Error("alerts not newest first")
+	// Models in name order, each with its own alerts.
+	if strings.Index(page, `id="model-clf"`) > strings.Index(page, `id="model-lin"`) ||
+		strings.Index(page, "PSI of a") > strings.Index(page, `id="model-lin"`) ||
+		strings.Index(page, "loss rose") < strings.Index(page, `id="model-lin"`) {
+		t.Error("model sections out of order or alerts under the wrong model")
 	}
 }
 

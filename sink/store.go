@@ -13,12 +13,23 @@ import (
 	"lariat/window"
 )
 
-// AlertsKept is the number of recent alerts the Store keeps per model.
+// AlertsKept is the number of recent drift alerts (performance, data,
+// model) the Store keeps per model.
 const AlertsKept = 100
+
+// PredictionAlertsKept is the number of recent prediction alerts the Store
+// keeps per model, in a ring of their own so that a flood of them cannot
+// evict drift alerts.
+const PredictionAlertsKept = 20
+
+// LossHistoryKept is the number of published versions whose held-out loss
+// the Store keeps per model (the status page's sparkline).
+const LossHistoryKept = 120
 
 // Store holds the latest published view of every model for the HTTP API:
 // the ModelDoc (with its JSON encoded once), the ROC table of a logistic
-// model and the most recent alerts. Writers (the model goroutines) replace
+// model, the regularization path, the held-out loss of recent versions and
+// the most recent alerts (drift and prediction alerts kept apart). Writers (the model goroutines) replace
 // whole values; readers get immutable snapshots and never hold a lock while
 // encoding a response.
 type Store struct {
@@ -26,14 +37,45 @@ type Store struct {
 	models map[string]*entry
 }
 
-// entry is one model's slot. doc and roc are swapped atomically; the alert
-// ring is guarded by its own mutex.
+// entry is one model's slot. doc, roc and path are swapped atomically; the
+// alert rings and the loss history are guarded by their own mutexes.
 type entry struct {
-	doc atomic.Pointer[storedDoc]
-	roc atomic.Pointer[[]ROCRow]
+	doc  atomic.Pointer[storedDoc]
+	roc  atomic.Pointer[[]ROCRow]
+	path atomic.Pointer[Path]
 
-	alertMu sync.Mutex
-	alerts  *window.Ring[Alert]
+	alertMu     sync.Mutex
+	drift       *window.Ring[keptAlert] // performance, data, model
+	predictions *window.Ring[keptAlert]
+	added       uint64 // alerts ever added (insertion order)
+	predicted   uint64 // prediction alerts ever added
+
+	histMu  sync.Mutex
+	history *window.Ring[LossPoint]
+}
+
+// keptAlert is an alert with its insertion number, which merges the two
+// rings back into the order the alerts were added.
+type keptAlert struct {
+	n uint64
+	a Alert
+}
+
+// Path is a model's regularization path at its latest publication: the
+// standardized coefficients of every ladder member, largest λ first.
+type Path struct {
+	// Lambdas holds each member's λ.
+	Lambdas []float64
+	// Coef holds each member's standardized coefficients in feature order.
+	Coef [][]float64
+}
+
+// LossPoint is the held-out loss of one published version.
+type LossPoint struct {
+	// Version is the published version.
+	Version uint64
+	// Loss is the chosen member's held-out loss.
+	Loss float64
 }
 
 // storedDoc is a published document with its JSON encoding (newline
@@ -78,7 +120,11 @@ func (s *Store) entry(name string) *entry {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if e = s.models[name]; e == nil {
-		e = &entry{alerts: window.NewRing[Alert](AlertsKept)}
+		e = &entry{
+			drift:       window.NewRing[keptAlert](AlertsKept),
+			predictions: window.NewRing[keptAlert](PredictionAlertsKept),
+			history:     window.NewRing[LossPoint](LossHistoryKept),
+		}
 		s.models[name] = e
 	}
 	return e
@@ -93,14 +139,59 @@ func (s *Store) lookup(name string) *entry {
 
 // SetModel makes doc the latest version of doc.Model, registering the model.
 // It encodes the JSON once (an error means doc cannot be served and the
-// previous version stays). doc must not be modified afterwards.
+// previous version stays). doc must not be modified afterwards. A finite
+// held-out loss joins the model's loss history (the last LossHistoryKept
+// versions).
 func (s *Store) SetModel(doc *ModelDoc) error {
 	b, err := json.Marshal(doc)
 	if err != nil {
 		return fmt.Errorf("sink: encoding model %s: %w", doc.Model, err)
 	}
-	s.entry(doc.Model).doc.Store(&storedDoc{doc: doc, json: append(b, '\n')})
+	e := s.entry(doc.Model)
+	e.doc.Store(&storedDoc{doc: doc, json: append(b, '\n')})
+	if l := float64(doc.Holdout.Loss); doc.Holdout.Records > 0 && finite(l) {
+		e.histMu.Lock()
+		e.history.Push(LossPoint{Version: doc.Version, Loss: l})
+		e.histMu.Unlock()
+	}
 	return nil
+}
+
+// LossHistory returns the held-out loss of the model's recent versions,
+// oldest first (nil for an unknown model).
+func (s *Store) LossHistory(name string) []LossPoint {
+	e := s.lookup(name)
+	if e == nil {
+		return nil
+	}
+	e.histMu.Lock()
+	defer e.histMu.Unlock()
+	out := make([]LossPoint, 0, e.history.Len())
+	for _, p := range e.history.All() {
+		out = append(out, p)
+	}
+	return out
+}
+
+// SetPath replaces the regularization path of name: lambdas[i] is ladder
+// member i's λ and coefs[i] its standardized coefficients in feature order.
+// It panics if the lengths differ (programmer error). The slices must not
+// be modified afterwards.
+func (s *Store) SetPath(name string, lambdas []float64, coefs [][]float64) {
+	if len(lambdas) != len(coefs) {
+		panic(fmt.Sprintf("sink: path of %d λ values and %d coefficient vectors", len(lambdas), len(coefs)))
+	}
+	s.entry(name).path.Store(&Path{Lambdas: lambdas, Coef: coefs})
+}
+
+// Path returns the regularization path of name, or nil if none was set.
+// The value is shared and must not be modified.
+func (s *Store) Path(name string) *Path {
+	e := s.lookup(name)
+	if e == nil {
+		return nil
+	}
+	return e.path.Load()
 }
 
 // Model returns the latest document of name; doc is nil if the model is
@@ -171,13 +262,20 @@ func (s *Store) ROC(name string) []ROCRow {
 	return nil
 }
 
-// AddAlert appends a to its model's ring of recent alerts, evicting the
-// oldest beyond AlertsKept.
+// AddAlert appends a to its model's ring of recent alerts of its class:
+// prediction alerts evict the oldest beyond PredictionAlertsKept, the
+// other (drift) kinds the oldest beyond AlertsKept.
 func (s *Store) AddAlert(a Alert) {
 	e := s.entry(a.Model)
 	e.alertMu.Lock()
-	e.alerts.Push(a)
-	e.alertMu.Unlock()
+	defer e.alertMu.Unlock()
+	e.added++
+	if a.Kind == KindPrediction {
+		e.predicted++
+		e.predictions.Push(keptAlert{n: e.added, a: a})
+		return
+	}
+	e.drift.Push(keptAlert{n: e.added, a: a})
 }
 
 // Alerts returns the recent alerts of name, oldest first, or of every model
@@ -206,12 +304,41 @@ func (s *Store) Alerts(name string) []Alert {
 	return all
 }
 
-// recent appends the entry's alerts to dst, oldest first.
+// recent appends the entry's alerts of both rings to dst in the order they
+// were added, oldest first.
 func (e *entry) recent(dst []Alert) []Alert {
 	e.alertMu.Lock()
 	defer e.alertMu.Unlock()
-	for _, a := range e.alerts.All() {
-		dst = append(dst, a)
+	i, j := 0, 0
+	nd, np := e.drift.Len(), e.predictions.Len()
+	for i < nd || j < np {
+		if j == np || (i < nd && e.drift.At(i).n < e.predictions.At(j).n) {
+			dst = append(dst, e.drift.At(i).a)
+			i++
+		} else {
+			dst = append(dst, e.predictions.At(j).a)
+			j++
+		}
 	}
 	return dst
+}
+
+// alertsOf returns the recent drift alerts (prediction false) or
+// prediction alerts (true) of name, oldest first, with the number of
+// prediction alerts ever added.
+func (s *Store) alertsOf(name string, prediction bool) (list []Alert, predicted uint64) {
+	e := s.lookup(name)
+	if e == nil {
+		return nil, 0
+	}
+	e.alertMu.Lock()
+	defer e.alertMu.Unlock()
+	r := e.drift
+	if prediction {
+		r = e.predictions
+	}
+	for _, k := range r.All() {
+		list = append(list, k.a)
+	}
+	return list, e.predicted
 }

@@ -353,6 +353,11 @@ type Snapshot struct {
 	Model *online.Model
 	// Names are the feature names in model order.
 	Names []string
+	// PathLambdas holds every ladder member's λ, largest first.
+	PathLambdas []float64
+	// Path holds every ladder member's standardized coefficients, trimmed
+	// to len(Names) features (the status page's regularization path).
+	Path [][]float64
 }
 
 // Publish decides whether a new version is due at now and returns it, or
@@ -418,7 +423,13 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	if err != nil {
 		return nil, err
 	}
-	return &Snapshot{Doc: doc, Model: &m, Names: names}, nil
+	k := p.ladder.Size()
+	lambdas, path := make([]float64, k), make([][]float64, k)
+	for i := range k {
+		mi := p.ladder.Model(i)
+		lambdas[i], path[i] = mi.Lambda, mi.Standardized[:min(len(mi.Standardized), len(names))]
+	}
+	return &Snapshot{Doc: doc, Model: &m, Names: names, PathLambdas: lambdas, Path: path}, nil
 }
 
 // Names returns the feature names as of the last record (shared,
