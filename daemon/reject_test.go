@@ -71,6 +71,8 @@ func TestRejects(t *testing.T) {
 		{"zero weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":0}`, record.ReasonWeight},
 		{"zero weight, logistic", "rej-log", logit.Subject, `{"y":1,"x":{"a":1},"w":0.0}`, record.ReasonWeight},
 		{"bad time", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":"yesterday"}`, record.ReasonTime},
+		{"empty channel name", "rej-log", logit.Subject, `{"y":1,"x":{"":1}}`, record.ReasonName},
+		{"control character in a name", "rej-log", logit.Subject, `{"y":1,"x":{"a\u0001":1}}`, record.ReasonName},
 		{"missing channel, strict", "rej-strict", strict.Subject, `{"y":1,"x":{"a":1}}`, record.ReasonMissingFeature},
 	}
 	for _, tc := range cases {
@@ -181,5 +183,54 @@ func TestRejectNoModel(t *testing.T) {
 	}
 	if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", map[string]string{"model": unrouted, "reason": reasonNoModel}); got != 1 {
 		t.Errorf("no_model rejects %v, want 1", got)
+	}
+}
+
+// TestBadNameKeepsPublishing: a record with an empty channel name used to
+// be learned, and the model document then refused the name, so the model
+// never published again. It is now rejected with reason "name", and the
+// model goes on publishing new versions.
+func TestBadNameKeepsPublishing(t *testing.T) {
+	m := testModel("bad-name", "test.bad.name", config.LossSquared)
+	m.Retune.Every = 50
+	td := startDaemon(t, testConfig(t, m), withoutIdle())
+	nc := connect(t, td.NATSURL())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	recs := sparseTruth(4).records(600, false, 16)
+	for _, r := range recs[:300] {
+		nc.Publish(m.Subject, r)
+	}
+	nc.Flush()
+	var before uint64
+	natstest.WaitFor(t, 20*time.Second, func() error {
+		doc, _, err := getDoc(td.Daemon, m.Name)
+		if err != nil {
+			return err
+		}
+		before = doc.Version
+		return nil
+	})
+	nc.Publish(m.Subject, []byte(`{"y":1,"x":{"":1,"x00":2}}`))
+	for _, r := range recs[300:] {
+		nc.Publish(m.Subject, r)
+	}
+	nc.Flush()
+	natstest.WaitFor(t, 20*time.Second, func() error {
+		doc, _, err := getDoc(td.Daemon, m.Name)
+		if err != nil {
+			return err
+		}
+		if doc.Version <= before || doc.Records.Applied < 600 {
+			return fmt.Errorf("version %d (was %d), %d applied", doc.Version, before, doc.Records.Applied)
+		}
+		for _, f := range doc.Features {
+			if f == "" {
+				return fmt.Errorf("the empty name was learned: %q", doc.Features)
+			}
+		}
+		return nil
+	})
+	if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", map[string]string{"model": m.Name, "reason": record.ReasonName}); got != 1 {
+		t.Errorf("rejected{name} = %v, want 1", got)
 	}
 }

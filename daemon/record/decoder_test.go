@@ -47,9 +47,9 @@ var decodeCases = []struct {
 	{name: "t negative millis", msg: `{"t":-5,"y":1,"x":{}}`, want: Record{X: []float64{}, Y: 1, W: 1, T: -5, HasT: true}},
 	{name: "t escaped", msg: `{"t":"2026-03-04T05:06:07\u002E089Z","y":1,"x":{}}`,
 		want: Record{X: []float64{}, Y: 1, W: 1, T: 1772600767089, HasT: true}},
-	{name: "escapes in names and key", msg: `{"y":1,"x":{"s\u00fcction\/kpa":1,"a\"b\\c\n":2,"\ud83d\ude00":3},"key":"u\tnit\u0000"}`,
+	{name: "escapes in names and key", msg: `{"y":1,"x":{"s\u00fcction\/kpa":1,"a\"b\\c":2,"\ud83d\ude00":3},"key":"u\tnit\u0000"}`,
 		want:  Record{X: []float64{1, 2, 3}, Y: 1, W: 1, Key: []byte("u\tnit\x00")},
-		names: []string{"süction/kpa", "a\"b\\c\n", "😀"}},
+		names: []string{"süction/kpa", "a\"b\\c", "😀"}},
 	{name: "lone surrogates become U+FFFD", msg: `{"y":1,"x":{},"key":"\ud800x\udc00\ud800\ud800"}`,
 		want: Record{X: []float64{}, Y: 1, W: 1, Key: []byte("\uFFFDx\uFFFD\uFFFD\uFFFD")}},
 	{name: "raw UTF-8", msg: `{"y":1,"x":{"température":20},"key":"ü😀"}`,
@@ -130,6 +130,13 @@ var decodeCases = []struct {
 	{name: "v long", o: fixedAB, msg: `{"y":1,"v":[1,2,3]}`, reason: ReasonDimension},
 	{name: "v empty", o: fixedAB, msg: `{"y":1,"v":[]}`, reason: ReasonDimension},
 	{name: "negative weight", msg: `{"y":1,"x":{},"w":-1}`, reason: ReasonWeight},
+	{name: "empty channel name", msg: `{"y":1,"x":{"":1}}`, reason: ReasonName},
+	{name: "control character in a name", msg: `{"y":1,"x":{"a\nb":1}}`, reason: ReasonName},
+	{name: "DEL in a name", msg: `{"y":1,"x":{"a\u007fb":1}}`, reason: ReasonName},
+	{name: "lone surrogate in a name", msg: `{"y":1,"x":{"a\ud800":1}}`, reason: ReasonName},
+	{name: "invalid UTF-8 in a name", msg: "{\"y\":1,\"x\":{\"a\xffb\":1}}", reason: ReasonMalformed}, // the whole text must be UTF-8
+	{name: "name too long", msg: `{"y":1,"x":{"` + strings.Repeat("n", MaxNameBytes+1) + `":1}}`, reason: ReasonName},
+	{name: "duplicate empty names", msg: `{"y":1,"x":{"":1,"":2}}`, reason: ReasonMalformed},
 	{name: "zero weight", msg: `{"y":1,"x":{},"w":0}`, reason: ReasonWeight},
 	{name: "negative zero weight", msg: `{"y":1,"x":{},"w":-0}`, reason: ReasonWeight},
 	{name: "tiny negative weight", msg: `{"y":1,"x":{},"w":-1e-300}`, reason: ReasonWeight},
@@ -275,7 +282,7 @@ func TestError(t *testing.T) {
 		t.Error("errors.Is matched a target with a detail")
 	}
 	rs := Reasons()
-	if len(rs) != 10 || rs[0] != ReasonOversize || rs[9] != ReasonTime {
+	if len(rs) != 11 || rs[0] != ReasonOversize || rs[9] != ReasonTime || rs[10] != ReasonName {
 		t.Errorf("Reasons() = %q", rs)
 	}
 	rs[0] = "changed"

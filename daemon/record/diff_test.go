@@ -219,7 +219,7 @@ var diffConfigs = []DecoderOptions{
 	{Features: []string{"a"}, Unlabeled: true},
 }
 
-var diffPool = []string{"a", "b", "suction_kpa", "amps_l1", "temp/°C", "quote\"d", "tab\tname", "ünï😀", "", "x"}
+var diffPool = []string{"a", "b", "suction_kpa", "amps_l1", "temp/°C", "quote\"d", "sp ace", "ünï😀", "z", "x"}
 
 // validPool returns the fixed features followed by as many other names of
 // diffPool as the cap leaves room for.

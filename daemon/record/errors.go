@@ -18,11 +18,12 @@ const (
 	ReasonDimension       = "dimension"         // "v" has the wrong length, or there is no fixed feature list
 	ReasonWeight          = "weight"            // "w" is 0 or negative (a weight must be positive; absent means 1)
 	ReasonTime            = "time"              // "t" is neither RFC 3339 nor integer Unix milliseconds
+	ReasonName            = "name"              // a new channel name is empty, longer than MaxNameBytes, or holds a control character, invalid UTF-8 or a lone surrogate
 )
 
 var reasons = [...]string{
 	ReasonOversize, ReasonMalformed, ReasonType, ReasonNotFinite, ReasonLabel,
-	ReasonTooManyFeatures, ReasonMissingFeature, ReasonDimension, ReasonWeight, ReasonTime,
+	ReasonTooManyFeatures, ReasonMissingFeature, ReasonDimension, ReasonWeight, ReasonTime, ReasonName,
 }
 
 // Reasons returns every reason token, in a fixed order, for example to

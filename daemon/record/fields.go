@@ -1,6 +1,7 @@
 package record
 
 import (
+	"fmt"
 	"math"
 	"strconv"
 	"unicode/utf8"
@@ -237,8 +238,44 @@ func (d *Decoder) lookup(name []byte, r *Record) int {
 	return j
 }
 
+// MaxNameBytes is the longest channel name the decoder learns.
+const MaxNameBytes = 256
+
+// ValidName reports why a new channel name cannot be learned, or "" when it
+// can: it must be 1 to MaxNameBytes bytes of valid UTF-8 without control
+// characters and without U+FFFD, which stands in for invalid UTF-8 and
+// lone UTF-16 surrogates in the JSON text (names that differ only there
+// would otherwise merge into one channel). Such a name would also make the
+// model document unwritable.
+func ValidName(name []byte) string {
+	switch {
+	case len(name) == 0:
+		return "is empty"
+	case len(name) > MaxNameBytes:
+		return fmt.Sprintf("is %d bytes long (at most %d)", len(name), MaxNameBytes)
+	case !utf8.Valid(name):
+		return "is not valid UTF-8"
+	}
+	for _, c := range string(name) {
+		switch {
+		case c < 0x20 || c == 0x7f || c >= 0x80 && c < 0xa0:
+			return "holds a control character"
+		case c == utf8.RuneError:
+			return "holds U+FFFD (invalid UTF-8 or a lone surrogate in the JSON text)"
+		}
+	}
+	return ""
+}
+
 // learn adds a new channel name, or records why it cannot and returns -1.
 func (d *Decoder) learn(name []byte, r *Record) int {
+	if why := ValidName(name); why != "" {
+		if d.err == nil {
+			d.semantic(ReasonName, "new channel name %s %s", quote(name), why)
+		}
+		d.refused(name)
+		return -1
+	}
 	if d.err == nil && len(d.names) < d.max {
 		j := len(d.names)
 		n := string(name)
@@ -253,16 +290,21 @@ func (d *Decoder) learn(name []byte, r *Record) int {
 	if d.err == nil {
 		d.semantic(ReasonTooManyFeatures, "new channel %s past the cap of %d features", quote(name), d.max)
 	}
-	// The record is rejected; keep finding duplicates all the same.
+	d.refused(name)
+	return -1
+}
+
+// refused notes a name the record could not learn (the record is
+// rejected), to keep finding duplicates all the same.
+func (d *Decoder) refused(name []byte) {
 	if _, dup := d.over[string(name)]; dup {
 		d.duplicate(name)
-	} else {
-		if d.over == nil {
-			d.over = make(map[string]struct{})
-		}
-		d.over[string(name)] = struct{}{}
+		return
 	}
-	return -1
+	if d.over == nil {
+		d.over = make(map[string]struct{})
+	}
+	d.over[string(name)] = struct{}{}
 }
 
 func (d *Decoder) duplicate(name []byte) {

@@ -159,7 +159,9 @@ func (d *refDecoder) decode(msg []byte) (Record, map[string]bool) {
 		} else {
 			for _, m := range members(raw) {
 				j := slices.Index(d.names, m.key)
-				if j < 0 && len(d.names) < d.max {
+				if j < 0 && ValidName([]byte(m.key)) != "" {
+					bad[ReasonName] = true
+				} else if j < 0 && len(d.names) < d.max {
 					j = len(d.names)
 					d.names = append(d.names, m.key)
 					rec.X = append(rec.X, math.NaN())
