@@ -10,8 +10,9 @@ import (
 	"math"
 	"os"
 	"slices"
-	"strconv"
 	"strings"
+
+	"lariat/daemon/record"
 )
 
 // table is a CSV file parsed for fitting: X is row-major, n × len(names);
@@ -67,7 +68,7 @@ func readTable(path, label string, logistic bool) (*table, error) {
 			return nil, &Error{File: path, Line: lines[i], Column: label, Msg: err.Error()}
 		}
 		for k, j := range cols {
-			v, err := parseCell(rec[j])
+			v, err := record.ParseCell(rec[j])
 			if err != nil {
 				return nil, &Error{File: path, Line: lines[i], Column: t.names[k], Msg: err.Error()}
 			}
@@ -125,58 +126,21 @@ func csvError(path string, err error) error {
 	return &Error{File: path, Msg: err.Error()}
 }
 
-// isMissing reports whether a cell is an explicit missing value.
-func isMissing(s string) bool {
-	switch strings.ToLower(s) {
-	case "", "na", "nan":
-		return true
-	}
-	return false
-}
-
 func hasNumber(cells [][]string, j int) bool {
 	for _, rec := range cells {
-		if v, err := parseCell(rec[j]); err == nil && !math.IsNaN(v) {
+		if v, err := record.ParseCell(rec[j]); err == nil && !math.IsNaN(v) {
 			return true
 		}
 	}
 	return false
 }
 
-// parseCell returns the cell's number, NaN for a missing value, or an error.
-func parseCell(s string) (float64, error) {
-	s = strings.TrimSpace(s)
-	if isMissing(s) {
-		return math.NaN(), nil
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	switch {
-	case err != nil && !errors.Is(err, strconv.ErrRange):
-		return 0, fmt.Errorf("not a number %q", s)
-	case err != nil || math.IsInf(v, 0):
-		return 0, fmt.Errorf("not finite %q", s)
-	}
-	return v, nil
-}
-
+// parseLabel is record.ParseLabel, with a logistic label checked to be 0
+// or 1.
 func parseLabel(s string, logistic bool) (float64, error) {
-	s = strings.TrimSpace(s)
-	if logistic {
-		switch strings.ToLower(s) {
-		case "true":
-			return 1, nil
-		case "false":
-			return 0, nil
-		}
+	v, err := record.ParseLabel(s, logistic)
+	if err == nil && logistic && v != 0 && v != 1 {
+		return 0, fmt.Errorf("logistic label must be 0 or 1 (or true/false), got %q", strings.TrimSpace(s))
 	}
-	v, err := parseCell(s)
-	switch {
-	case err != nil:
-		return 0, err
-	case math.IsNaN(v):
-		return 0, errors.New("missing label")
-	case logistic && v != 0 && v != 1:
-		return 0, fmt.Errorf("logistic label must be 0 or 1 (or true/false), got %q", s)
-	}
-	return v, nil
+	return v, err
 }

@@ -201,7 +201,7 @@ func scanColumns(f *os.File, path string) (numeric []bool, header []string, err 
 			return nil, nil, csvError(path, err)
 		}
 		for j, c := range row {
-			if v, err := parseCell(c); err == nil && !math.IsNaN(v) {
+			if v, err := record.ParseCell(c); err == nil && !math.IsNaN(v) {
 				numeric[j] = true
 			}
 		}
@@ -218,11 +218,11 @@ func (s *csvRows) next() (int, []byte, error) {
 	}
 	line, _ := s.cr.FieldPos(0)
 	r := &s.rec
-	if r.Y, err = parseLabel(row[s.label], s.logistic); err != nil {
+	if r.Y, err = record.ParseLabel(row[s.label], s.logistic); err != nil {
 		return 0, nil, &Error{File: s.path, Line: line, Column: s.header[s.label], Msg: err.Error()}
 	}
 	for k, j := range s.cols {
-		if r.X[k], err = parseCell(row[j]); err != nil {
+		if r.X[k], err = record.ParseCell(row[j]); err != nil {
 			return 0, nil, &Error{File: s.path, Line: line, Column: s.names[k], Msg: err.Error()}
 		}
 	}
@@ -247,41 +247,6 @@ func csvError(path string, err error) error {
 	return &Error{File: path, Msg: err.Error()}
 }
 
-// parseCell returns the cell's number, NaN for a missing value (empty, NA,
-// NaN), or an error.
-func parseCell(s string) (float64, error) {
-	s = strings.TrimSpace(s)
-	switch strings.ToLower(s) {
-	case "", "na", "nan":
-		return math.NaN(), nil
-	}
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsInf(v, 0) {
-		return 0, fmt.Errorf("not a finite number %q", s)
-	}
-	return v, nil
-}
-
-// parseLabel returns the label; a logistic label may be true or false.
-func parseLabel(s string, logistic bool) (float64, error) {
-	s = strings.TrimSpace(s)
-	if logistic {
-		switch strings.ToLower(s) {
-		case "true":
-			return 1, nil
-		case "false":
-			return 0, nil
-		}
-	}
-	v, err := parseCell(s)
-	switch {
-	case err != nil:
-		return 0, err
-	case math.IsNaN(v):
-		return 0, errors.New("missing label")
-	}
-	return v, nil // the decoder checks a logistic label is 0 or 1
-}
 
 // parseTime reads an RFC 3339 time or integer Unix milliseconds.
 func parseTime(s string) (int64, error) {

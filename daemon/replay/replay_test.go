@@ -189,7 +189,7 @@ func TestCSV(t *testing.T) {
 		t.Fatal(err)
 	}
 	_, err = replay.Run(bad, replay.Options{Model: &m, Label: "y"})
-	if err == nil || err.Error() != `replay: `+bad+`:3: column "a": not a finite number "x"` {
+	if err == nil || err.Error() != `replay: `+bad+`:3: column "a": not a number "x"` {
 		t.Errorf("error %v", err)
 	}
 }

@@ -1,0 +1,56 @@
+package record
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// The text form of values in tables (the CSV files of lariat fit and
+// lariat replay), which carry a record's values in cells rather than in the
+// JSON wire form.
+
+// ParseCell returns a cell's number, NaN for a missing value (an empty
+// cell, NA or NaN, in any case), or an error that says what is wrong
+// ("not a number", "not finite").
+func ParseCell(s string) (float64, error) {
+	s = strings.TrimSpace(s)
+	switch strings.ToLower(s) {
+	case "", "na", "nan":
+		return math.NaN(), nil
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	switch {
+	case err != nil && !errors.Is(err, strconv.ErrRange):
+		return 0, fmt.Errorf("not a number %q", s)
+	case err != nil || math.IsInf(v, 0):
+		return 0, fmt.Errorf("not finite %q", s)
+	}
+	return v, nil
+}
+
+// ParseLabel returns a label cell's value: a number, or for a logistic
+// model also true or false (any case). A missing label is an error. It
+// does not check that a logistic label is 0 or 1; the callers decide how
+// to treat one that is not.
+func ParseLabel(s string, logistic bool) (float64, error) {
+	s = strings.TrimSpace(s)
+	if logistic {
+		switch strings.ToLower(s) {
+		case "true":
+			return 1, nil
+		case "false":
+			return 0, nil
+		}
+	}
+	v, err := ParseCell(s)
+	switch {
+	case err != nil:
+		return 0, err
+	case math.IsNaN(v):
+		return 0, errors.New("missing label")
+	}
+	return v, nil
+}
