@@ -247,7 +247,6 @@ func csvError(path string, err error) error {
 	return &Error{File: path, Msg: err.Error()}
 }
 
-
 // parseTime reads an RFC 3339 time or integer Unix milliseconds.
 func parseTime(s string) (int64, error) {
 	s = strings.TrimSpace(s)
