@@ -11,7 +11,6 @@ import (
 	"io"
 	"math"
 	"slices"
-	"strconv"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -87,22 +86,7 @@ type Error struct {
 }
 
 // Error returns the one-line message.
-func (e *Error) Error() string {
-	var b strings.Builder
-	b.WriteString("fit: ")
-	if e.File != "" {
-		b.WriteString(e.File)
-		if e.Line > 0 {
-			b.WriteString(":" + strconv.Itoa(e.Line))
-		}
-		b.WriteString(": ")
-	}
-	if e.Column != "" {
-		b.WriteString("column " + strconv.Quote(e.Column) + ": ")
-	}
-	b.WriteString(e.Msg)
-	return b.String()
-}
+func (e *Error) Error() string { return record.Located("fit", e.File, e.Line, e.Column, e.Msg) }
 
 func optionError(format string, args ...any) error {
 	return &Error{Msg: fmt.Sprintf(format, args...)}

@@ -54,3 +54,23 @@ func ParseLabel(s string, logistic bool) (float64, error) {
 	}
 	return v, nil
 }
+
+// Located formats a problem at a place in an input file as one line,
+// "TOOL: FILE:LINE: column "x": msg", leaving out the parts that are zero
+// (the errors of lariat fit and lariat replay).
+func Located(tool, file string, line int, column, msg string) string {
+	var b strings.Builder
+	b.WriteString(tool + ": ")
+	if file != "" {
+		b.WriteString(file)
+		if line > 0 {
+			b.WriteString(":" + strconv.Itoa(line))
+		}
+		b.WriteString(": ")
+	}
+	if column != "" {
+		b.WriteString("column " + strconv.Quote(column) + ": ")
+	}
+	b.WriteString(msg)
+	return b.String()
+}

@@ -7,8 +7,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"strconv"
-	"strings"
 	"time"
 
 	"lariat/config"
@@ -63,22 +61,7 @@ type Error struct {
 }
 
 // Error returns the one-line message.
-func (e *Error) Error() string {
-	var b strings.Builder
-	b.WriteString("replay: ")
-	if e.File != "" {
-		b.WriteString(e.File)
-		if e.Line > 0 {
-			b.WriteString(":" + strconv.Itoa(e.Line))
-		}
-		b.WriteString(": ")
-	}
-	if e.Column != "" {
-		b.WriteString("column " + strconv.Quote(e.Column) + ": ")
-	}
-	b.WriteString(e.Msg)
-	return b.String()
-}
+func (e *Error) Error() string { return record.Located("replay", e.File, e.Line, e.Column, e.Msg) }
 
 // Result is what a replay did.
 type Result struct {
