@@ -31,6 +31,16 @@
 // a slow bus never stalls learning. Versions are monotone per model, also
 // across restarts (the last version is read back from the bucket).
 //
+// # Intake and checkpoints
+//
+// With the durable intake (intake.mode durable, or auto where JetStream
+// answers) each model reads a JetStream stream of its own from the position
+// of its last checkpoint (stream.go); a reader waits for room in the queue.
+// At start, before any goroutine runs, each model is restored from its
+// newest good checkpoint under data_dir/checkpoints (checkpoint.go) and
+// published at once; the model goroutine saves a checkpoint every
+// checkpoint.records records or checkpoint.interval, and at shutdown.
+//
 // Core NATS drops messages for a client that falls behind (a slow
 // consumer). The per-subscription pending limits are raised to
 // nats.pending_msgs / nats.pending_bytes, the drops are counted in
@@ -41,10 +51,12 @@
 // Run returns after ctx is done and these steps, bounded by
 // ShutdownTimeout (10 s) as a whole:
 //
-//  1. stop intake: drain every subscription (messages the client holds are
-//     still delivered; nothing new arrives);
+//  1. stop intake: drain every core subscription (messages the client holds
+//     are still delivered; nothing new arrives) and stop the stream readers
+//     (what a reader held and did not queue is read again at the next start:
+//     a model's stream position only moves when it has applied a record);
 //  2. drain the queues: each model goroutine applies every queued record,
-//     publishes its final document and returns;
+//     publishes its final document, saves its checkpoint and returns;
 //  3. publish the final documents (bus and key-value bucket), flush and
 //     close the NATS connection, shut the embedded server down;
 //  4. shut the HTTP server down.
