@@ -177,7 +177,9 @@ func (d *Daemon) Registry() *prometheus.Registry { return d.reg }
 func (d *Daemon) Store() *sink.Store { return d.store }
 
 // Ready returns nil when the daemon is ready to serve: connected to NATS,
-// every model subscribed and the publisher up; otherwise the reason.
+// every model subscribed, the publisher up and every model able to publish
+// its new versions; otherwise the reason ("degraded: model M does not
+// publish: ..." when a model's last version could not be built or stored).
 func (d *Daemon) Ready() error {
 	nc := d.conn.Load()
 	switch {
@@ -196,6 +198,11 @@ func (d *Daemon) Ready() error {
 		return fmt.Errorf("intake not started: %w", *d.intakeErr.Load())
 	case !d.busReady.Load():
 		return errors.New("subscriptions not confirmed yet")
+	}
+	for _, w := range d.workers {
+		if p := w.problem.Load(); p != nil {
+			return fmt.Errorf("degraded: model %s does not publish: %s", w.name, *p)
+		}
 	}
 	return nil
 }

@@ -2,6 +2,8 @@ package daemon
 
 import (
 	"fmt"
+	"io"
+	"net/http"
 	"strings"
 	"testing"
 	"time"
@@ -232,5 +234,52 @@ func TestBadNameKeepsPublishing(t *testing.T) {
 	})
 	if got := metricValue(t, td.Daemon, "lariat_records_rejected_total", map[string]string{"model": m.Name, "reason": record.ReasonName}); got != 1 {
 		t.Errorf("rejected{name} = %v, want 1", got)
+	}
+}
+
+// TestPublishFailureIsVisible: when a model cannot publish a new version
+// (forced here on the model goroutine with the error the document builder
+// gives for a bad feature name, which the decoder no longer lets through),
+// the failure is counted, /readyz answers 503 naming the model and the
+// reason, the status page shows it, the last version stays served, and it
+// all clears when a version goes out again.
+func TestPublishFailureIsVisible(t *testing.T) {
+	m := testModel("unpublished", "test.unpublished", config.LossSquared)
+	m.Retune.Every = 50
+	td := startDaemon(t, testConfig(t, m), withoutIdle())
+	nc := connect(t, td.NATSURL())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	for _, r := range sparseTruth(4).records(300, false, 17) {
+		nc.Publish(m.Subject, r)
+	}
+	nc.Flush()
+	natstest.WaitFor(t, 20*time.Second, func() error { _, _, err := getDoc(td.Daemon, m.Name); return err })
+	w := td.byName[m.Name]
+	w.exec(func() {
+		w.publishFailed(time.Now(), fmt.Errorf("cannot build a new version: %w", sink.ErrFeatureNames))
+	})
+	err := td.Ready()
+	if err == nil || !strings.Contains(err.Error(), "degraded: model unpublished") || !strings.Contains(err.Error(), "feature") {
+		t.Errorf("Ready() = %v, want degraded naming the model and the reason", err)
+	}
+	if c := metricValue(t, td.Daemon, "lariat_model_publish_failures_total", map[string]string{"model": m.Name}); c != 1 {
+		t.Errorf("lariat_model_publish_failures_total = %v, want 1", c)
+	}
+	resp, err2 := http.Get("http://" + td.HTTPAddr() + "/")
+	if err2 != nil {
+		t.Fatal(err2)
+	}
+	page, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if !strings.Contains(string(page), "cannot build a new version") {
+		t.Error("the status page does not show the problem")
+	}
+	if _, _, err := getDoc(td.Daemon, m.Name); err != nil {
+		t.Errorf("the last version is no longer served: %v", err)
+	}
+	w.exec(func() { w.publish(time.Now(), true) })
+	natstest.WaitFor(t, 5*time.Second, td.Ready)
+	if p := td.store.Problem(m.Name); p != "" {
+		t.Errorf("problem %q after a version went out", p)
 	}
 }

@@ -77,6 +77,11 @@ type worker struct {
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
 
+	// publication failures (publishFailed): the reason, for Ready; the
+	// last log line's time (model goroutine only)
+	problem    atomic.Pointer[string]
+	lastPubLog time.Time
+
 	// shared
 	rejected     atomic.Uint64
 	versionFloor atomic.Uint64                     // last version found in the KV bucket at start
@@ -160,6 +165,30 @@ func (w *worker) intakeSeq(subject string, data []byte, seq uint64, stop <-chan 
 	it.subject, it.data, it.seq = subject, data, seq
 	w.queue <- it
 	return true
+}
+
+// publishFailed says that the model could not publish a new version: it is
+// counted (lariat_model_publish_failures_total), shown by Ready (/readyz,
+// degraded, with the reason) and on the status page, and logged at most
+// once a minute. The last version that went out stays served.
+func (w *worker) publishFailed(now time.Time, err error) {
+	w.mm.PublishFailed.Inc()
+	msg := err.Error()
+	w.problem.Store(&msg)
+	w.d.store.SetProblem(w.name, msg)
+	if now.Sub(w.lastPubLog) >= time.Minute {
+		w.lastPubLog = now
+		w.log.Error("model not published; the previous version stays served", "err", err)
+	}
+}
+
+// publishOK clears a publication problem once a version went out.
+func (w *worker) publishOK() {
+	if w.problem.Load() != nil {
+		w.problem.Store(nil)
+		w.d.store.SetProblem(w.name, "")
+		w.log.Info("model publishes again")
+	}
 }
 
 // skipped counts n records of the model's stream that it will never
@@ -312,16 +341,18 @@ func (w *worker) publish(now time.Time, force bool) {
 	w.pipe.RaiseVersion(w.versionFloor.Load())
 	s, err := w.pipe.Publish(now, w.rejected.Load(), force)
 	if err != nil {
-		w.log.Error("model not published", "err", err)
+		w.publishFailed(now, fmt.Errorf("cannot build a new version: %w", err))
 		return
 	}
 	if s == nil {
 		return
 	}
-	w.snap.Store(s)
 	if err := w.d.store.SetModel(s.Doc); err != nil {
-		w.log.Error("model not stored", "err", err)
+		w.publishFailed(now, fmt.Errorf("cannot store the new version: %w", err))
+		return
 	}
+	w.publishOK()
+	w.snap.Store(s)
 	w.d.store.SetPath(w.name, s.PathLambdas, s.Path)
 	w.mm.Published(s.Doc)
 	w.d.out.put(s.Doc)

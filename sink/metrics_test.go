@@ -53,6 +53,9 @@ lariat_lambda{model="pump"} 0.05
 # HELP lariat_lambda_index Ladder index of the published model's λ (0 = largest).
 # TYPE lariat_lambda_index gauge
 lariat_lambda_index{model="pump"} 3
+# HELP lariat_model_publish_failures_total Times a model's new version could not be built or stored (the previous version stays served; /readyz says why).
+# TYPE lariat_model_publish_failures_total counter
+lariat_model_publish_failures_total{model="pump"} 0
 # HELP lariat_model_version Version number of the published model.
 # TYPE lariat_model_version gauge
 lariat_model_version{model="pump"} 12

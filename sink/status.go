@@ -67,6 +67,7 @@ ul.alerts .when{color:#667085;font-size:.85em;font-variant-numeric:tabular-nums}
 <div><dt>updated</dt><dd>{{.Updated}}</dd></div>
 {{if .Threshold}}<div><dt>threshold</dt><dd>{{.Threshold}}</dd></div>{{end}}
 <div><dt>last alert</dt><dd>{{.LastAlert}}</dd></div>
+{{if .Problem}}<div><dt>problem</dt><dd class="bad">{{.Problem}}</dd></div>{{end}}
 </dl>
 <div class="grid">
 <div class="card"><h3>Coefficients (standardized)</h3>{{.Bars}}
@@ -107,7 +108,7 @@ type statusPage struct {
 // rendered).
 type statusModel struct {
 	Name, Loss, Penalty, Lambda, HoldoutLoss, SE, Quality, Updated, LastAlert string
-	Threshold, Operating                                                      string
+	Threshold, Operating, Problem                                             string
 	Index, Nonzero, Features, Window                                          int
 	Version, PredictionCount                                                  uint64
 	Logistic                                                                  bool
@@ -163,6 +164,7 @@ func statusModelOf(s *Store, d *ModelDoc) statusModel {
 	m.PredictionCount = count
 	m.Drift = statusAlerts(drift, statusDriftAlerts)
 	m.Predictions = statusAlerts(preds, statusPredictionAlerts)
+	m.Problem = s.Problem(d.Model)
 	if recent := s.Alerts(d.Model); len(recent) > 0 {
 		a := recent[len(recent)-1]
 		m.LastAlert = string(a.Severity) + " " + string(a.Kind) + " " + alertTime(a)

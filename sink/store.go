@@ -40,9 +40,10 @@ type Store struct {
 // entry is one model's slot. doc, roc and path are swapped atomically; the
 // alert rings and the loss history are guarded by their own mutexes.
 type entry struct {
-	doc  atomic.Pointer[storedDoc]
-	roc  atomic.Pointer[[]ROCRow]
-	path atomic.Pointer[Path]
+	doc     atomic.Pointer[storedDoc]
+	roc     atomic.Pointer[[]ROCRow]
+	path    atomic.Pointer[Path]
+	problem atomic.Pointer[string] // why the model cannot publish now; nil when it can
 
 	alertMu     sync.Mutex
 	drift       *window.Ring[keptAlert] // performance, data, model
@@ -155,6 +156,28 @@ func (s *Store) SetModel(doc *ModelDoc) error {
 		e.histMu.Unlock()
 	}
 	return nil
+}
+
+// SetProblem records why model name cannot publish a new version now (the
+// status page shows it beside the last version that went out); "" clears
+// it.
+func (s *Store) SetProblem(name, problem string) {
+	e := s.entry(name)
+	if problem == "" {
+		e.problem.Store(nil)
+		return
+	}
+	e.problem.Store(&problem)
+}
+
+// Problem returns what SetProblem recorded for name, or "".
+func (s *Store) Problem(name string) string {
+	if e := s.lookup(name); e != nil {
+		if p := e.problem.Load(); p != nil {
+			return *p
+		}
+	}
+	return ""
 }
 
 // LossHistory returns the held-out loss of the model's recent versions,
