@@ -247,6 +247,11 @@ type Model struct {
 	// Queue is the bounded queue length between the bus and the model
 	// goroutine, 1 to 1<<20. Default 4096.
 	Queue int `yaml:"queue"`
+	// TimeSkew rejects a record whose "t" is further than this ahead of the
+	// wall clock (reason "time"), so one record with a wrong clock cannot
+	// empty a time-span window or stall a cooldown; 0 accepts any time.
+	// 0s to 24h. Default 5m.
+	TimeSkew Duration `yaml:"time_skew"`
 	// Threshold is the alert threshold; logistic models only (a squared
 	// model must leave it at its defaults).
 	Threshold Threshold `yaml:"threshold"`
@@ -392,6 +397,7 @@ func DefaultModel() Model {
 		MaxFeatures: 256,
 		Missing:     MissingImpute,
 		Queue:       4096,
+		TimeSkew:    Duration(5 * time.Minute),
 		Threshold:   defaultThreshold,
 		Drift: Drift{
 			Performance: DriftADWIN,

@@ -413,6 +413,9 @@ func (m *Model) validateFeatures(k *checker, p string) {
 	}
 	k.oneOf(p+".missing", m.Missing, MissingImpute, MissingReject)
 	k.intRange(p+".queue", m.Queue, 1, maxQueue)
+	if m.TimeSkew < 0 || m.TimeSkew > Duration(24*time.Hour) {
+		k.add(p+".time_skew", "%v is out of range (allowed: 0s..24h; 0 accepts any time)", m.TimeSkew)
+	}
 }
 
 // validateAlerts checks threshold and drift.

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"net/http"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -73,6 +74,8 @@ func TestRejects(t *testing.T) {
 		{"zero weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":0}`, record.ReasonWeight},
 		{"zero weight, logistic", "rej-log", logit.Subject, `{"y":1,"x":{"a":1},"w":0.0}`, record.ReasonWeight},
 		{"bad time", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":"yesterday"}`, record.ReasonTime},
+		{"time an hour ahead", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":` + strconv.FormatInt(time.Now().Add(time.Hour).UnixMilli(), 10) + `}`, record.ReasonTime},
+		{"far-future time", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"t":"9999-12-31T23:59:59Z"}`, record.ReasonTime},
 		{"empty channel name", "rej-log", logit.Subject, `{"y":1,"x":{"":1}}`, record.ReasonName},
 		{"control character in a name", "rej-log", logit.Subject, `{"y":1,"x":{"a\u0001":1}}`, record.ReasonName},
 		{"missing channel, strict", "rej-strict", strict.Subject, `{"y":1,"x":{"a":1}}`, record.ReasonMissingFeature},

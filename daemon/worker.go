@@ -134,7 +134,7 @@ func (w *worker) intake(m *nats.Msg) {
 		w.d.reject(w, m.Subject, reasonQueueFull, fmt.Sprintf("queue of %d records is full", cap(w.queue)), m.Data)
 		return
 	}
-	if err := w.dec.Decode(m.Data, &it.rec); err != nil {
+	if err := w.decode(m.Data, &it.rec); err != nil {
 		w.free <- it
 		reason, detail := decodeReason(err)
 		w.d.reject(w, m.Subject, reason, detail, m.Data)
@@ -143,6 +143,24 @@ func (w *worker) intake(m *nats.Msg) {
 	it.names = w.dec.Names()
 	it.subject, it.data, it.seq = m.Subject, m.Data, 0
 	w.queue <- it // never blocks: at most cap(queue) items exist
+}
+
+// decode decodes data into r and refuses a record time further ahead of
+// the wall clock than the model's time_skew (one record with a wrong clock
+// would otherwise empty a time-span window, whose eviction follows the
+// newest record time, and stall the alert cooldowns).
+func (w *worker) decode(data []byte, r *record.Record) error {
+	if err := w.dec.Decode(data, r); err != nil {
+		return err
+	}
+	if skew := w.cfg.TimeSkew.Std(); skew > 0 && r.HasT {
+		// In milliseconds: a far-future t would overflow a Duration.
+		if ahead := r.T - time.Now().UnixMilli(); ahead > skew.Milliseconds() {
+			return &record.Error{Reason: record.ReasonTime,
+				Detail: fmt.Sprintf(`"t" is %.0f s ahead of the wall clock (time_skew %v)`, float64(ahead)/1000, skew)}
+		}
+	}
+	return nil
 }
 
 // intakeSeq decodes one message of the model's stream (sequence seq) and
@@ -158,7 +176,7 @@ func (w *worker) intakeSeq(subject string, data []byte, seq uint64, stop <-chan 
 		return false
 	}
 	it.reason, it.detail = "", ""
-	if err := w.dec.Decode(data, &it.rec); err != nil {
+	if err := w.decode(data, &it.rec); err != nil {
 		it.reason, it.detail = decodeReason(err)
 	}
 	it.names = w.dec.Names()
