@@ -105,30 +105,9 @@ func TestDemoPredict(t *testing.T) {
 	if testing.Short() {
 		t.Skip("demo: a few seconds")
 	}
-	addr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
-	ctx, cancel := context.WithCancel(context.Background())
-	defer cancel()
-	done := make(chan error, 1)
-	go func() { // joined below
-		done <- runDemo(ctx, demoOptions{Duration: time.Minute, Rate: 400, FaultAfter: -1,
-			Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: addr})
-	}()
-	url := "http://" + addr + "/v1/models/pump-trip"
-	deadline := time.Now().Add(30 * time.Second)
-	for {
-		err := checkDemoPredict(t, url)
-		if err == nil {
-			break
-		}
-		if time.Now().After(deadline) {
-			t.Fatal(err)
-		}
-		select {
-		case err := <-done:
-			t.Fatalf("demo stopped early: %v", err)
-		case <-time.After(50 * time.Millisecond):
-		}
-	}
+	demo := startLiveDemo(t)
+	url := demo.base + "/v1/models/pump-trip"
+	demo.waitFor(t, func() error { return checkDemoPredict(t, url) })
 	for _, tc := range []struct{ body, want string }{
 		{`{"v":[1,2]}`, `record: dimension: \"v\" has 2 values`},
 		{`{"x":{"vib_x_mms":"hot"}}`, "record: type"},
@@ -143,10 +122,7 @@ func TestDemoPredict(t *testing.T) {
 			t.Errorf("%s: %d %s, want 400 with %s", tc.body, code, body, tc.want)
 		}
 	}
-	cancel()
-	if err := <-done; err != nil {
-		t.Errorf("demo: %v", err)
-	}
+	demo.stop(t)
 }
 
 // checkDemoPredict fetches the published document at url, predicts one
@@ -223,35 +199,18 @@ func TestDemoPMMLPredict(t *testing.T) {
 	if testing.Short() {
 		t.Skip("demo: a few seconds")
 	}
-	addr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
-	ctx, cancel := context.WithCancel(context.Background())
-	defer cancel()
-	done := make(chan error, 1)
-	go func() { // joined below
-		done <- runDemo(ctx, demoOptions{Duration: time.Minute, Rate: 400, FaultAfter: -1,
-			Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: addr})
-	}()
-	base := "http://" + addr
-	deadline := time.Now().Add(30 * time.Second)
-	for checked := 0; checked < 3; {
-		err := checkPMMLPredict(t, base, "pump-trip")
-		if err == nil {
-			checked++
-			continue
+	demo := startLiveDemo(t)
+	checked := 0
+	demo.waitFor(t, func() error { // three agreeing versions in a row
+		if err := checkPMMLPredict(t, demo.base, "pump-trip"); err != nil {
+			return err
 		}
-		if time.Now().After(deadline) {
-			t.Fatal(err)
+		if checked++; checked < 3 {
+			return fmt.Errorf("%d of 3 versions checked", checked)
 		}
-		select {
-		case err := <-done:
-			t.Fatalf("demo stopped early: %v", err)
-		case <-time.After(50 * time.Millisecond):
-		}
-	}
-	cancel()
-	if err := <-done; err != nil {
-		t.Errorf("demo: %v", err)
-	}
+		return nil
+	})
+	demo.stop(t)
 }
 
 // pmmlDoc is what TestDemoPMMLPredict reads of a PMML 4.4 document.
@@ -331,4 +290,56 @@ func checkPMMLPredict(t *testing.T, base, model string) error {
 		t.Fatalf("version %s: PMML says η %.17g, p %.17g; the daemon %+v", p.Header.ModelVersion, y, prob, got)
 	}
 	return nil
+}
+
+// liveDemo is a demo running in the background of a test (400 records/s,
+// no fault, free ports, a temporary data directory).
+type liveDemo struct {
+	base   string // http://host:port of its HTTP API
+	cancel context.CancelFunc
+	done   chan error
+}
+
+// startLiveDemo starts the demo; stop (or the test's end) stops it.
+func startLiveDemo(t *testing.T) *liveDemo {
+	t.Helper()
+	addr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
+	ctx, cancel := context.WithCancel(context.Background())
+	d := &liveDemo{base: "http://" + addr, cancel: cancel, done: make(chan error, 1)}
+	t.Cleanup(cancel)
+	go func() { // joined by stop
+		d.done <- runDemo(ctx, demoOptions{Duration: time.Minute, Rate: 400, FaultAfter: -1,
+			Data: t.TempDir(), NATSListen: "127.0.0.1:-1", HTTPListen: addr})
+	}()
+	return d
+}
+
+// waitFor calls f every 50 ms until it returns nil; it fails the test after
+// 30 s with f's last error, or at once if the demo stops.
+func (d *liveDemo) waitFor(t *testing.T, f func() error) {
+	t.Helper()
+	deadline := time.Now().Add(30 * time.Second)
+	for {
+		err := f()
+		if err == nil {
+			return
+		}
+		if time.Now().After(deadline) {
+			t.Fatal(err)
+		}
+		select {
+		case err := <-d.done:
+			t.Fatalf("demo stopped early: %v", err)
+		case <-time.After(50 * time.Millisecond):
+		}
+	}
+}
+
+// stop stops the demo and checks it ended cleanly.
+func (d *liveDemo) stop(t *testing.T) {
+	t.Helper()
+	d.cancel()
+	if err := <-d.done; err != nil {
+		t.Errorf("demo: %v", err)
+	}
 }
