@@ -79,24 +79,7 @@ func TestVersion(t *testing.T) {
 // TestPull serves a model document from a test server and prints it as a
 // table and as unchanged JSON.
 func TestPull(t *testing.T) {
-	m := &online.Model{
-		Loss: "squared", Penalty: online.Lasso(), Lambda: 0.05, Index: 3,
-		Intercept: 1.25, Coef: []float64{2, 0, -0.5}, Standardized: []float64{1, 0, -0.25},
-		Mean: []float64{0, 1, 2}, Std: []float64{0.5, 1, 0.5}, Records: 100, Weight: 100, Seen: 120,
-	}
-	doc, err := sink.NewModelDoc(&sink.DocInput{
-		Name: "pump-trip", Version: 7, Features: []string{"vib", "amps", "temp"}, Model: m,
-		Holdout: 20, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	store := sink.NewStore()
-	if err := store.SetModel(doc); err != nil {
-		t.Fatal(err)
-	}
-	srv := httptest.NewServer(sink.NewHandler(sink.HandlerOptions{Store: store}))
-	defer srv.Close()
+	srv, _ := serveOneModel(t, "squared", 7, 1.25)
 
 	out, _, err := run(t, "pull", "pump-trip", "--from", srv.URL)
 	if err != nil {
@@ -127,4 +110,30 @@ func TestPull(t *testing.T) {
 	if _, _, err := run(t, "pull", "nope", "--from", srv.URL); err == nil || !strings.Contains(err.Error(), "404") {
 		t.Errorf("unknown model: %v", err)
 	}
+}
+
+// serveOneModel serves the HTTP API over a store holding one three-feature
+// model "pump-trip" of the given loss, version and intercept (closed at the
+// end of the test), and that model's document.
+func serveOneModel(t *testing.T, loss string, version uint64, intercept float64) (*httptest.Server, *sink.ModelDoc) {
+	t.Helper()
+	m := &online.Model{
+		Loss: loss, Penalty: online.Lasso(), Lambda: 0.05, Index: 3,
+		Intercept: intercept, Coef: []float64{2, 0, -0.5}, Standardized: []float64{1, 0, -0.25},
+		Mean: []float64{0, 1, 2}, Std: []float64{0.5, 1, 0.5}, Records: 100, Weight: 100, Seen: 120,
+	}
+	doc, err := sink.NewModelDoc(&sink.DocInput{
+		Name: "pump-trip", Version: version, Features: []string{"vib", "amps", "temp"}, Model: m,
+		Holdout: 20, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	store := sink.NewStore()
+	if err := store.SetModel(doc); err != nil {
+		t.Fatal(err)
+	}
+	srv := httptest.NewServer(sink.NewHandler(sink.HandlerOptions{Store: store}))
+	t.Cleanup(srv.Close)
+	return srv, doc
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"net/http/httptest"
 	"os"
 	"strings"
 	"testing"
@@ -41,24 +40,7 @@ func Example_writeModel() {
 // prints the daemon's PMML answer unchanged, and fails on an unknown model
 // and together with --json.
 func TestPullPMML(t *testing.T) {
-	m := &online.Model{
-		Loss: "logistic", Penalty: online.Lasso(), Lambda: 0.05, Index: 3,
-		Intercept: -1.5, Coef: []float64{2, 0, -0.5}, Standardized: []float64{1, 0, -0.25},
-		Mean: []float64{0, 1, 2}, Std: []float64{0.5, 1, 0.5}, Records: 100, Weight: 100, Seen: 120,
-	}
-	doc, err := sink.NewModelDoc(&sink.DocInput{
-		Name: "pump-trip", Version: 9, Features: []string{"vib", "amps", "temp"}, Model: m,
-		Holdout: 20, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	store := sink.NewStore()
-	if err := store.SetModel(doc); err != nil {
-		t.Fatal(err)
-	}
-	srv := httptest.NewServer(sink.NewHandler(sink.HandlerOptions{Store: store}))
-	defer srv.Close()
+	srv, doc := serveOneModel(t, "logistic", 9, -1.5)
 
 	out, _, err := run(t, "pull", "pump-trip", "--from", srv.URL, "--pmml")
 	if err != nil {
