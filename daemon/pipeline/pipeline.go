@@ -385,6 +385,7 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 	p.version = s.Doc.Version
 	p.last = s.Doc
 	p.lastPub = now
+	p.addPath(s)
 	return s, nil
 }
 
@@ -392,7 +393,11 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 // the current version number (lariat fit, replay, tests); nil before λ* has
 // been chosen or before a feature has a name.
 func (p *Pipeline) Document(now time.Time, rejected uint64) (*Snapshot, error) {
-	return p.build(now, p.version, rejected)
+	s, err := p.build(now, p.version, rejected)
+	if s != nil {
+		p.addPath(s)
+	}
+	return s, err
 }
 
 // build writes the current model as a snapshot of the given version.
@@ -423,13 +428,19 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	if err != nil {
 		return nil, err
 	}
+	return &Snapshot{Doc: doc, Model: &m, Names: names}, nil
+}
+
+// addPath fills the snapshot's regularization path (every member's λ and
+// standardized coefficients), only for a snapshot that goes out: Publish
+// builds a candidate on every call and most are not published.
+func (p *Pipeline) addPath(s *Snapshot) {
 	k := p.ladder.Size()
-	lambdas, path := make([]float64, k), make([][]float64, k)
+	s.PathLambdas, s.Path = make([]float64, k), make([][]float64, k)
 	for i := range k {
 		mi := p.ladder.Model(i)
-		lambdas[i], path[i] = mi.Lambda, mi.Standardized[:min(len(mi.Standardized), len(names))]
+		s.PathLambdas[i], s.Path[i] = mi.Lambda, mi.Standardized[:min(len(mi.Standardized), len(s.Names))]
 	}
-	return &Snapshot{Doc: doc, Model: &m, Names: names, PathLambdas: lambdas, Path: path}, nil
 }
 
 // Names returns the feature names as of the last record (shared,
