@@ -12,8 +12,10 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes.
-const stateFormat = 1
+// stateFormat is the version of the layout MarshalBinary writes. Format 2
+// added the current width (a model grows with the names it learns) and the
+// count of reset columns.
+const stateFormat = 2
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -40,6 +42,7 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e.str(p.name)
 	e.uvarint(fingerprint(p.cfg))
 	e.int(p.dim)
+	e.int(p.ladder.Features())
 	if err := p.marshalModel(e); err != nil {
 		return nil, err
 	}
@@ -48,6 +51,7 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 		return nil, err
 	}
 	p.marshalTuner(e)
+	e.uvarint(p.freed)
 	return e.Bytes(), e.Err()
 }
 
@@ -139,7 +143,15 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if dim := d.int(); !d.failed() && dim != p.dim {
 		return nil, fmt.Errorf("%w: %d columns, the model has %d", ErrState, dim, p.dim)
 	}
-	if err := p.restoreModel(d); err != nil {
+	width := d.int()
+	if !d.failed() && (width < 1 || width > p.dim) {
+		return nil, fmt.Errorf("%w: width %d, the model has at most %d columns", ErrState, width, p.dim)
+	}
+	if d.failed() {
+		return nil, d.err()
+	}
+	p.watch.resize(width)
+	if err := p.restoreModel(d, width); err != nil {
 		return nil, err
 	}
 	p.restoreCounters(d)
@@ -147,6 +159,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	p.restoreTuner(d)
+	p.freed = d.uvarint()
 	if err := d.done(); err != nil {
 		return nil, err
 	}
@@ -163,7 +176,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	return p, nil
 }
 
-func (p *Pipeline) restoreModel(d dec) error {
+func (p *Pipeline) restoreModel(d dec, width int) error {
 	lb := d.bytes()
 	if d.failed() {
 		return d.err()
@@ -172,8 +185,9 @@ func (p *Pipeline) restoreModel(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: ladder: %v", ErrState, err)
 	}
-	if lad.Features() != p.dim || lad.Size() != p.ladder.Size() {
-		return fmt.Errorf("%w: ladder of %d×%d, the model needs %d×%d", ErrState, lad.Size(), lad.Features(), p.ladder.Size(), p.dim)
+	if lad.Features() != width || lad.MaxFeatures() != p.dim || lad.Size() != p.ladder.Size() {
+		return fmt.Errorf("%w: ladder of %d×%d (at most %d wide), the model needs %d×%d (at most %d)", ErrState,
+			lad.Size(), lad.Features(), lad.MaxFeatures(), p.ladder.Size(), width, p.dim)
 	}
 	p.ladder = lad
 	if has := d.bool(); has != (p.hold != nil) {
@@ -188,8 +202,8 @@ func (p *Pipeline) restoreModel(d dec) error {
 		if err := h.UnmarshalBinary(hb); err != nil {
 			return fmt.Errorf("%w: held-out ring: %v", ErrState, err)
 		}
-		if h.Features() != p.dim {
-			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), p.dim)
+		if h.Features() != width {
+			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), width)
 		}
 		p.hold = h
 	}
