@@ -51,6 +51,7 @@ type worker struct {
 
 	// intake side
 	dec   *record.Decoder
+	slots slotWatch  // the decoder's dropped names and freed slots (width.go)
 	free  chan *item // empty items; empty channel = queue full
 	queue chan *item // decoded records in arrival order
 
@@ -153,6 +154,7 @@ func (w *worker) decode(data []byte, r *record.Record) error {
 	if err := w.dec.Decode(data, r); err != nil {
 		return err
 	}
+	w.watchSlots()
 	if skew := w.cfg.TimeSkew.Std(); skew > 0 && r.HasT {
 		// In milliseconds: a far-future t would overflow a Duration.
 		if ahead := r.T - time.Now().UnixMilli(); ahead > skew.Milliseconds() {
