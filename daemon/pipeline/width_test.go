@@ -4,6 +4,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"slices"
 	"testing"
 	"time"
 
@@ -137,42 +138,72 @@ func sameFloats(a, b []float64) bool {
 }
 
 // BenchmarkWidth measures a 20-channel stream, decoded from JSON and
-// applied to a model with the daemon's default settings, with its names
-// learned from the records under the default cap (max_features 256) and
-// with its 20 features listed (max_features 20): ns per record, and the
-// heap the model holds once its window is full (heap-bytes, from
-// runtime.MemStats after a GC). The ratio learned/listed is the cost of
-// learning the names.
+// applied to a model with the daemon's default settings (window 10,000,
+// K = 12, every 5th record held out), with its names learned from the
+// records under the default cap (max_features 256) and with its 20
+// features listed (max_features 20). The two models take turns on the
+// same records inside each iteration, each timed on its own, so that both
+// see the same load on a shared machine: learned-ns/rec and listed-ns/rec
+// per record and their ratio; and the heap each holds once its window is
+// full (runtime.MemStats.HeapAlloc after a GC, before and after building
+// and filling it) and their ratio.
 //
 //	go test -run '^$' -bench '^BenchmarkWidth$' -benchtime 20000x -count 3 ./daemon/pipeline/
 func BenchmarkWidth(b *testing.B) {
 	const d = 20
 	msgs, names := widthStream(4096, d)
-	for _, c := range []struct {
-		name string
-		list []string
-		max  int
-	}{{"learned", nil, 0}, {"listed", names, d}} {
-		b.Run(c.name, func(b *testing.B) {
-			var ms runtime.MemStats
-			runtime.GC()
-			runtime.ReadMemStats(&ms)
-			heap0 := ms.HeapAlloc
-			w := newWidthRun(b, c.list, c.max)
-			now := time.Unix(1e9, 0)
-			for i := range 13000 { // a full window (10,000 train records) and holdout
-				w.apply(b, msgs[i&4095], now)
-			}
-			runtime.GC()
-			runtime.ReadMemStats(&ms)
-			b.ReportMetric(float64(ms.HeapAlloc-heap0), "heap-bytes")
-			b.ReportAllocs()
-			i := 0
-			for b.Loop() {
-				w.apply(b, msgs[i&4095], now)
-				i++
-			}
-			runtime.KeepAlive(w)
-		})
+	now := time.Unix(1e9, 0)
+	build := func(list []string, maxFeatures int) (*widthRun, float64) {
+		var ms runtime.MemStats
+		runtime.GC()
+		runtime.ReadMemStats(&ms)
+		heap0 := ms.HeapAlloc
+		w := newWidthRun(b, list, maxFeatures)
+		for i := range 13000 { // a full window (10,000 train records) and holdout
+			w.apply(b, msgs[i&4095], now)
+		}
+		runtime.GC()
+		runtime.ReadMemStats(&ms)
+		return w, float64(ms.HeapAlloc) - float64(heap0)
 	}
+	learned, heapLearned := build(nil, 0)
+	listed, heapListed := build(names, d)
+	tLearned, tListed := make([]time.Duration, 0, b.N), make([]time.Duration, 0, b.N)
+	b.ReportAllocs()
+	i := 0
+	for b.Loop() {
+		msg := msgs[i&4095]
+		first, second, t1, t2 := learned, listed, &tLearned, &tListed
+		if i&1 == 1 { // alternate the order
+			first, second, t1, t2 = listed, learned, &tListed, &tLearned
+		}
+		s0 := time.Now()
+		first.apply(b, msg, now)
+		s1 := time.Now()
+		second.apply(b, msg, now)
+		s2 := time.Now()
+		*t1 = append(*t1, s1.Sub(s0))
+		*t2 = append(*t2, s2.Sub(s1))
+		i++
+	}
+	// Medians: a record that the scheduler preempted (other processes on a
+	// shared machine) takes milliseconds and would dominate a mean.
+	mLearned, mListed := medianNs(tLearned), medianNs(tListed)
+	b.ReportMetric(mLearned, "learned-ns/rec")
+	b.ReportMetric(mListed, "listed-ns/rec")
+	b.ReportMetric(mLearned/mListed, "time-learned/listed")
+	b.ReportMetric(heapLearned, "learned-heap-B")
+	b.ReportMetric(heapListed, "listed-heap-B")
+	b.ReportMetric(heapLearned/heapListed, "heap-learned/listed")
+	runtime.KeepAlive(learned)
+	runtime.KeepAlive(listed)
+}
+
+// medianNs returns the median of ts in nanoseconds.
+func medianNs(ts []time.Duration) float64 {
+	if len(ts) == 0 {
+		return 0
+	}
+	slices.Sort(ts)
+	return float64(ts[len(ts)/2].Nanoseconds())
 }
