@@ -106,7 +106,7 @@ type member interface {
 // which calls shift and setLambdas. The interface is wide because it is
 // the whole seam between the grid and an optimizer, and the two learners
 // differ in nearly every method; a record costs two calls through it (add,
-// run). Every method but members, kkt and converge is on the per-record
+// run). Every method but members, kkt, converge and grow is on the per-record
 // path or serves it, and must not allocate.
 type learner interface {
 	// members returns the members, member i for λ_i.
