@@ -1,6 +1,7 @@
 package pipeline
 
 import (
+	"bytes"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -206,4 +207,124 @@ func medianNs(ts []time.Duration) float64 {
 	}
 	slices.Sort(ts)
 	return float64(ts[len(ts)/2].Nanoseconds())
+}
+
+// slotStream applies n records to w with channels a, b, c and, when
+// extra is not "", a fourth channel of that name; y depends on it.
+func slotStream(t testing.TB, rng *rand.Rand, ws []*widthRun, n int, extra string, now time.Time) {
+	t.Helper()
+	names := []string{"a", "b", "c"}
+	if extra != "" {
+		names = append(names, extra)
+	}
+	x := make([]float64, len(names))
+	for range n {
+		for j := range x {
+			x[j] = rng.NormFloat64()
+		}
+		y := x[0] - x[1] + 0.1*rng.NormFloat64()
+		if extra != "" {
+			y += 2 * x[3]
+		}
+		msg := record.AppendJSON(nil, names, &record.Record{X: x, Y: y, W: 1})
+		for _, w := range ws {
+			w.apply(t, msg, now)
+		}
+	}
+}
+
+// TestSlotReuse: a learned channel that stops for a whole window loses
+// its slot; the pipeline resets its column (every member's coefficient 0,
+// fresh) although it was in the model, and no document names it; a new
+// channel then takes the slot and enters the model. A checkpoint taken
+// with the slot free, and one with it reused, round-trip byte for byte and
+// continue bit-identically (width, names with a free slot, fresh columns).
+func TestSlotReuse(t *testing.T) {
+	m := config.DefaultModel()
+	m.Name, m.Subject = "slots", "slots"
+	m.Window.Records, m.Holdout.Records, m.Retune.Every, m.MaxFeatures = 200, 50, 50, 4
+	cfg := config.Default()
+	cfg.DataDir = t.TempDir()
+	cfg.Models = []config.Model{m}
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	mc := &cfg.Models[0]
+	p, err := New(Options{Model: mc})
+	if err != nil {
+		t.Fatal(err)
+	}
+	freeAfter := m.Window.Records + m.Window.Records/(m.Holdout.Every-1)
+	w := &widthRun{p: p, dec: record.NewDecoder(&record.DecoderOptions{MaxFeatures: 4, FreeAfter: freeAfter})}
+	rng := rand.New(rand.NewPCG(5, 6))
+	now := time.Unix(1e9, 0)
+	slotStream(t, rng, []*widthRun{w}, 600, "j", now)
+	p.Idle(200)
+	if m := p.Ladder().Model(max(p.Current(), 0)); m.Coef[3] == 0 {
+		t.Fatal("j should be in the model")
+	}
+	if s, err := p.Document(now, 0); err != nil || s.Doc.Coefficients["j"] == 0 {
+		t.Fatalf("document without j: %v", err)
+	}
+	for i := 0; p.Names()[3] != ""; i++ {
+		if i > freeAfter+2*64 {
+			t.Fatalf("slot of j not freed after %d records: %q", i, p.Names())
+		}
+		slotStream(t, rng, []*widthRun{w}, 1, "", now)
+	}
+	l := p.Ladder()
+	if !l.Fresh(3) {
+		t.Fatal("freed column not fresh")
+	}
+	for i := range l.Size() {
+		if th := l.Model(i).Standardized[3]; th != 0 {
+			t.Fatalf("member %d keeps θ = %v for the freed slot", i, th)
+		}
+	}
+	s, err := p.Document(now, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if slices.Contains(s.Names, "j") || slices.Contains(s.Names, "") || slices.Contains(s.Doc.Features, "j") || len(s.Model.Coef) != 3 {
+		t.Fatalf("document after the slot was freed: names %q, features %q, %d coefficients", s.Names, s.Doc.Features, len(s.Model.Coef))
+	}
+	for _, path := range s.Path {
+		if len(path) != 3 {
+			t.Fatalf("path of %d columns", len(path))
+		}
+	}
+	// Checkpoints with the slot free and reused round-trip and continue.
+	twin := func() *widthRun {
+		t.Helper()
+		b, err := p.MarshalBinary()
+		if err != nil {
+			t.Fatal(err)
+		}
+		q, err := Restore(Options{Model: mc}, b)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if again, err := q.MarshalBinary(); err != nil || !bytes.Equal(again, b) {
+			t.Fatalf("re-saved state differs (%v)", err)
+		}
+		return &widthRun{p: q, dec: record.NewDecoder(&record.DecoderOptions{Learned: q.Names(), MaxFeatures: 4, FreeAfter: freeAfter})}
+	}
+	free := twin()
+	slotStream(t, rng, []*widthRun{w, free}, 5, "k", now)
+	if got := p.Names(); !slices.Equal(got, []string{"a", "b", "c", "k"}) || l.Fresh(3) {
+		t.Fatalf("names %q, fresh %v", got, l.Fresh(3))
+	}
+	reused := twin()
+	slotStream(t, rng, []*widthRun{w, free, reused}, 600, "k", now)
+	for name, o := range map[string]*widthRun{"free": free, "reused": reused} {
+		for i := range l.Size() {
+			if !sameFloats(modelFloats(l.Model(i)), modelFloats(o.p.Ladder().Model(i))) {
+				t.Fatalf("%s: member %d differs after the restore", name, i)
+			}
+		}
+	}
+	p.Idle(200)
+	if s, err := p.Document(now, 0); err != nil || s.Doc.Coefficients["k"] == 0 {
+		t.Fatalf("k not in the model: %v", err)
+	}
 }
