@@ -46,6 +46,21 @@ func (l *Ladder) Grow(n int) {
 	l.d = n
 }
 
+// Check validates r as Add does, but for a record of any width up to
+// MaxFeatures (the width the ladder may grow to): it returns the error Add
+// would return for its values, label or weight, and changes nothing. A
+// caller that grows the ladder for a record checks it first, so that a
+// record Add would refuse does not change the ladder's layout either.
+func (l *Ladder) Check(r Record) error {
+	if len(r.X) > l.opt.MaxFeatures {
+		return fmt.Errorf("%w: got %d, at most %d", ErrDimension, len(r.X), l.opt.MaxFeatures)
+	}
+	if err := checkFeatures(r.X); err != nil {
+		return err
+	}
+	return checkLabel(&r, l.opt.Loss, l.dom)
+}
+
 // MaxFeatures returns the width Grow may reach.
 func (l *Ladder) MaxFeatures() int { return l.opt.MaxFeatures }
 

@@ -1,6 +1,7 @@
 package online
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"testing"
@@ -290,4 +291,33 @@ func ExampleLadder_Grow() {
 	// Output:
 	// 2 true
 	// false
+}
+
+// TestCheck: Check refuses what Add refuses, for any width up to
+// MaxFeatures, and changes nothing.
+func TestCheck(t *testing.T) {
+	l, err := NewLadder(&Options{Loss: Logistic{}, Features: 2, MaxFeatures: 4})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name string
+		r    Record
+		want error
+	}{
+		{"wider than now", Record{X: []float64{1, 2, 3, math.NaN()}, Y: 1}, nil},
+		{"past the maximum", Record{X: make([]float64, 5), Y: 1}, ErrDimension},
+		{"value beyond the bound", Record{X: []float64{1e60}, Y: 0}, ErrNotFinite},
+		{"label outside the domain", Record{X: []float64{1}, Y: 2}, ErrLabel},
+		{"negative weight", Record{X: []float64{1}, Y: 1, W: -1}, ErrWeight},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if err := l.Check(tc.r); !errors.Is(err, tc.want) || (tc.want == nil) != (err == nil) {
+				t.Fatalf("got %v, want %v", err, tc.want)
+			}
+			if l.Features() != 2 || l.Len() != 0 {
+				t.Fatal("Check changed the ladder")
+			}
+		})
+	}
 }

@@ -216,7 +216,9 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		return st, &record.Error{Reason: record.ReasonDimension,
 			Detail: fmt.Sprintf("record has %d columns, the model at most %d", max(len(rec.X), len(names)), p.dim)}
 	}
-	p.layout(names, len(rec.X))
+	if err := p.layout(rec, names); err != nil {
+		return st, err
+	}
 	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
 		rec.X = append(rec.X, math.NaN())
 	}

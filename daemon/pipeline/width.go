@@ -4,6 +4,7 @@ import (
 	"slices"
 	"unsafe"
 
+	"lariat/daemon/record"
 	"lariat/online"
 )
 
@@ -20,21 +21,32 @@ import (
 // its coefficients are 0 and its statistics start afresh.
 
 // layout brings the model's columns up to date with the decoder's names
-// for a record of n columns.
-func (p *Pipeline) layout(names []string, n int) {
+// before rec is applied. A change of layout is made only for a record the
+// learner will take (online.Ladder.Check), so that a rejected record leaves
+// the model as it was; the change then comes with the next record taken.
+func (p *Pipeline) layout(rec *record.Record, names []string) error {
 	old := p.at.names
+	need := max(len(rec.X), len(names))
+	same := len(old) == len(names) && (len(old) == 0 || unsafe.SliceData(old) == unsafe.SliceData(names))
+	if same && need <= p.ladder.Features() {
+		return nil
+	}
+	if err := p.ladder.Check(rec.Learn()); err != nil {
+		return &record.Error{Reason: learnerReason(err), Detail: err.Error()}
+	}
 	p.at.names = names
-	if need := max(n, len(names)); need > p.ladder.Features() {
+	if need > p.ladder.Features() {
 		p.grow(need)
 	}
 	if len(old) == 0 || len(names) == 0 || unsafe.SliceData(old) == unsafe.SliceData(names) {
-		return // the same array: names were only appended
+		return nil // the same array: names were only appended
 	}
 	for j := range min(len(old), len(names)) {
 		if old[j] != names[j] && old[j] != "" {
 			p.resetColumn(j)
 		}
 	}
+	return nil
 }
 
 // grow widens the ladder, the held-out ring and the watch to hold need

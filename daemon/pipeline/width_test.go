@@ -2,6 +2,7 @@ package pipeline
 
 import (
 	"bytes"
+	"errors"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -326,5 +327,32 @@ func TestSlotReuse(t *testing.T) {
 	p.Idle(200)
 	if s, err := p.Document(now, 0); err != nil || s.Doc.Coefficients["k"] == 0 {
 		t.Fatalf("k not in the model: %v", err)
+	}
+}
+
+// TestRejectedKeepsLayout: a record the learner refuses (a value beyond
+// the learner's bound) that brings a new name leaves the model as it was,
+// width included; the next record taken brings the new column.
+func TestRejectedKeepsLayout(t *testing.T) {
+	msgs, _ := widthStream(300, 3)
+	w := newWidthRun(t, nil, 0)
+	now := time.Unix(1e9, 0)
+	for _, msg := range msgs {
+		w.apply(t, msg, now)
+	}
+	before := w.p.Ladder().Model(0)
+	if err := w.dec.Decode([]byte(`{"y":1,"x":{"x01":1,"new":1e60}}`), &w.rec); err != nil {
+		t.Fatal(err)
+	}
+	_, err := w.p.Apply(&w.rec, w.dec.Names(), now)
+	if !errors.Is(err, &record.Error{Reason: record.ReasonNotFinite}) {
+		t.Fatalf("got %v, want not_finite", err)
+	}
+	if got := w.p.Ladder().Features(); got != 3 || !sameFloats(modelFloats(before), modelFloats(w.p.Ladder().Model(0))) {
+		t.Fatalf("rejected record changed the model (width %d)", got)
+	}
+	w.apply(t, []byte(`{"y":1,"x":{"x01":1,"new":2}}`), now)
+	if got := w.p.Ladder().Features(); got != 6 {
+		t.Fatalf("width %d after the new name was taken, want 6 (doubled)", got)
 	}
 }
