@@ -2,6 +2,7 @@ package daemon
 
 import (
 	"fmt"
+	"log/slog"
 	"math/rand/v2"
 	"slices"
 	"strconv"
@@ -29,7 +30,8 @@ func TestNameFlood(t *testing.T) {
 	const window, flood, batch = 1000, 50000, 250
 	m := testModel("flood", "flood.records", config.LossSquared)
 	m.Window.Records, m.Holdout.Records, m.MaxFeatures = window, 250, 16
-	td := startDaemon(t, testConfig(t, m))
+	var logs syncBuffer
+	td := startDaemon(t, testConfig(t, m), WithLogger(slog.New(slog.NewTextHandler(&logs, nil))))
 	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	pub := connect(t, td.NATSURL())
 	w := td.byName["flood"]
@@ -89,6 +91,9 @@ func TestNameFlood(t *testing.T) {
 		t.Fatalf("dropped %v, freed %v of %d junk names", dropped, freed, flood)
 	}
 	t.Logf("flood: %v names dropped, %v slots freed, version %d → %d", dropped, freed, before, after.Doc.Version)
+	if n := strings.Count(logs.String(), "feature cap reached"); n != 1 {
+		t.Errorf("the flood was logged %d times, want once", n)
+	}
 	// The new legitimate channel: count the records until it has a slot.
 	got := 0
 	for got = 0; !slices.Contains(names(), "d"); got += batch {

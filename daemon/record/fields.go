@@ -225,7 +225,7 @@ func isPlain(name string) bool {
 // the cap allows; -1 if the value is to be skipped.
 func (d *Decoder) lookup(name []byte, r *Record) int {
 	j := d.guess
-	if j >= len(d.names) || d.names[j] != string(name) {
+	if j >= len(d.names) || d.names[j] != string(name) || len(name) == 0 { // "" is a free slot, never a name
 		var ok bool
 		if j, ok = d.index[string(name)]; !ok {
 			return d.learn(name, r)

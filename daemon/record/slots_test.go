@@ -60,6 +60,13 @@ func TestSlotsAgeOut(t *testing.T) {
 	if r.X[2] != 5 || r.X[3] != 4 {
 		t.Fatalf("X = %v", r.X)
 	}
+	// An empty name is never taken for a free slot.
+	d3 := NewDecoder(&DecoderOptions{Learned: []string{"", "a"}, MaxFeatures: 2})
+	for _, msg := range []string{`{"y":1,"x":{"":1}}`, `{"y":1,"x":{"a":1,"":2}}`} {
+		if err := d3.Decode([]byte(msg), &r); !errors.Is(err, &Error{Reason: ReasonName}) {
+			t.Fatalf("%s: got %v, want reason name", msg, err)
+		}
+	}
 	// A decoder restored with a free slot continues from it.
 	d2 := NewDecoder(&DecoderOptions{Features: []string{"f"}, Learned: []string{"a", "", "c"}, MaxFeatures: 4})
 	if err := d2.Decode([]byte(`{"y":1,"x":{"z":1,"c":2}}`), &r); err != nil {
