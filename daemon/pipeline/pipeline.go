@@ -388,7 +388,7 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 		return nil, err
 	}
 	heartbeat := p.cfg.Publish.Heartbeat.Std()
-	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) &&
+	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) && !renamed(p.last, s.Doc) &&
 		(heartbeat <= 0 || now.Sub(p.lastPub) < heartbeat) {
 		return nil, nil
 	}

@@ -6,6 +6,7 @@ import (
 
 	"lariat/daemon/record"
 	"lariat/online"
+	"lariat/sink"
 )
 
 // The width of a model follows the names its decoder has learned: the
@@ -119,4 +120,12 @@ func compact(m *online.Model, names []string) []string {
 	}
 	trim(m, k)
 	return kept
+}
+
+// renamed reports whether the feature list changed since the last
+// published document (a slot freed or taken): a new version goes out, so
+// that a freed name does not stay in the served document until the
+// heartbeat.
+func renamed(prev, next *sink.ModelDoc) bool {
+	return prev != nil && !slices.Equal(prev.Features, next.Features)
 }

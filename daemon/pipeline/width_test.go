@@ -13,6 +13,7 @@ import (
 	"lariat/config"
 	"lariat/daemon/record"
 	"lariat/online"
+	"lariat/sink"
 )
 
 // widthRun decodes and applies a JSON stream of d channels, all present in
@@ -267,6 +268,9 @@ func TestSlotReuse(t *testing.T) {
 	if s, err := p.Document(now, 0); err != nil || s.Doc.Coefficients["j"] == 0 {
 		t.Fatalf("document without j: %v", err)
 	}
+	if s, err := p.Publish(now, 0, true); err != nil || s == nil {
+		t.Fatalf("publish: %v", err)
+	}
 	for i := 0; p.Names()[3] != ""; i++ {
 		if i > freeAfter+2*64 {
 			t.Fatalf("slot of j not freed after %d records: %q", i, p.Names())
@@ -282,9 +286,10 @@ func TestSlotReuse(t *testing.T) {
 			t.Fatalf("member %d keeps θ = %v for the freed slot", i, th)
 		}
 	}
-	s, err := p.Document(now, 0)
-	if err != nil {
-		t.Fatal(err)
+	// The next publication opportunity sends a version without j.
+	s, err := p.Publish(now.Add(2*time.Second), 0, false)
+	if err != nil || s == nil {
+		t.Fatalf("no version after the slot was freed: %v", err)
 	}
 	if slices.Contains(s.Names, "j") || slices.Contains(s.Names, "") || slices.Contains(s.Doc.Features, "j") || len(s.Model.Coef) != 3 {
 		t.Fatalf("document after the slot was freed: names %q, features %q, %d coefficients", s.Names, s.Doc.Features, len(s.Model.Coef))
@@ -354,5 +359,27 @@ func TestRejectedKeepsLayout(t *testing.T) {
 	w.apply(t, []byte(`{"y":1,"x":{"x01":1,"new":2}}`), now)
 	if got := w.p.Ladder().Features(); got != 6 {
 		t.Fatalf("width %d after the new name was taken, want 6 (doubled)", got)
+	}
+}
+
+// TestRenamed: a changed feature list is a reason to publish.
+func TestRenamed(t *testing.T) {
+	doc := func(names ...string) *sink.ModelDoc { return &sink.ModelDoc{Features: names} }
+	for _, tc := range []struct {
+		name       string
+		prev, next *sink.ModelDoc
+		want       bool
+	}{
+		{"first", nil, doc("a"), false},
+		{"same", doc("a", "b"), doc("a", "b"), false},
+		{"freed", doc("a", "j"), doc("a"), true},
+		{"taken", doc("a", "j"), doc("a", "k"), true},
+		{"learned", doc("a"), doc("a", "b"), true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := renamed(tc.prev, tc.next); got != tc.want {
+				t.Fatalf("renamed = %v, want %v", got, tc.want)
+			}
+		})
 	}
 }
