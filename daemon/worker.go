@@ -47,7 +47,7 @@ type worker struct {
 	name string
 	log  *slog.Logger
 	mm   *sink.ModelMetrics
-	dim  int // record width: pipeline.Width (names not learned yet stay NaN)
+	dim  int // the most columns a record can have: pipeline.Width (the cap)
 
 	// intake side
 	dec   *record.Decoder
@@ -115,8 +115,13 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		idleSteps: m.Learner.IdleSteps,
 	}
 	w.dec = w.newDecoder(nil)
+	// Each item's record starts with room for the listed features (at least
+	// 32 columns), not for the cap: a queue of 4096 items at the default cap
+	// of 256 would hold 8 MB. An item grows once when it first carries a
+	// wider record (the decoder reallocates X), so the steady state still
+	// allocates nothing.
 	for range m.Queue {
-		w.free <- &item{rec: record.Record{X: make([]float64, 0, dim)}}
+		w.free <- &item{rec: record.Record{X: make([]float64, 0, min(dim, max(32, len(m.Features))))}}
 	}
 	w.mm.QueueDepthFunc(func() int { return len(w.queue) })
 	w.scoring = newScoring(w)
