@@ -13,16 +13,13 @@ import (
 type lossDetector struct {
 	adwin *window.ADWIN
 	ph    *window.PageHinkley
-	// sinceZero counts the values since the Page-Hinkley statistic was last
-	// 0: the CUSUM's change-point estimate when it signals.
-	sinceZero int
 }
 
 // lossChange describes a detected change of the mean bounded loss.
 type lossChange struct {
 	up            bool    // the mean went up (a drift, not a recovery)
 	before, after float64 // mean before and after the change (ADWIN only)
-	kept          int     // values judged post-change
+	kept          int     // ADWIN: values it kept after the cut
 	stat          float64 // ADWIN: after − before; Page-Hinkley: its statistic
 	threshold     float64 // ADWIN: its confidence δ; Page-Hinkley: λ
 	width         int     // detector window before the change
@@ -78,16 +75,9 @@ func (d *lossDetector) addPH(u float64) (lossChange, bool) {
 	}
 	width := p.Count() + 1
 	if !p.Add(u) {
-		if p.Statistic() == 0 {
-			d.sinceZero = 0
-		} else {
-			d.sinceZero++
-		}
 		return lossChange{}, false
 	}
-	kept := d.sinceZero + 1
-	d.sinceZero = 0
-	return lossChange{up: true, kept: kept, stat: p.Statistic(), threshold: p.Threshold(), width: width}, true
+	return lossChange{up: true, stat: p.Statistic(), threshold: p.Threshold(), width: width}, true
 }
 
 // reset restarts the detector.
@@ -98,7 +88,6 @@ func (d *lossDetector) reset() {
 	if d.ph != nil {
 		d.ph.Reset()
 	}
-	d.sinceZero = 0
 }
 
 // width returns the detector's current window (ADWIN width, Page-Hinkley

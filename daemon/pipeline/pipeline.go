@@ -57,7 +57,11 @@ type Pipeline struct {
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout
 	sinceRetune int
-	scores      []online.Score
+	// adopt is set by a drift adaptation: the next retune adopts its
+	// choice of λ* at once (the chooser's hysteresis protects a choice
+	// made on pre-change records, which no longer count).
+	adopt  bool
+	scores []online.Score
 
 	at    moment
 	watch *watch
@@ -248,6 +252,7 @@ func (p *Pipeline) collect() {
 	p.watch.alerts = p.watch.alerts[:0]
 	if p.watch.adapted {
 		st.Adapted, p.watch.adapted = true, false
+		p.adopt = true
 	}
 }
 
@@ -294,7 +299,7 @@ func (p *Pipeline) retune() {
 		return
 	}
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
-	idx, changed := p.chooser.Update(p.scores)
+	idx, changed := p.choose()
 	p.step.Retuned, p.step.Moved = true, changed
 	if idx >= 0 && p.watch.warm {
 		m := p.ladder.Model(idx)
@@ -305,6 +310,24 @@ func (p *Pipeline) retune() {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
 	}
+}
+
+// choose lets the chooser pick λ* from the last scores; after a drift
+// adaptation the pick is adopted without the hysteresis (when the scores
+// give one).
+func (p *Pipeline) choose() (int, bool) {
+	if !p.adopt {
+		return p.chooser.Update(p.scores)
+	}
+	kept, prev := p.chooser, p.chooser.Current()
+	p.chooser.Reset()
+	idx, _ := p.chooser.Update(p.scores)
+	if idx < 0 {
+		p.chooser = kept
+		return prev, false
+	}
+	p.adopt = false
+	return idx, idx != prev
 }
 
 // gridStep returns the ladder's step in ln λ, ln(λ_0/λ_{K−1})/(K−1), or 0
