@@ -28,7 +28,9 @@ type Rise struct {
 // none for independent normal values of a common variance, whose maximizer
 // is the maximum-likelihood estimate of the change point (Hinkley 1970,
 // "Inference about the change-point in a sequence of random variables",
-// Biometrika 57; the CUSUM form of Page 1954). Ties go to the newest split.
+// Biometrika 57; the CUSUM form of Page 1954). Ties go to the newest split;
+// a difference of means within 1e-12 of their magnitude is rounding, not a
+// rise.
 // It is O(n), does not allocate, and skips NaN and infinite values (they
 // still count as positions in After). A ring with fewer than two finite
 // values gives the zero Rise.
@@ -58,8 +60,8 @@ func EstimateRise(r *Ring[float64]) Rise {
 		}
 		n0, n1 := float64(c0), n-float64(c0)
 		m0, m1 := s0/n0, (tot-s0)/n1
-		if !(m1 > m0) {
-			continue
+		if !(m1-m0 > 1e-12*(math.Abs(m0)+math.Abs(m1))) {
+			continue // no rise, or one within rounding (a constant sequence)
 		}
 		if t := n0 * n1 / n * (m1 - m0) * (m1 - m0); t >= best.Stat {
 			best = Rise{After: r.n - 1 - i, Stat: t, Before: m0, Mean: m1}

@@ -340,12 +340,16 @@ func TestWatchObserveAllocs(t *testing.T) {
 }
 
 // BenchmarkWatchObserve measures the watch's per-record cost, with the
-// data comparison (once per retune.every = 250 train records) and without.
+// data comparison (once per retune.every = 250 train records) and without,
+// and with drift.adapt on (the default: the loss trail of the change-point
+// estimate is kept) and off.
 func BenchmarkWatchObserve(b *testing.B) {
 	for _, d := range []int{3, 64} {
-		for _, compare := range []bool{false, true} {
-			b.Run(fmt.Sprintf("d=%d/compare=%v", d, compare), func(b *testing.B) {
+		for _, v := range []struct{ compare, adapt bool }{{false, false}, {false, true}, {true, true}} {
+			compare := v.compare
+			b.Run(fmt.Sprintf("d=%d/compare=%v/adapt=%v", d, compare, v.adapt), func(b *testing.B) {
 				m := driftModel("bench", config.LossLogistic, featureNames(d), 400)
+				m.Drift.Adapt = v.adapt
 				h := newHarness(b, m)
 				x := make([]float64, d)
 				rng := rand.New(rand.NewPCG(1, 1))
