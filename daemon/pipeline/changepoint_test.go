@@ -240,3 +240,48 @@ func exactChosen(t *testing.T, p *Pipeline) online.Model {
 	}
 	return l.Model(max(p.current(), 0))
 }
+
+// TestDriftCutAdopts checks the choice of λ* after a drift adaptation
+// (README, "Drift alerts"): until the train window has filled again, every
+// retune adopts the rule's pick on its scores at once (online.Choose, no
+// hysteresis); once it has filled, the hysteresis is back, so a retune
+// whose pick differs from the current choice leaves it unchanged (measured
+// on the same stream: such retunes occur). The abrupt linear swap at a
+// window of 2,000 records. Source: this design's rule (issue 9, item 5).
+func TestDriftCutAdopts(t *testing.T) {
+	m := defaultDriftModel("adopt", config.LossSquared, featureNames(16))
+	m.Window.Records, m.Holdout.Records = 2000, 500
+	h := newHarness(t, m)
+	s := &swapStream{rng: rand.New(rand.NewPCG(44, 9)), k: 1}
+	x := make([]float64, 16)
+	for range 6000 {
+		h.feed(x, s.next(x))
+	}
+	s.k = 3
+	cut, adopted, held := false, 0, 0
+	for range 8000 {
+		h.feed(x, s.next(x))
+		st := &h.p.step
+		cut = cut || st.Adapted
+		if !cut || !st.Retuned {
+			continue
+		}
+		pick := online.Choose(h.p.Scores(), online.RuleOneSE)
+		switch filling := h.p.adopt; {
+		case filling && h.p.Current() != pick:
+			t.Errorf("window of %d after the cut: current choice %d, the rule picks %d", h.p.ladder.Len(), h.p.Current(), pick)
+		case filling:
+			adopted++
+		case h.p.Current() != pick:
+			held++
+		}
+	}
+	t.Logf("retunes that adopted their pick while the window refilled: %d; retunes after that whose pick the hysteresis held back: %d", adopted, held)
+	if !cut || adopted == 0 {
+		t.Fatalf("cut %v, %d retunes while the window refilled", cut, adopted)
+	}
+	if h.p.adopt || held == 0 {
+		t.Errorf("adopting %v with a train window of %d of %d; %d picks held back by the hysteresis after the refill, want some",
+			h.p.adopt, h.p.ladder.Len(), m.Window.Records, held)
+	}
+}

@@ -57,9 +57,10 @@ type Pipeline struct {
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout
 	sinceRetune int
-	// adopt is set by a drift adaptation: the next retune adopts its
-	// choice of λ* at once (the chooser's hysteresis protects a choice
-	// made on pre-change records, which no longer count).
+	// adopt is set by a drift adaptation: while the train window grows
+	// back, every retune adopts its choice of λ* at once (the chooser's
+	// hysteresis would protect a choice made on a smaller window, or on
+	// pre-change records, which no longer count).
 	adopt  bool
 	scores []online.Score
 
@@ -312,10 +313,15 @@ func (p *Pipeline) retune() {
 	}
 }
 
-// choose lets the chooser pick λ* from the last scores; after a drift
-// adaptation the pick is adopted without the hysteresis (when the scores
-// give one).
+// choose lets the chooser pick λ* from the last scores. After a drift
+// adaptation, until the train window has filled again (the drift watch's
+// "filled": window.records train records, or n_s with a time span or the
+// decay learner), each pick that the scores give is adopted without the
+// hysteresis.
 func (p *Pipeline) choose() (int, bool) {
+	if p.adopt && p.ladder.Len() >= p.watch.fillAt {
+		p.adopt = false
+	}
 	if !p.adopt {
 		return p.chooser.Update(p.scores)
 	}
@@ -326,7 +332,6 @@ func (p *Pipeline) choose() (int, bool) {
 		p.chooser = kept
 		return prev, false
 	}
-	p.adopt = false
 	return idx, idx != prev
 }
 
