@@ -19,7 +19,6 @@ type lossDetector struct {
 type lossChange struct {
 	up            bool    // the mean went up (a drift, not a recovery)
 	before, after float64 // mean before and after the change (ADWIN only)
-	kept          int     // ADWIN: values it kept after the cut
 	stat          float64 // ADWIN: after − before; Page-Hinkley: its statistic
 	threshold     float64 // ADWIN: its confidence δ; Page-Hinkley: λ
 	width         int     // detector window before the change
@@ -60,7 +59,6 @@ func (d *lossDetector) add(u float64) (c lossChange, fired bool) {
 		up:        m1 > before,
 		before:    before,
 		after:     m1,
-		kept:      n1,
 		stat:      m1 - before,
 		threshold: a.Delta(),
 		width:     n0 + 1,
