@@ -65,9 +65,10 @@ func (t *lossTrail) keepNewest(n int) {
 	}
 }
 
-// encode writes the trail: the ring (capacity, head, values as exact
-// bits), then the marks of its records oldest first.
+// encode writes the trail: its capacity, the ring (capacity, head, values
+// as exact bits), then the marks of its records oldest first.
 func (t *lossTrail) encode(e enc) {
+	e.int(t.ring.Cap())
 	t.ring.EncodeState(e.Encoder, func(e *window.Encoder, v float64) { e.PutFloat64(v) })
 	marks := make([]bool, t.ring.Len())
 	for i := range marks {
@@ -76,8 +77,15 @@ func (t *lossTrail) encode(e enc) {
 	e.bools(marks)
 }
 
-// decode reads what encode wrote into a trail of the same capacity.
+// decode reads what encode wrote into a trail of the same capacity; the
+// capacity is checked before the ring's buffer is allocated.
 func (t *lossTrail) decode(d dec) error {
+	if c := d.int(); !d.failed() && c != t.ring.Cap() {
+		d.fail("loss trail of capacity %d, the model's holds %d", c, t.ring.Cap())
+	}
+	if d.failed() {
+		return d.err()
+	}
 	var r window.Ring[float64]
 	if err := r.DecodeState(d.Decoder, func(d *window.Decoder) float64 { return d.Float64() }); err != nil {
 		return fmt.Errorf("%w: loss trail: %v", ErrState, err)
