@@ -114,8 +114,10 @@ type Step struct {
 	// ROC is the chosen member's new ROC table on the held-out ring
 	// (logistic models, after a retune); nil otherwise.
 	ROC []online.ROCPoint
-	// Adapted is set when a confirmed performance drift shrank the train
-	// window and the held-out ring to their post-change records.
+	// Adapted is set when a drift adaptation cut the train window and the
+	// held-out ring to the records after the estimated change point: at
+	// the performance alert, or when the 50th train record after that
+	// point arrived (see the drift watch in watch.go).
 	Adapted bool
 	// Alerts are the drift alerts the record raised (already past their
 	// cooldown).
