@@ -75,21 +75,28 @@ func defaultDriftModel(name, loss string, features []string) config.Model {
 // asserted; with the paper's 10% noise, the changes 8 → 9 and 9 → 7 are
 // mostly absorbed without an alert (README, "What the tests measured"), so
 // only the changes that were detected are asserted (not run with -short).
+// The same with Page-Hinkley (Page 1954) as the detector, without noise.
 func TestDriftCutSEA(t *testing.T) {
 	seeds := []uint64{1, 2, 3}
 	if testing.Short() {
 		seeds = seeds[:1]
 	}
 	const warm, per, bound = 15000, 8000, 0.10
-	noises := []float64{0, 0.1}
+	runs := []struct {
+		perf  string
+		noise float64
+	}{{config.DriftADWIN, 0}, {config.DriftADWIN, 0.1}, {config.DriftPageHinkley, 0}}
 	if testing.Short() {
-		noises = noises[:1]
+		runs = runs[:1]
 	}
-	for _, noise := range noises {
-		t.Run(fmt.Sprintf("noise=%.0f%%", 100*noise), func(t *testing.T) {
+	for _, run := range runs {
+		noise := run.noise
+		t.Run(fmt.Sprintf("%s/noise=%.0f%%", run.perf, 100*noise), func(t *testing.T) {
 			var fracs []float64
 			for _, seed := range seeds {
-				h := newHarness(t, defaultDriftModel("sea", config.LossLogistic, []string{"f1", "f2", "f3"}))
+				m := defaultDriftModel("sea", config.LossLogistic, []string{"f1", "f2", "f3"})
+				m.Drift.Performance = run.perf
+				h := newHarness(t, m)
 				c := newCutProbe(h)
 				s := newSEA(seed, seaThetas[0], noise)
 				x := make([]float64, 3)
