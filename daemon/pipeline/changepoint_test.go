@@ -191,7 +191,7 @@ func TestDriftCutSwap(t *testing.T) {
 		}
 		s.k = 3
 		c.change()
-		var exact, stream settle
+		exact, stream := settle{from: -1}, settle{from: -1}
 		for i := 1; i <= after; i++ {
 			c.feed(x, s.next(x))
 			if c.alertAt < 0 || (i-c.alertAt)%every != 0 {
@@ -219,15 +219,16 @@ func TestDriftCutSwap(t *testing.T) {
 }
 
 // settle follows the support of the swap test: from is the first check
-// since which every check had x4 and not x2 (−1 while the last one did
-// not), extra the number of features beyond x1, x3, x4 at the last check.
+// since which every check had x4 and not x2 (−1 before any check and while
+// the last one did not), extra the number of features beyond x1, x3, x4 at
+// the last check.
 type settle struct{ from, extra int }
 
 func (s *settle) see(coef []float64, at int) {
 	switch ok := coef[3] != 0 && coef[1] == 0; {
 	case !ok:
 		s.from = -1
-	case s.from <= 0:
+	case s.from < 0:
 		s.from = at
 	}
 	s.extra = 0
