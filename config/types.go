@@ -240,7 +240,10 @@ type Model struct {
 	// record form): unique, non-empty names. Default none.
 	Features []string `yaml:"features"`
 	// MaxFeatures caps the feature set (Features plus names learned from
-	// records); at least len(Features), at most 100000. Default 256.
+	// records); at least len(Features), at most 100000. Default 256. The
+	// model is as wide as the names in use, not as the cap; a learned name
+	// unseen for a whole window frees its slot, and a new name past the cap
+	// is dropped (or, with Missing "reject", rejects its record).
 	MaxFeatures int `yaml:"max_features"`
 	// Missing is impute (window mean) or reject. Default "impute".
 	Missing string `yaml:"missing"`

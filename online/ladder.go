@@ -20,7 +20,7 @@ type Record struct {
 type Options struct {
 	Loss     Loss          // default Squared{}
 	Penalty  *Penalty      // default lasso (Mix 1)
-	Features int           // d, required >= 1
+	Features int           // d, required >= 1: the width at the start
 	Window   int           // max records in the train window; default 10000
 	Span     time.Duration // 0 = none; else records with T < newest.T − Span are evicted
 	Size     int           // K ladder members; default 12
@@ -30,6 +30,10 @@ type Options struct {
 	Seed     uint64        // PRNG seed (math/rand/v2 PCG); same seed+records => bit-identical
 	Learner  string        // "saga" (default) or "decay" (FTRL-Proximal, no buffer)
 	HalfLife float64       // decay learner forgetting half-life in records; default 10000
+
+	// MaxFeatures is the width Grow may reach; default Features (a fixed
+	// width).
+	MaxFeatures int
 }
 
 // Errors returned by NewLadder and Add. Add wraps them with the offending
@@ -83,6 +87,8 @@ type Ladder struct {
 	fill    []float64 // lrn.fill()
 	dom     Domain    // opt.Loss.Domain()
 	xbuf    []float64 // the record being added, missing values imputed
+	fresh   []bool    // column j has had no value yet (width.go)
+	nfresh  int       // fresh columns
 }
 
 // member is one λ of the ladder, whichever learner trains it.
@@ -100,7 +106,7 @@ type member interface {
 // which calls shift and setLambdas. The interface is wide because it is
 // the whole seam between the grid and an optimizer, and the two learners
 // differ in nearly every method; a record costs two calls through it (add,
-// run). Every method but members, kkt and converge is on the per-record
+// run). Every method but members, kkt, converge and grow is on the per-record
 // path or serves it, and must not allocate.
 type learner interface {
 	// members returns the members, member i for λ_i.
@@ -136,6 +142,12 @@ type learner interface {
 	// the ladder's grid); a learner without a window returns NaN and false.
 	kkt(i int) float64
 	converge(l *Ladder, tol float64, maxEpochs int) bool
+	// grow widens the learner to n features (Ladder.Grow), reset clears
+	// column j (Ladder.ResetFeature) and seed fills fresh column j with its
+	// first value v before the record that carries it is added (width.go).
+	grow(n int)
+	reset(j int)
+	seed(j int, v float64)
 }
 
 // NewLadder returns an empty ladder configured by o.
@@ -147,6 +159,10 @@ func NewLadder(o *Options) (*Ladder, error) {
 	l := &Ladder{
 		opt: opt, d: opt.Features, alpha0: max(opt.Penalty.Mix, lambdaMixFloor),
 		lambdas: make([]float64, opt.Size), xbuf: make([]float64, opt.Features),
+		fresh: make([]bool, opt.Features), nfresh: opt.Features,
+	}
+	for j := range l.fresh {
+		l.fresh[j] = true
 	}
 	switch opt.Learner {
 	case "decay":
@@ -182,6 +198,8 @@ func resolve(o *Options) (Options, error) {
 	switch {
 	case opt.Features < 1:
 		return bad("features %d < 1", opt.Features)
+	case opt.MaxFeatures != 0 && opt.MaxFeatures < opt.Features:
+		return bad("max features %d < features %d", opt.MaxFeatures, opt.Features)
 	case !(pen.Mix >= 0 && pen.Mix <= 1):
 		return bad("penalty mix %v outside [0, 1]", pen.Mix)
 	case opt.Window < 0 || opt.Size < 0 || opt.Steps < 0 || opt.Span < 0:
@@ -201,6 +219,7 @@ func resolve(o *Options) (Options, error) {
 		}
 	}
 	def(&opt.Window, 10000)
+	def(&opt.MaxFeatures, opt.Features)
 	def(&opt.Size, 12)
 	def(&opt.Steps, 2)
 	if opt.Floor == 0 {
@@ -232,6 +251,9 @@ func (l *Ladder) Add(r Record) error {
 	x := r.X
 	if l.fill != nil {
 		x = l.xbuf
+	}
+	if l.nfresh > 0 {
+		l.seedFresh(r.X)
 	}
 	w := r.W
 	if w == 0 {
@@ -320,7 +342,7 @@ func (l *Ladder) Seen() uint64 { return l.seen }
 // Size returns K, the number of members.
 func (l *Ladder) Size() int { return len(l.members) }
 
-// Features returns d.
+// Features returns d, the current width (see Grow).
 func (l *Ladder) Features() int { return l.d }
 
 // Lambda returns member i's λ: i = 0 is the largest (λ_max), i = K−1 the

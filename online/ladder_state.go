@@ -37,7 +37,8 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	o := &l.opt
 	putString(e, name)
 	e.PutFloat64(o.Penalty.Mix)
-	e.PutUvarint(uint64(o.Features))
+	e.PutUvarint(uint64(l.d))
+	e.PutUvarint(uint64(o.MaxFeatures))
 	e.PutUvarint(uint64(o.Window))
 	e.PutVarint(int64(o.Span))
 	e.PutUvarint(uint64(o.Size))
@@ -51,6 +52,9 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	e.PutFloat64(l.lmax)
 	e.PutFloat64(l.anchor)
 	e.PutFloat64s(l.lambdas)
+	for _, f := range l.fresh {
+		e.PutBool(f)
+	}
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		if err := lrn.encode(e); err != nil {
@@ -68,11 +72,12 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // wrapping ErrState; no input makes it panic, and it allocates only the
 // buffers of the ladder that b describes.
 //
-// The format, version 2, written with window.Encoder: the version byte 2
-// and the type byte 'L'; the options (loss name, penalty mix, features,
-// window, span in nanoseconds, size, floor, fixed λ, steps, seed, learner
-// name, half-life); the records seen, λ_max, the anchor of the grid and
-// the grid; then the learner's state (sagaLearner.encode,
+// The format, version 3, written with window.Encoder: the version byte 3
+// and the type byte 'L'; the options (loss name, penalty mix, features
+// (the current width, see Grow), max features, window, span in
+// nanoseconds, size, floor, fixed λ, steps, seed, learner name,
+// half-life); the records seen, λ_max, the anchor of the grid and the
+// grid; one bool per feature, set for a fresh column (see Grow); then the learner's state (sagaLearner.encode,
 // decayLearner.encode). Integers are varints, float64 their little-endian
 // IEEE 754 bits, strings, byte strings and float64 slices carry a varint
 // length.
@@ -87,13 +92,19 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 	if err != nil {
 		return nil, fmt.Errorf("%w: %w", ErrState, err)
 	}
-	if l.opt.Window != opt.Window || l.opt.Size != opt.Size || l.opt.Steps != opt.Steps ||
+	if l.opt.Window != opt.Window || l.opt.Size != opt.Size || l.opt.Steps != opt.Steps || l.opt.MaxFeatures != opt.MaxFeatures ||
 		l.opt.Floor != opt.Floor || l.opt.HalfLife != opt.HalfLife {
 		return nil, fmt.Errorf("%w: options not in resolved form", ErrState)
 	}
 	l.seen = d.Uvarint()
 	l.lmax, l.anchor = d.Float64(), d.Float64()
 	d.Float64sInto(l.lambdas)
+	l.nfresh = 0
+	for j := range l.fresh {
+		if l.fresh[j] = d.Bool(); l.fresh[j] {
+			l.nfresh++
+		}
+	}
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		lrn.decode(d, l.xbuf)
@@ -126,6 +137,7 @@ func decodeOptions(d *window.Decoder) Options {
 	mix := d.Float64()
 	var o Options
 	o.Features = d.Count("features", maxStateFeatures)
+	o.MaxFeatures = d.Count("max features", maxStateFeatures)
 	o.Window = d.Count("window", maxStateCap)
 	o.Span = time.Duration(d.Varint())
 	o.Size = d.Count("size", maxStateSize)
@@ -143,8 +155,8 @@ func decodeOptions(d *window.Decoder) Options {
 		return o
 	}
 	o.Loss, o.Penalty = loss, &Penalty{Mix: mix}
-	if o.Features < 1 || o.Window < 1 || o.Size < 1 || o.Steps < 1 || o.Learner == "" {
-		d.Failf("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
+	if o.Features < 1 || o.MaxFeatures < o.Features || o.Window < 1 || o.Size < 1 || o.Steps < 1 || o.Learner == "" {
+		d.Failf("features %d (at most %d), window %d, size %d, steps %d, learner %q", o.Features, o.MaxFeatures, o.Window, o.Size, o.Steps, o.Learner)
 		return o
 	}
 	// In int64: the product can exceed a 32-bit int.

@@ -41,6 +41,12 @@ lariat_alerts_total{kind="data",model="pump"} 1
 lariat_alerts_total{kind="model",model="pump"} 0
 lariat_alerts_total{kind="performance",model="pump"} 0
 lariat_alerts_total{kind="prediction",model="pump"} 0
+# HELP lariat_feature_slots_freed_total Feature slots given back by names no record carried for a whole window.
+# TYPE lariat_feature_slots_freed_total counter
+lariat_feature_slots_freed_total{model="pump"} 0
+# HELP lariat_features_dropped_total Channel values dropped because their new name found the feature cap reached and no slot free (the record trained on its known channels).
+# TYPE lariat_features_dropped_total counter
+lariat_features_dropped_total{model="pump"} 0
 # HELP lariat_holdout_loss Mean held-out loss of the published model.
 # TYPE lariat_holdout_loss gauge
 lariat_holdout_loss{model="pump"} 0.7

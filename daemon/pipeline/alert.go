@@ -67,7 +67,7 @@ func (g *alertGate) allow(kind sink.AlertKind, m *moment, st *watchStats) bool {
 // featureName returns the name of column j, or "#j" when the model has not
 // published that name yet.
 func featureName(names []string, j int) string {
-	if j < len(names) {
+	if j < len(names) && names[j] != "" { // "": a free slot
 		return names[j]
 	}
 	return fmt.Sprintf("#%d", j)

@@ -68,6 +68,7 @@ type Pipeline struct {
 	watch *watch
 	tuner *tuner // nil for a squared-loss model
 
+	freed    uint64 // columns reset because their slot changed hands (width.go)
 	version  uint64
 	last     *sink.ModelDoc
 	lastPub  time.Time
@@ -124,8 +125,10 @@ type Step struct {
 	Alerts []sink.Alert
 }
 
-// Width returns the number of columns of model m's ladder and records: its
-// feature cap, or its fixed feature list if that is longer.
+// Width returns the most columns model m's ladder and records can have: its
+// feature cap, or its fixed feature list if that is longer. The ladder
+// starts as wide as the fixed list and grows with the names learned
+// (width.go).
 func Width(m *config.Model) int { return max(m.MaxFeatures, len(m.Features)) }
 
 // New returns the pipeline of o.Model, empty.
@@ -154,19 +157,21 @@ func New(o Options) (*Pipeline, error) {
 		h.Write([]byte(m.Name))
 		seed = h.Sum64()
 	}
+	start := max(1, len(m.Features))
 	lad, err := online.NewLadder(&online.Options{
-		Loss:     loss,
-		Penalty:  &online.Penalty{Mix: m.PenaltyMix()},
-		Features: dim,
-		Window:   m.Window.Records,
-		Span:     m.Window.Span.Std(),
-		Size:     m.Ladder.Size,
-		Floor:    m.Ladder.Floor,
-		Lambda:   m.Lambda,
-		Steps:    m.Learner.Steps,
-		Seed:     seed,
-		Learner:  m.Learner.Kind,
-		HalfLife: m.Learner.HalfLife,
+		Loss:        loss,
+		Penalty:     &online.Penalty{Mix: m.PenaltyMix()},
+		Features:    start,
+		MaxFeatures: dim,
+		Window:      m.Window.Records,
+		Span:        m.Window.Span.Std(),
+		Size:        m.Ladder.Size,
+		Floor:       m.Ladder.Floor,
+		Lambda:      m.Lambda,
+		Steps:       m.Learner.Steps,
+		Seed:        seed,
+		Learner:     m.Learner.Kind,
+		HalfLife:    m.Learner.HalfLife,
 	})
 	if err != nil {
 		return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
@@ -186,9 +191,9 @@ func New(o Options) (*Pipeline, error) {
 	if m.HoldoutOff() {
 		p.split.Every = -1 // window.Splitter: < 2 (and not 0) disables the split
 	} else {
-		p.hold = online.NewHoldout(dim, m.Holdout.Records)
+		p.hold = online.NewHoldout(start, m.Holdout.Records)
 	}
-	p.watch = newWatch(m, dim, trainWindow{p}, &p.at)
+	p.watch = newWatch(m, start, trainWindow{p}, &p.at)
 	p.tuner = newTuner(m, o.Threshold)
 	return p, nil
 }
@@ -196,7 +201,8 @@ func New(o Options) (*Pipeline, error) {
 // Name returns the model's name.
 func (p *Pipeline) Name() string { return p.name }
 
-// Width returns the number of columns of the pipeline's records.
+// Width returns the most columns the pipeline's records can have (see the
+// function Width); Ladder().Features() is the current width.
 func (p *Pipeline) Width() int { return p.dim }
 
 // Apply applies one decoded record: the held-out ring takes every k-th
@@ -204,20 +210,23 @@ func (p *Pipeline) Width() int { return p.dim }
 // test-then-train loss on it has fed the drift watch; every retune.every
 // records the ladder is rescored, λ* chosen and the threshold tuned. names
 // is the decoder's feature order when rec was decoded; rec.X is extended to
-// Width() columns with NaN (missing) for the names not seen yet, in its own
-// capacity when it has room. now is the wall-clock
+// the ladder's width with NaN (missing), in its own capacity when it has
+// room; a name in a slot that changed hands since the last record resets
+// that column first (width.go). now is the wall-clock
 // time that stands in for the record's own time when it has none (alert
 // cooldowns). A record of the wrong width or one the learner refuses leaves
 // the model untouched and gives a *record.Error with the reject reason.
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
-	p.at.names = names
-	if len(rec.X) > p.dim {
+	if len(rec.X) > p.dim || len(names) > p.dim {
 		return st, &record.Error{Reason: record.ReasonDimension,
-			Detail: fmt.Sprintf("record has %d columns, the model %d", len(rec.X), p.dim)}
+			Detail: fmt.Sprintf("record has %d columns, the model at most %d", max(len(rec.X), len(names)), p.dim)}
 	}
-	for len(rec.X) < p.dim { // names not learned yet are missing
+	if err := p.layout(rec, names); err != nil {
+		return st, err
+	}
+	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
 		rec.X = append(rec.X, math.NaN())
 	}
 	r := rec.Learn()
@@ -241,6 +250,7 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	st.HeldOut = heldOut
 	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
+	p.watch.rereference()
 	p.collect()
 	if p.sinceRetune++; p.sinceRetune >= p.cfg.Retune.Every {
 		p.retune()
@@ -408,7 +418,7 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 		return nil, err
 	}
 	heartbeat := p.cfg.Publish.Heartbeat.Std()
-	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) &&
+	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) && !renamed(p.last, s.Doc) &&
 		(heartbeat <= 0 || now.Sub(p.lastPub) < heartbeat) {
 		return nil, nil
 	}
@@ -439,6 +449,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	}
 	m := p.ladder.Model(cur)
 	trim(&m, len(names))
+	names = compact(&m, names)
 	var th *sink.Threshold
 	if p.tuner != nil {
 		th = p.tuner.threshold()
@@ -469,7 +480,9 @@ func (p *Pipeline) addPath(s *Snapshot) {
 	s.PathLambdas, s.Path = make([]float64, k), make([][]float64, k)
 	for i := range k {
 		mi := p.ladder.Model(i)
-		s.PathLambdas[i], s.Path[i] = mi.Lambda, mi.Standardized[:min(len(mi.Standardized), len(s.Names))]
+		trim(&mi, len(p.at.names))
+		compact(&mi, p.at.names)
+		s.PathLambdas[i], s.Path[i] = mi.Lambda, mi.Standardized
 	}
 }
 

@@ -12,8 +12,10 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes.
-const stateFormat = 2
+// stateFormat is the version of the layout MarshalBinary writes. Format 3
+// added the current width (a model grows with the names it learns) and the
+// count of reset columns.
+const stateFormat = 3
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -41,6 +43,8 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e.str(p.name)
 	e.uvarint(fingerprint(p.cfg))
 	e.int(p.dim)
+	e.int(p.ladder.Features())
+	e.uvarint(p.freed)
 	if err := p.marshalModel(e); err != nil {
 		return nil, err
 	}
@@ -141,7 +145,16 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if dim := d.int(); !d.failed() && dim != p.dim {
 		return nil, fmt.Errorf("%w: %d columns, the model has %d", ErrState, dim, p.dim)
 	}
-	if err := p.restoreModel(d); err != nil {
+	width := d.int()
+	p.freed = d.uvarint()
+	if !d.failed() && (width < 1 || width > p.dim) {
+		return nil, fmt.Errorf("%w: width %d, the model has at most %d columns", ErrState, width, p.dim)
+	}
+	if d.failed() {
+		return nil, d.err()
+	}
+	p.watch.resize(width)
+	if err := p.restoreModel(d, width); err != nil {
 		return nil, err
 	}
 	p.restoreCounters(d)
@@ -165,7 +178,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	return p, nil
 }
 
-func (p *Pipeline) restoreModel(d dec) error {
+func (p *Pipeline) restoreModel(d dec, width int) error {
 	lb := d.bytes()
 	if d.failed() {
 		return d.err()
@@ -174,8 +187,9 @@ func (p *Pipeline) restoreModel(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: ladder: %v", ErrState, err)
 	}
-	if lad.Features() != p.dim || lad.Size() != p.ladder.Size() {
-		return fmt.Errorf("%w: ladder of %d×%d, the model needs %d×%d", ErrState, lad.Size(), lad.Features(), p.ladder.Size(), p.dim)
+	if lad.Features() != width || lad.MaxFeatures() != p.dim || lad.Size() != p.ladder.Size() {
+		return fmt.Errorf("%w: ladder of %d×%d (at most %d wide), the model needs %d×%d (at most %d)", ErrState,
+			lad.Size(), lad.Features(), lad.MaxFeatures(), p.ladder.Size(), width, p.dim)
 	}
 	p.ladder = lad
 	if has := d.bool(); has != (p.hold != nil) {
@@ -190,8 +204,8 @@ func (p *Pipeline) restoreModel(d dec) error {
 		if err := h.UnmarshalBinary(hb); err != nil {
 			return fmt.Errorf("%w: held-out ring: %v", ErrState, err)
 		}
-		if h.Features() != p.dim {
-			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), p.dim)
+		if h.Features() != width {
+			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), width)
 		}
 		p.hold = h
 	}
