@@ -32,8 +32,8 @@ import (
 //     (record.ValidName), the store takes it and the PMML writer writes
 //     well-formed XML for it;
 //   - publication never stops for good: after the fuzzer's records, a run
-//     of good records (three windows of them) leads to a new published
-//     version and a forced publication succeeds.
+//     of good records (fuzzRecovery) leads to a new published version and
+//     a forced publication succeeds.
 //
 // The seed corpus is in testdata/fuzz/FuzzPipeline (the hostile kinds:
 // empty, huge and surrogate names, 1e308, NaN, deep nesting, duplicate keys,
@@ -41,6 +41,7 @@ import (
 // `go test -run '^$' -fuzz '^FuzzPipeline$' ./daemon/pipeline/` explores.
 func FuzzPipeline(f *testing.F) {
 	models := fuzzModels(f)
+	warm := make([]*fuzzWarm, len(models))
 	g := rand.New(rand.NewPCG(3, 4))
 	for i := range 8 {
 		var b []byte
@@ -50,7 +51,11 @@ func FuzzPipeline(f *testing.F) {
 		f.Add(uint8(i), b)
 	}
 	f.Fuzz(func(t *testing.T, mode uint8, data []byte) {
-		fz := newFuzzRun(t, &models[int(mode)%len(models)])
+		i := int(mode) % len(models)
+		if warm[i] == nil { // one warm-up per model, restored for every input
+			warm[i] = warmUp(t, &models[i])
+		}
+		fz := warm[i].run(t)
 		for n, line := range bytes.Split(data, []byte{'\n'}) {
 			if n == fuzzMaxRecords {
 				break
@@ -62,11 +67,16 @@ func FuzzPipeline(f *testing.F) {
 }
 
 // fuzzMaxRecords bounds the records of one fuzz input.
-const fuzzMaxRecords = 64
+const fuzzMaxRecords = 32
 
-// fuzzWindow is the train window of the fuzz models: small, so a run of
-// good records replaces every record the fuzzer sent.
-const fuzzWindow = 40
+// fuzzWindow is the train window of the fuzz models: small, so a short run
+// of good records replaces every record the fuzzer sent.
+const fuzzWindow = 20
+
+// fuzzRecovery is the run of good records after the fuzzer's: with every
+// 5th held out, 64 go to the train window (three windows) and 16 to the
+// held-out ring of 10.
+const fuzzRecovery = 80
 
 // fuzzModels returns the validated model configurations the fuzz target
 // picks from: squared and logistic, learned and fixed features, impute and
@@ -126,33 +136,63 @@ type fuzzRun struct {
 	msg      []byte
 }
 
-// newFuzzRun returns m's pipeline warmed up with good records until it has
-// published a version.
-func newFuzzRun(t *testing.T, m *config.Model) *fuzzRun {
+// fuzzWarm is a model's pipeline after the warm-up, saved: every fuzz
+// input starts from it, restored bit for bit (a warm-up per input would
+// cost more than the input).
+type fuzzWarm struct {
+	m     *config.Model
+	state []byte
+	names []string
+	now   time.Time
+}
+
+// warmUp feeds m's fresh pipeline good records until it has published a
+// version, and saves it.
+func warmUp(t *testing.T, m *config.Model) *fuzzWarm {
 	p, err := New(Options{Model: m})
 	if err != nil {
 		t.Fatal(err)
 	}
+	fz := newFuzzRun(t, m, p, nil, time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC))
+	for range 2 * fuzzWindow {
+		fz.good()
+	}
+	if p.Version() == 0 {
+		t.Fatal("no version published after the warm-up")
+	}
+	b, err := p.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return &fuzzWarm{m: m, state: b, names: slices.Clone(fz.dec.Names()), now: fz.now}
+}
+
+// run returns a fuzz run on a restored copy of the warm pipeline.
+func (w *fuzzWarm) run(t *testing.T) *fuzzRun {
+	p, err := Restore(Options{Model: w.m}, w.state)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return newFuzzRun(t, w.m, p, w.names, w.now)
+}
+
+// newFuzzRun returns a run on p, whose decoder knows names.
+func newFuzzRun(t *testing.T, m *config.Model, p *Pipeline, names []string, now time.Time) *fuzzRun {
 	fz := &fuzzRun{
 		t: t, m: m, p: p,
 		dec: record.NewDecoder(&record.DecoderOptions{
 			Features:    m.Features,
+			Learned:     names[min(len(m.Features), len(names)):],
 			MaxFeatures: p.Width(),
 			Logistic:    m.Logistic(),
 			Missing:     m.Missing,
 		}),
 		store: sink.NewStore(),
 		rec:   record.Record{X: make([]float64, 0, p.Width())},
-		now:   time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
+		now:   now,
 		rng:   rand.New(rand.NewPCG(1, 2)),
 	}
 	fz.store.Register(m.Name)
-	for range 2 * fuzzWindow {
-		fz.good()
-	}
-	if fz.p.Version() == 0 {
-		t.Fatal("no version published after the warm-up")
-	}
 	return fz
 }
 
@@ -323,22 +363,22 @@ func finiteJSON(b []byte) error {
 	return walk(v)
 }
 
-// recover feeds three windows of good records, publishing after each as
+// recover feeds fuzzRecovery good records, publishing after each as
 // the worker's tick does, and requires a new version and a forced
 // publication that succeeds.
 func (fz *fuzzRun) recover() {
 	t := fz.t
 	v0 := fz.p.Version()
-	for range 3 * fuzzWindow {
+	for range fuzzRecovery {
 		fz.good()
 	}
 	fz.now = fz.now.Add(time.Second)
 	s, err := fz.p.Publish(fz.now, fz.rejected, true)
 	if err != nil || s == nil {
-		t.Fatalf("forced publication after %d good records: %v, %v", 3*fuzzWindow, s, err)
+		t.Fatalf("forced publication after %d good records: %v, %v", fuzzRecovery, s, err)
 	}
 	fz.checkSnapshot(s, nil)
 	if fz.p.Version() <= v0+1 {
-		t.Fatalf("no version published by %d good records (version %d before them, %d after the forced one)", 3*fuzzWindow, v0, fz.p.Version())
+		t.Fatalf("no version published by %d good records (version %d before them, %d after the forced one)", fuzzRecovery, v0, fz.p.Version())
 	}
 }
