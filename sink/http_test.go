@@ -232,7 +232,7 @@ func TestHTTPEndpoints(t *testing.T) {
 		{name: "readyz", method: "GET", path: "/readyz", status: 200, want: []string{`"status":"ready"`}},
 		{name: "metrics", method: "GET", path: "/metrics", status: 200, want: []string{`lariat_records_accepted_total{model="lin"} 5`}},
 		{name: "status page", method: "GET", path: "/", status: 200, hdr: map[string]string{"Content-Type": "text/html; charset=utf-8"}},
-		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: /v2/models"`}},
+		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: \"/v2/models\""`}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			var body io.Reader
