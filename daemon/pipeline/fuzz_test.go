@@ -10,6 +10,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -21,8 +22,10 @@ import (
 // FuzzPipeline drives one model's whole path the way the daemon's worker
 // does (the wire decoder → Pipeline.Apply → Publish and Document → the
 // store's JSON and the PMML writer) with records the fuzzer writes, one per
-// line of data, on a model warmed up with good records. mode picks the
-// model configuration (fuzzModels). Invariants:
+// line of data, on a model warmed up with good records; with the high bit of
+// mode set, data is not JSON but spells records from tables of hostile parts
+// (spell), which reaches the pipeline far more often than mutated JSON.
+// mode picks the model configuration (fuzzModels). Invariants:
 //
 //   - nothing panics;
 //   - a record the decoder or the pipeline rejects has a reason token and
@@ -49,6 +52,11 @@ func FuzzPipeline(f *testing.F) {
 			b = fmt.Appendf(b, `{"y":%d,"x":{"a":%.3f,"b":%.3f,"n%d":%.3f}}`+"\n", (i+j)%2, g.NormFloat64(), g.NormFloat64(), j, g.NormFloat64())
 		}
 		f.Add(uint8(i), b)
+		spelled := make([]byte, 64)
+		for j := range spelled {
+			spelled[j] = byte(g.IntN(256))
+		}
+		f.Add(uint8(0x80|i), spelled)
 	}
 	f.Fuzz(func(t *testing.T, mode uint8, data []byte) {
 		i := int(mode) % len(models)
@@ -56,14 +64,88 @@ func FuzzPipeline(f *testing.F) {
 			warm[i] = warmUp(t, &models[i])
 		}
 		fz := warm[i].run(t)
-		for n, line := range bytes.Split(data, []byte{'\n'}) {
-			if n == fuzzMaxRecords {
-				break
+		if mode&0x80 != 0 { // data spells records from tables of hostile parts
+			for n, msg := 0, []byte(nil); len(data) > 0 && n < fuzzMaxRecords; n++ {
+				msg, data = spell(msg[:0], data)
+				fz.hostile(msg)
 			}
-			fz.hostile(line)
+		} else { // data is records, one per line
+			for n, line := range bytes.Split(data, []byte{'\n'}) {
+				if n == fuzzMaxRecords {
+					break
+				}
+				fz.hostile(line)
+			}
 		}
 		fz.recover()
 	})
+}
+
+// Parts of the records spell writes: names, values, labels, weights and
+// times, from the ordinary to the hostile (empty, control, lone surrogate
+// and over-long names; values at and past every limit; numbers as strings,
+// booleans, null; far-future and far-past times).
+var (
+	spellNames = []string{`a`, `b`, `c`, `d`, `e`, `f`, `g`, `h`, `i`, ``, `\u0001`, `\ud800`, `\udc00x`, `\ud83d\ude00`,
+		`a\u0000`, strings.Repeat("n", 300), strings.Repeat("m", 256), `y`, `x`, `\"`}
+	spellValues = []string{`0`, `1`, `-1`, `0.5`, `-0`, `1e29`, `-1e29`, `1e50`, `1e60`, `1e308`, `-1e308`, `5e-324`, `1e-300`,
+		`1e400`, `null`, `"1"`, `true`, `123456789012345678901234567890`, `[1]`, `{}`}
+	spellLabels  = []string{`0`, `1`, `2`, `-1`, `0.5`, `1e40`, `1e308`, `-1e308`, `true`, `false`, `null`, `"1"`, `1e400`}
+	spellWeights = []string{`1`, `0`, `-1`, `0.5`, `1e308`, `5e-324`, `1e-300`, `"1"`, `null`, `1e50`}
+	spellTimes   = []string{`0`, `-1`, `1772600000000`, `253402300799999`, `-9223372036854775808`, `"9999-12-31T23:59:59Z"`,
+		`"2026-03-04T05:06:07Z"`, `"2026-03-04T05:16:07Z"`, `"0001-01-01T00:00:00Z"`, `"yesterday"`, `null`}
+)
+
+// spell appends to msg one record spelled by the leading bytes of data and
+// returns it with the rest of data: a byte of flags (label, weight, time,
+// the "v" form), the number of channels, then a name and a value byte per
+// channel, then the label, weight and time bytes that the flags ask for.
+func spell(msg, data []byte) ([]byte, []byte) {
+	next := func() int {
+		if len(data) == 0 {
+			return 0
+		}
+		b := data[0]
+		data = data[1:]
+		return int(b)
+	}
+	flags, n := next(), next()%8
+	msg = append(msg, '{')
+	if flags&8 != 0 {
+		msg = append(msg, `"v":[`...)
+		for j := range n {
+			if j > 0 {
+				msg = append(msg, ',')
+			}
+			msg = append(msg, spellValues[next()%len(spellValues)]...)
+		}
+		msg = append(msg, ']')
+	} else {
+		msg = append(msg, `"x":{`...)
+		for j := range n {
+			if j > 0 {
+				msg = append(msg, ',')
+			}
+			msg = append(msg, '"')
+			msg = append(msg, spellNames[next()%len(spellNames)]...)
+			msg = append(msg, `":`...)
+			msg = append(msg, spellValues[next()%len(spellValues)]...)
+		}
+		msg = append(msg, '}')
+	}
+	if flags&1 == 0 {
+		msg = append(msg, `,"y":`...)
+		msg = append(msg, spellLabels[next()%len(spellLabels)]...)
+	}
+	if flags&2 != 0 {
+		msg = append(msg, `,"w":`...)
+		msg = append(msg, spellWeights[next()%len(spellWeights)]...)
+	}
+	if flags&4 != 0 {
+		msg = append(msg, `,"t":`...)
+		msg = append(msg, spellTimes[next()%len(spellTimes)]...)
+	}
+	return append(msg, '}'), data
 }
 
 // fuzzMaxRecords bounds the records of one fuzz input.

@@ -205,7 +205,6 @@ func (p *Pipeline) Width() int { return p.dim }
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
-	p.at.names = names
 	if len(rec.X) > p.dim {
 		return st, &record.Error{Reason: record.ReasonDimension,
 			Detail: fmt.Sprintf("record has %d columns, the model %d", len(rec.X), p.dim)}
@@ -232,6 +231,9 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		p.held++
 	}
 	st.HeldOut = heldOut
+	// The names move only with an applied record: a refused one that
+	// brought a new name leaves the state as it was.
+	p.at.names = names
 	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
 	p.collect()
