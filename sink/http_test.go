@@ -8,6 +8,7 @@ import (
 	"math"
 	"net/http"
 	"net/http/httptest"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -193,6 +194,9 @@ func TestHTTPEndpoints(t *testing.T) {
 				}
 				if p.Eta != linEta || p.Probability != nil || len(p.Contributions) != 2 || p.Contributions["a"] != 0.25*11 {
 					t.Errorf("prediction %+v, want eta %v", p, linEta)
+				}
+				if !slices.Equal(p.Unknown, []string{"unknown"}) || !slices.Equal(p.Missing, []string{"b"}) {
+					t.Errorf("unknown %q, missing %q; want [unknown] and [b]", p.Unknown, p.Missing)
 				}
 			}},
 		{name: "predict logistic", method: "POST", path: "/v1/models/clf/predict", body: `{"x":{"a":100,"b":null},"y":1,"t":"2026-03-04T05:06:07Z"}`, status: 200,
