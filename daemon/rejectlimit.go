@@ -14,7 +14,7 @@ import (
 // counted under its reason (lariat_records_rejected_total); the ones not
 // republished are counted in lariat_rejects_not_republished_total. With the
 // body cut to record.DefaultMaxBytes, one model republishes at most
-// rejectRate × 64 KiB = 6.4 MB a second.
+// rejectRate × 64 KiB = 6.4 MiB a second after the burst.
 const (
 	rejectRate  = 100 // republished rejects a second, per model, sustained
 	rejectBurst = 200 // republished rejects in a burst, per model
