@@ -60,6 +60,11 @@ func FuzzPipeline(f *testing.F) {
 	}
 	f.Fuzz(func(t *testing.T, mode uint8, data []byte) {
 		i := int(mode) % len(models)
+		if testing.Short() && i >= 2 {
+			// -short (the race run of the README command): the seeds of the
+			// first two models only; go test without -short runs them all.
+			t.Skip("-short: seeds of the lin and logit models only")
+		}
 		if warm[i] == nil { // one warm-up per model, restored for every input
 			warm[i] = warmUp(t, &models[i])
 		}
