@@ -104,8 +104,15 @@ func TestRejects(t *testing.T) {
 				if got := msg.Header.Get(sink.HeaderSubject); got != tc.subject {
 					t.Errorf("subject header %q, want %q", got, tc.subject)
 				}
-				if string(msg.Data) != tc.body {
-					t.Errorf("body changed: %d bytes, want %d", len(msg.Data), len(tc.body))
+				want := tc.body
+				if len(want) > record.DefaultMaxBytes { // cut, with the original length in a header
+					want = want[:record.DefaultMaxBytes]
+					if got := msg.Header.Get(sink.HeaderTruncated); got != strconv.Itoa(len(tc.body)) {
+						t.Errorf("truncated header %q, want %d", got, len(tc.body))
+					}
+				}
+				if string(msg.Data) != want {
+					t.Errorf("body changed: %d bytes, want %d", len(msg.Data), len(want))
 				}
 			case <-time.After(5 * time.Second):
 				t.Fatal("no reject message")

@@ -85,6 +85,7 @@ type worker struct {
 
 	// shared
 	rejected     atomic.Uint64
+	rejects      *rejectLimiter                    // republication of rejected records
 	versionFloor atomic.Uint64                     // last version found in the KV bucket at start
 	snap         atomic.Pointer[pipeline.Snapshot] // latest published model, for predictions
 }
@@ -113,6 +114,7 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		pipe:      pipe,
 		popts:     popts,
 		idleSteps: m.Learner.IdleSteps,
+		rejects:   newRejectLimiter(d.rejectRate, d.rejectBurst),
 	}
 	w.dec = w.newDecoder(nil)
 	// Each item's record starts with room for the listed features (at least

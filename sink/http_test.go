@@ -8,6 +8,7 @@ import (
 	"math"
 	"net/http"
 	"net/http/httptest"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -194,6 +195,9 @@ func TestHTTPEndpoints(t *testing.T) {
 				if p.Eta != linEta || p.Probability != nil || len(p.Contributions) != 2 || p.Contributions["a"] != 0.25*11 {
 					t.Errorf("prediction %+v, want eta %v", p, linEta)
 				}
+				if !slices.Equal(p.Unknown, []string{"unknown"}) || !slices.Equal(p.Missing, []string{"b"}) {
+					t.Errorf("unknown %q, missing %q; want [unknown] and [b]", p.Unknown, p.Missing)
+				}
 			}},
 		{name: "predict logistic", method: "POST", path: "/v1/models/clf/predict", body: `{"x":{"a":100,"b":null},"y":1,"t":"2026-03-04T05:06:07Z"}`, status: 200,
 			check: func(t *testing.T, b []byte) {
@@ -232,7 +236,7 @@ func TestHTTPEndpoints(t *testing.T) {
 		{name: "readyz", method: "GET", path: "/readyz", status: 200, want: []string{`"status":"ready"`}},
 		{name: "metrics", method: "GET", path: "/metrics", status: 200, want: []string{`lariat_records_accepted_total{model="lin"} 5`}},
 		{name: "status page", method: "GET", path: "/", status: 200, hdr: map[string]string{"Content-Type": "text/html; charset=utf-8"}},
-		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: /v2/models"`}},
+		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: \"/v2/models\""`}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			var body io.Reader

@@ -26,6 +26,7 @@ func TestMetricsExposition(t *testing.T) {
 	mm.UpdateSeconds.Observe(0.5)
 	mm.QueueDropped.Inc()
 	mm.SlowConsumerDrops.Add(4)
+	mm.NotRepublished.Add(2)
 	mm.Alert(KindData)
 	mm.Alert("nonsense")
 	mm.QueueDepthFunc(func() int { return 17 })
@@ -93,6 +94,9 @@ lariat_records_accepted_total{model="pump"} 3
 # TYPE lariat_records_rejected_total counter
 lariat_records_rejected_total{model="pump",reason="label"} 1
 lariat_records_rejected_total{model="pump",reason="malformed"} 2
+# HELP lariat_rejects_not_republished_total Rejected records not republished on the reject subject (the model's republish rate was exceeded, or the publisher was not up); each is still counted in lariat_records_rejected_total.
+# TYPE lariat_rejects_not_republished_total counter
+lariat_rejects_not_republished_total{model="pump"} 2
 # HELP lariat_update_duration_seconds Time to apply one record to a model's ladder.
 # TYPE lariat_update_duration_seconds histogram
 lariat_update_duration_seconds_bucket{model="pump",le="1e-06"} 0

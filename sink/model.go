@@ -289,7 +289,7 @@ func checkModel(in *DocInput) error {
 	seen := make(map[string]bool, len(in.Features))
 	for _, name := range in.Features {
 		if name == "" || seen[name] {
-			return fmt.Errorf("%w: %q", ErrFeatureNames, name)
+			return fmt.Errorf("%w: %s", ErrFeatureNames, QuoteInput(name))
 		}
 		seen[name] = true
 	}

@@ -248,6 +248,9 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		p.held++
 	}
 	st.HeldOut = heldOut
+	// The names move only with an applied record: a refused one that
+	// brought a new name leaves the state as it was.
+	p.at.names = names
 	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
 	p.watch.rereference()
