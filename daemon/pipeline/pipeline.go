@@ -36,6 +36,10 @@ type Options struct {
 	// model's name (the daemon's choice, so a model's bits do not depend on
 	// its position in the configuration).
 	Seed uint64
+	// Unpenalized fits λ = 0, one learner and no ladder (lariat fit
+	// --lambda 0; a configuration cannot ask for it: its lambda 0 means
+	// "choose λ"). The model's Lambda must be 0.
+	Unpenalized bool
 }
 
 // Pipeline is everything one model knows: the ladder, the held-out ring and
@@ -106,6 +110,11 @@ type Step struct {
 	Retuned bool
 	// Moved is set when the retune moved λ*.
 	Moved bool
+	// Extended is the number of members the retune moved the ladder's grid
+	// down by, because the held-out minimum sat at its smallest λ (< 0: back
+	// up; online.Ladder.Extend); the new members are scored at the next
+	// retune.
+	Extended int
 	// ROC is the chosen member's new ROC table on the held-out ring
 	// (logistic models, after a retune); nil otherwise.
 	ROC []online.ROCPoint
@@ -148,18 +157,19 @@ func New(o Options) (*Pipeline, error) {
 		seed = h.Sum64()
 	}
 	lad, err := online.NewLadder(&online.Options{
-		Loss:     loss,
-		Penalty:  &online.Penalty{Mix: m.PenaltyMix()},
-		Features: dim,
-		Window:   m.Window.Records,
-		Span:     m.Window.Span.Std(),
-		Size:     m.Ladder.Size,
-		Floor:    m.Ladder.Floor,
-		Lambda:   m.Lambda,
-		Steps:    m.Learner.Steps,
-		Seed:     seed,
-		Learner:  m.Learner.Kind,
-		HalfLife: m.Learner.HalfLife,
+		Loss:        loss,
+		Penalty:     &online.Penalty{Mix: m.PenaltyMix()},
+		Features:    dim,
+		Window:      m.Window.Records,
+		Span:        m.Window.Span.Std(),
+		Size:        m.Ladder.Size,
+		Floor:       m.Ladder.Floor,
+		Lambda:      m.Lambda,
+		Unpenalized: o.Unpenalized,
+		Steps:       m.Learner.Steps,
+		Seed:        seed,
+		Learner:     m.Learner.Kind,
+		HalfLife:    m.Learner.HalfLife,
 	})
 	if err != nil {
 		return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
@@ -296,6 +306,11 @@ func (p *Pipeline) retune() {
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
 	idx, changed := p.chooser.Update(p.scores)
 	p.step.Retuned, p.step.Moved = true, changed
+	if k := p.ladder.Extend(online.Choose(p.scores, online.RuleMin), idx); k != 0 {
+		p.shiftScores(k)
+		idx = p.chooser.Current()
+		p.step.Extended = k
+	}
 	if idx >= 0 && p.watch.warm {
 		m := p.ladder.Model(idx)
 		p.watch.retuned(m.Standardized, p.ladder.Lambda(idx), p.gridStep())
@@ -304,6 +319,26 @@ func (p *Pipeline) retune() {
 	if p.tuner != nil {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
+	}
+}
+
+// shiftScores re-indexes the chooser and the last scores after the grid
+// moved by k members (member i is now the old member i+k): a score keeps
+// its member, and a member that has not been scored yet has NaN metrics
+// until the next retune.
+func (p *Pipeline) shiftScores(k int) {
+	n := p.ladder.Size()
+	p.chooser.Shift(-k, n)
+	old := slices.Clone(p.scores)
+	for i := range p.scores {
+		j := i + k
+		if j >= 0 && j < len(old) {
+			p.scores[i] = old[j]
+		} else {
+			nan := math.NaN()
+			p.scores[i] = online.Score{Loss: nan, SE: nan, AUC: nan, Brier: nan, LogLoss: nan, RMSE: nan, MAE: nan, R2: nan}
+		}
+		p.scores[i].Index, p.scores[i].Lambda, p.scores[i].Nonzero = i, p.ladder.Lambda(i), p.ladder.Nonzero(i)
 	}
 }
 
@@ -409,6 +444,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	}
 	m := p.ladder.Model(cur)
 	trim(&m, len(names))
+	grid := p.ladder.Grid()
 	var th *sink.Threshold
 	if p.tuner != nil {
 		th = p.tuner.threshold()
@@ -418,6 +454,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 		Version:   version,
 		Features:  names,
 		Model:     &m,
+		Grid:      &grid,
 		Scores:    p.ladderNow(),
 		Holdout:   p.HeldOutLen(),
 		Applied:   p.seq,
