@@ -433,6 +433,21 @@ func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, e
 	return lambda, nil
 }
 
+// describeGrid says in words how the ladder's grid was placed.
+func describeGrid(g *sink.GridSpec) string {
+	var b strings.Builder
+	switch g.Anchor {
+	case online.AnchorDF:
+		fmt.Fprintf(&b, "ridge degrees of freedom %g to %g (rank %d): λ %.6g to %.6g", g.DF[0], g.DF[1], g.Rank, float64(g.Top), float64(g.Bottom))
+	default:
+		fmt.Fprintf(&b, "λ_max to %.6g", float64(g.Bottom))
+	}
+	if g.Extended > 0 {
+		fmt.Fprintf(&b, ", extended %d steps down (at most %d)", g.Extended, g.MaxExtended)
+	}
+	return b.String()
+}
+
 // writeFitTable writes doc as aligned text: a header block, the nonzero
 // coefficients by decreasing |standardized|, and with --ladder the path.
 func writeFitTable(w io.Writer, d *fitDoc) error {
@@ -442,7 +457,11 @@ func writeFitTable(w io.Writer, d *fitDoc) error {
 	if len(d.Skipped) > 0 {
 		fmt.Fprintf(tw, "skipped\t%s (no numbers)\n", strings.Join(d.Skipped, ", "))
 	}
-	fmt.Fprintf(tw, "model\t%s loss, %s (α = %g), λ = %.6g, λ_max = %.6g\n", d.Loss, d.Penalty.Kind, d.Penalty.Mix, d.Penalty.Lambda, d.LambdaMax)
+	if d.Unpenalized {
+		fmt.Fprintf(tw, "model\t%s loss, unpenalized (λ = 0)\n", d.Loss)
+	} else {
+		fmt.Fprintf(tw, "model\t%s loss, %s (α = %g), λ = %.6g, λ_max = %.6g\n", d.Loss, d.Penalty.Kind, d.Penalty.Mix, d.Penalty.Lambda, d.LambdaMax)
+	}
 	if sel := d.Selection; sel != nil {
 		if sel.Rule == "fraction" {
 			fmt.Fprintf(tw, "λ chosen\t%g·λ_max (too few rows to hold any out)\n", fitFraction)
@@ -468,6 +487,9 @@ func writeFitTable(w io.Writer, d *fitDoc) error {
 	}
 	if len(d.Ladder) > 0 {
 		fmt.Fprintf(tw, "\nladder on %d training rows, λ_max = %.6g\n", d.Selection.Train, d.Selection.LambdaMax)
+		if g := d.Selection.Grid; g != nil {
+			fmt.Fprintf(tw, "grid\t%s\n", describeGrid(g))
+		}
 		fmt.Fprintln(tw, "index\tlambda\tnonzero\theld-out loss\tse\tkkt")
 		for _, r := range d.Ladder {
 			mark := ""

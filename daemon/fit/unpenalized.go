@@ -2,6 +2,7 @@ package fit
 
 import (
 	"fmt"
+	"math"
 
 	"lariat/online"
 )
@@ -34,9 +35,10 @@ func (s *fitSpec) fitUnpenalized(t *table, seed uint64, doc *fitDoc) error {
 	if s.loss.Domain() == online.ZeroOne {
 		// Separated classes never converge: look after a short budget.
 		first := min(budget, separationEpochs)
-		if !p.Converge(s.tol, first) && separated(l, t) {
-			return &Error{File: doc.Input, Msg: "cannot fit λ = 0: a hyperplane of the features separates the two classes, " +
-				"so the unpenalized logistic fit does not exist (its coefficients grow without bound); give --lambda > 0 or leave it out to choose λ"}
+		if !p.Converge(s.tol, first) {
+			if err := diverged(l, t, doc.Input); err != nil {
+				return err
+			}
 		}
 		budget -= first
 	}
@@ -71,15 +73,34 @@ func identifiable(l *online.Ladder, file string) error {
 		"so the unpenalized fit is not unique; give --lambda > 0 or leave it out to choose λ", r, vary)}
 }
 
-// separated reports whether member 0 of l classifies every row of t
-// strictly correctly (η > 0 for label 1, η < 0 for label 0): the classes
-// are then separated by a hyperplane.
-func separated(l *online.Ladder, t *table) bool {
+// saturated is the |η| beyond which a logistic probability is 1 to within
+// 10⁻¹⁵ (σ(35) = 1 − 6·10⁻¹⁶): a row there contributes nothing the
+// arithmetic can see to the gradient.
+const saturated = 35
+
+// diverged returns an *Error when the unconverged unpenalized logistic fit
+// in l shows that its maximum does not exist: every row strictly on its
+// own class's side (complete separation, the fit's hyperplane is the
+// certificate), or some row's |η| beyond saturated while the optimality
+// conditions still fail (the coefficients growing without bound, as they
+// do under quasi-complete separation; a fit that reaches its tolerance is
+// never refused). Albert & Anderson (1984) for both cases.
+func diverged(l *online.Ladder, t *table, file string) error {
+	all, top := true, 0.0
 	for i := range t.rows() {
 		eta := l.Eta(0, t.row(i))
 		if (t.y[i] == 1) != (eta > 0) || eta == 0 {
-			return false
+			all = false
 		}
+		top = max(top, math.Abs(eta))
 	}
-	return true
+	const tail = "so the unpenalized logistic fit does not exist (its coefficients grow without bound); give --lambda > 0 or leave it out to choose λ"
+	switch {
+	case all:
+		return &Error{File: file, Msg: "cannot fit λ = 0: a hyperplane of the features separates the two classes, " + tail}
+	case top > saturated:
+		return &Error{File: file, Msg: fmt.Sprintf("cannot fit λ = 0: after %d epochs the fit is not converged and a row has |η| = %.3g "+
+			"(probability 1 to 15 digits): the classes are separated or nearly so, %s", separationEpochs, top, tail)}
+	}
+	return nil
 }
