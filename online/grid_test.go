@@ -102,18 +102,18 @@ func TestExtend(t *testing.T) {
 	for _, st := range []struct {
 		best, chosen, want, ext int
 	}{
-		{5, 5, 0, 0},    // interior minimum
-		{11, 2, 0, 0},   // the chosen member would fall off
-		{11, 11, 3, 3},  // down
-		{11, 3, 3, 6},   // down (chosen 3 stays at 0)
-		{1, 4, 0, 6},    // chosen not near the top
-		{2, 0, -3, 3},   // up
-		{0, 0, -3, 0},   // up to the anchored grid
-		{0, 0, 0, 0},    // not extended: nothing to undo
-		{-1, -1, 0, 0},  // no scores
-		{11, -1, 0, 0},  // no choice yet
-		{11, 11, 3, 3},  // down again
-		{11, 10, 3, 6},  // and again
+		{5, 5, 0, 0},   // interior minimum
+		{11, 2, 0, 0},  // the chosen member would fall off
+		{11, 11, 3, 3}, // down
+		{11, 3, 3, 6},  // down (chosen 3 stays at 0)
+		{1, 4, 0, 6},   // chosen not near the top
+		{2, 0, -3, 3},  // up
+		{0, 0, -3, 0},  // up to the anchored grid
+		{0, 0, 0, 0},   // not extended: nothing to undo
+		{-1, -1, 0, 0}, // no scores
+		{11, -1, 0, 0}, // no choice yet
+		{11, 11, 3, 3}, // down again
+		{11, 10, 3, 6}, // and again
 	} {
 		_, before := l.members[min(11, st.want+5)].params()
 		old := append([]float64(nil), before...)
