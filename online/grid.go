@@ -88,14 +88,28 @@ type gridState struct {
 // symmetric rank-k update.
 const gramBlock = 64
 
+// spectrumRows is the least number of window records (at least 8d) the
+// ridge anchor's Gram matrix is formed from; a longer window is sampled at
+// an even stride. The sample's eigenvalues spread around the window's
+// (Marchenko–Pastur: by about √(d/m) relative for m rows), which moves the
+// grid's ends by a fraction of a grid step; the members are still fitted
+// on the whole window, and the extension corrects a bottom set too high.
+const spectrumRows = 2000
+
+// spectrumEvery is the number of window lengths of records between two
+// spectra of the ridge anchor (as the learner's scheduled resync).
+const spectrumEvery = 4
+
 // gramLearner is a learner that can form the standardized Gram matrix of
 // its window: the SAGA learner. The ridge grid of a learner without one
 // assumes uncorrelated features.
 type gramLearner interface {
 	// gram writes C = (1/W) Σ w_i x̃_i x̃_iᵀ (upper triangle, d×d row
-	// major) into c, x̃ on the working scale or with exact on the window's
-	// exact running scale, using block (gramBlock·d) as scratch, and
-	// reports whether the window had any weight.
+	// major) into c, using block (gramBlock·d) as scratch, and reports
+	// whether the window had any weight. With exact, over every record of
+	// the window and x̃ on its exact running scale; else over every s-th
+	// record, s = ⌈n/max(spectrumRows, 8d)⌉ (W their weight), on the
+	// working scale.
 	gram(c, block []float64, exact bool) bool
 }
 
@@ -132,19 +146,20 @@ func (l *Ladder) anchorOf(lmax float64) (top, ratio float64) {
 
 // ridgeAnchor returns the ridge grid's top and ratio: λ_0 with
 // df(λ_0) = 0.5 and λ_{K−1} with df(λ_{K−1}) = rank − 0.5, from the
-// eigenvalues of the window's standardized Gram matrix. The spectrum is
-// recomputed when the window has turned over since the last one (every
-// max(32, n) records seen, n its length then, so about log₂ n times while
-// the window fills and once per window length after that), and at Shrink
-// and Converge; it costs O(n·d²) for the Gram matrix and O(d³) for the
-// eigenvalues (LAPACK dsyev, gonum v0.17.0), about d²/2 multiply-adds per
-// record seen. The grid's λ do not depend on the label's scale, only on
-// the correlations of the features, so between spectra the grid stays put
-// while λ_max moves. Before any spectrum, and for the decay learner,
-// uncorrelated features are assumed (every e_j = 1).
+// eigenvalues of the window's standardized Gram matrix (formed from at
+// most max(spectrumRows, 8d) of its records, see gram). The spectrum is
+// recomputed when spectrumEvery window lengths of records have arrived
+// since the last one (every max(32, 4n) records seen, n the window length
+// then: a few times while the window fills, then as often as the
+// learner's scheduled resync), and at Shrink and Converge; it costs
+// O(m·d²) for the Gram matrix of m records and O(d³) for the eigenvalues
+// (LAPACK dsyev, gonum v0.17.0). The grid's λ do not depend on the label's
+// scale, only on the correlations of the features, so between spectra the
+// grid stays put while λ_max moves. Before any spectrum, and for the decay
+// learner, uncorrelated features are assumed (every e_j = 1).
 func (l *Ladder) ridgeAnchor() (top, ratio float64) {
 	g := &l.grid
-	if l.anchor > 0 && !g.respec && l.seen-g.specAt < uint64(max(refreshEvery, g.specLen)) {
+	if l.anchor > 0 && !g.respec && l.seen-g.specAt < uint64(max(refreshEvery, spectrumEvery*g.specLen)) {
 		return l.anchor, g.ratio
 	}
 	_, windowed := l.lrn.(gramLearner)
@@ -369,9 +384,9 @@ func (l *Ladder) Spectrum() []float64 {
 }
 
 // gram is gramLearner.gram for the SAGA learner: the window's rows in
-// window order (a pending admission's row from the ladder's buffer),
-// standardized with the working scale and weighted by √w, folded into c by
-// blocks of gramBlock rows with a symmetric rank-k update.
+// window order (all, or every stride-th; a pending admission's row from
+// the ladder's buffer), standardized and weighted by √w, folded into c by
+// blocks of gramBlock rows with a symmetric rank-k update (BLAS dsyrk).
 func (s *sagaLearner) gram(c, block []float64, exact bool) bool {
 	ts := s.ts
 	d := ts.d
@@ -387,15 +402,24 @@ func (s *sagaLearner) gram(c, block []float64, exact bool) bool {
 			_, inv[j] = ts.sc.scale(j)
 		}
 	}
+	slots := ts.order()
+	stride, w := 1, ts.sc.w
+	if m := max(spectrumRows, 8*d); !exact && len(slots) > m {
+		stride, w = (len(slots)+m-1)/m, 0
+		for i := 0; i < len(slots); i += stride {
+			w += ts.ring.At(i).w
+		}
+	}
 	out := blas64.Symmetric{N: d, Stride: d, Data: c, Uplo: blas.Upper}
 	rows := 0
 	flush := func() {
 		if rows > 0 {
-			blas64.Syrk(blas.Trans, 1/ts.sc.w, blas64.General{Rows: rows, Cols: d, Stride: d, Data: block[:rows*d]}, 1, out)
+			blas64.Syrk(blas.Trans, 1/w, blas64.General{Rows: rows, Cols: d, Stride: d, Data: block[:rows*d]}, 1, out)
 			rows = 0
 		}
 	}
-	for i, sl := range ts.order() {
+	for i := 0; i < len(slots); i += stride {
+		sl := slots[i]
 		x := ts.row(sl)
 		if s.pending && sl == s.pslot {
 			x = s.pend
