@@ -42,3 +42,22 @@ func TestFitFlags(t *testing.T) {
 		})
 	}
 }
+
+// TestDemoFlagsZero: lariat demo refuses a numeric flag given as 0 where 0
+// has no meaning, before it starts anything, instead of running with the
+// default.
+func TestDemoFlagsZero(t *testing.T) {
+	for _, tc := range []struct{ flag, want string }{
+		{"--duration", "--duration 0s: give a positive duration"},
+		{"--every", "--every 0s: the narration period must be positive"},
+		{"--rate", "--rate 0: the plant's records per second must be positive"},
+		{"--seed", "--seed 0: the plant's seed must be >= 1"},
+	} {
+		t.Run(tc.flag, func(t *testing.T) {
+			_, _, err := run(t, "demo", tc.flag, "0", "--data", t.TempDir())
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("err = %v, want %q", err, tc.want)
+			}
+		})
+	}
+}
