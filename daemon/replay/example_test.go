@@ -30,5 +30,5 @@ func Example() {
 	// applied 6000 retunes 30
 	// 3010 performance
 	// 3106 performance
-	// final version 4418 λ index 4
+	// final version 4417 λ index 1
 }
