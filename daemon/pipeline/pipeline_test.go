@@ -268,7 +268,8 @@ func TestPipelineApplyAllocs(t *testing.T) {
 // pipeline with the daemon's default model settings (window 10000, K = 12,
 // 2 steps per record, holdout every 5th, retune every 500, drift watch on)
 // at d = 16 and 64, against the bare ladder's Add on the same records (the
-// baseline, in the same run): the ratio is the price of the policy.
+// baseline, in the same run): the ratio is the price of the policy; and
+// with drift.adapt off (no loss trail of the change-point estimate).
 func BenchmarkPipelineApply(b *testing.B) {
 	for _, d := range []int{16, 64} {
 		m := config.DefaultModel()
@@ -281,22 +282,14 @@ func BenchmarkPipelineApply(b *testing.B) {
 			xs[i] = make([]float64, d)
 			ys[i] = s.next(xs[i])
 		}
-		b.Run("pipeline/d="+strconv.Itoa(d), func(b *testing.B) {
-			h := newHarness(b, m)
-			for i := range 12000 {
-				h.feed(xs[i&4095], ys[i&4095])
-			}
-			rec := record.Record{W: 1}
-			b.ReportAllocs()
-			i := 0
-			for b.Loop() {
-				rec.X, rec.Y = xs[i&4095], ys[i&4095]
-				if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
-					b.Fatal(err)
-				}
-				i++
-			}
-		})
+		off := m
+		off.Drift.Adapt = false // no loss trail: its cost per record is the difference
+		for _, v := range []struct {
+			name string
+			m    config.Model
+		}{{"pipeline", m}, {"pipeline-adapt-off", off}} {
+			benchPipeline(b, v.name+"/d="+strconv.Itoa(d), v.m, xs, ys)
+		}
 		b.Run("ladder/d="+strconv.Itoa(d), func(b *testing.B) {
 			l, err := online.NewLadder(&online.Options{Features: d, Window: m.Window.Records, Seed: 1})
 			if err != nil {
@@ -315,4 +308,25 @@ func BenchmarkPipelineApply(b *testing.B) {
 			}
 		})
 	}
+}
+
+// benchPipeline measures Pipeline.Apply per record for model m after a
+// warm-up of 12,000 records, cycling through xs and ys.
+func benchPipeline(b *testing.B, name string, m config.Model, xs [][]float64, ys []float64) {
+	b.Run(name, func(b *testing.B) {
+		h := newHarness(b, m)
+		for i := range 12000 {
+			h.feed(xs[i&4095], ys[i&4095])
+		}
+		rec := record.Record{W: 1}
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			rec.X, rec.Y = xs[i&4095], ys[i&4095]
+			if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
+				b.Fatal(err)
+			}
+			i++
+		}
+	})
 }

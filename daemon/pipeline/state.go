@@ -13,7 +13,7 @@ import (
 )
 
 // stateFormat is the version of the layout MarshalBinary writes.
-const stateFormat = 1
+const stateFormat = 2
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -31,9 +31,10 @@ func fingerprint(m *config.Model) uint64 {
 // MarshalBinary returns the pipeline's whole state: the ladder (learner
 // state, window, scaler, random generator), the held-out ring, the chooser
 // with its hysteresis, the counters, the feature names, the drift watch
-// (detector, data reference and sample, support streaks, cooldowns), the
-// threshold tuner, the version, the last published document and the stream
-// position. Restore brings it back bit for bit.
+// (detector, loss trail and waiting cut, data reference and sample,
+// support streaks, cooldowns), the threshold tuner, the version, the last
+// published document and the stream position. Restore brings it back bit
+// for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
@@ -77,6 +78,7 @@ func (p *Pipeline) marshalCounters(e enc) {
 	e.uvarint(p.seq)
 	e.uvarint(p.held)
 	e.int(p.sinceRetune)
+	e.bool(p.adopt)
 	e.uvarint(uint64(len(p.scores)))
 	for _, s := range p.scores {
 		e.int(s.Index)
@@ -206,6 +208,7 @@ func (p *Pipeline) restoreModel(d dec) error {
 func (p *Pipeline) restoreCounters(d dec) {
 	p.seq, p.held = d.uvarint(), d.uvarint()
 	p.sinceRetune = d.int()
+	p.adopt = d.bool()
 	n := d.count(11)
 	p.scores = make([]online.Score, n)
 	for i := range p.scores {
@@ -317,8 +320,16 @@ func (wt *watch) marshalDetector(e enc) error {
 		return err
 	}
 	e.bytes(b)
-	e.int(wt.det.sinceZero)
-	return nil
+	e.bool(wt.trail != nil)
+	if wt.trail != nil {
+		wt.trail.encode(e)
+		c := wt.cut
+		e.bool(c.on)
+		e.int(c.post)
+		e.int(c.train)
+		e.int(c.held)
+	}
+	return e.Err()
 }
 
 // restore reads what marshal wrote into a watch built for the same model.
@@ -394,6 +405,19 @@ func (wt *watch) restoreDetector(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: performance detector: %v", ErrState, err)
 	}
-	wt.det.sinceZero = d.int()
+	if has := d.bool(); has != (wt.trail != nil) {
+		d.fail("loss trail present %v, the model's %v", has, wt.trail != nil)
+	}
+	if d.failed() || wt.trail == nil {
+		return d.err()
+	}
+	if err := wt.trail.decode(d); err != nil {
+		return err
+	}
+	c := pendingCut{on: d.bool(), post: d.int(), train: d.int(), held: d.int()}
+	if !d.failed() && (c.post < 0 || c.train < 0 || c.held < 0 || c.train+c.held != c.post || (!c.on && c.post != 0)) {
+		d.fail("waiting cut of %d records (%d train, %d held out)", c.post, c.train, c.held)
+	}
+	wt.cut = c
 	return d.err()
 }
