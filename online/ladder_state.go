@@ -48,6 +48,7 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	e.PutUvarint(o.Seed)
 	putString(e, o.Learner)
 	e.PutFloat64(o.HalfLife)
+	e.PutBool(o.Unpenalized)
 	e.PutUvarint(l.seen)
 	e.PutFloat64(l.lmax)
 	e.PutFloat64(l.anchor)
@@ -55,6 +56,15 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	for _, f := range l.fresh {
 		e.PutBool(f)
 	}
+	g := &l.grid
+	e.PutFloat64(g.ratio)
+	e.PutUvarint(uint64(g.ext))
+	e.PutFloat64(g.df[0])
+	e.PutFloat64(g.df[1])
+	e.PutUvarint(uint64(g.rank))
+	e.PutUvarint(g.specAt)
+	e.PutUvarint(uint64(g.specLen))
+	e.PutBool(g.respec)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		if err := lrn.encode(e); err != nil {
@@ -72,12 +82,15 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // wrapping ErrState; no input makes it panic, and it allocates only the
 // buffers of the ladder that b describes.
 //
-// The format, version 3, written with window.Encoder: the version byte 3
+// The format, version 4, written with window.Encoder: the version byte 4
 // and the type byte 'L'; the options (loss name, penalty mix, features
 // (the current width, see Grow), max features, window, span in
 // nanoseconds, size, floor, fixed λ, steps, seed, learner name,
-// half-life); the records seen, λ_max, the anchor of the grid and the
-// grid; one bool per feature, set for a fresh column (see Grow); then the learner's state (sagaLearner.encode,
+// half-life, unpenalized); the records seen, λ_max, the anchor of the grid and the
+// grid; one bool per feature, set for a fresh column (see Grow); the grid's placement (the ratio of its anchored
+// bottom to its top, the extension, the two degrees of freedom and the
+// rank of a ridge anchor, the records seen and the window length at the
+// last spectrum, and whether a spectrum is due); then the learner's state (sagaLearner.encode,
 // decayLearner.encode). Integers are varints, float64 their little-endian
 // IEEE 754 bits, strings, byte strings and float64 slices carry a varint
 // length.
@@ -105,6 +118,7 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 			l.nfresh++
 		}
 	}
+	decodeGrid(d, l)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		lrn.decode(d, l.xbuf)
@@ -115,6 +129,26 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 		return nil, err
 	}
 	return l, nil
+}
+
+// decodeGrid reads the grid's placement into l (see UnmarshalLadder) and
+// checks that it fits the ladder.
+func decodeGrid(d *window.Decoder, l *Ladder) {
+	g := &l.grid
+	g.ratio = d.Float64()
+	ext := d.Count("extension", maxStateSize*64)
+	g.df[0], g.df[1] = d.Float64(), d.Float64()
+	rank := d.Count("rank", l.d)
+	g.specAt = d.Uvarint()
+	g.specLen = d.Count("spectrum window", maxStateCap)
+	g.respec = d.Bool()
+	if d.Err() != nil {
+		return
+	}
+	if !(g.ratio > 0 && g.ratio <= 1) {
+		d.Failf("grid ratio %v outside (0, 1]", g.ratio)
+	}
+	g.ext, g.rank = ext, rank
 }
 
 // UnmarshalBinary replaces l, which may be the zero Ladder, by the ladder
@@ -146,6 +180,7 @@ func decodeOptions(d *window.Decoder) Options {
 	o.Seed = d.Uvarint()
 	o.Learner = str(d, 16, "learner")
 	o.HalfLife = d.Float64()
+	o.Unpenalized = d.Bool()
 	if d.Err() != nil {
 		return o
 	}
@@ -166,6 +201,9 @@ func decodeOptions(d *window.Decoder) Options {
 		words, perMember = k64*(4*d64+8)+12*d64, 4*o.Features
 	} else {
 		words += int64(o.Window)*(d64+k64+sagaSlotWords) + 12*d64
+		if mix < lambdaMixFloor && o.Lambda == 0 && !o.Unpenalized {
+			words += d64*d64 + (gramBlock+64)*d64 // the ridge spectrum's scratch (grid.go)
+		}
 	}
 	if words > int64(stateWordLimit) {
 		d.Failf("buffers of %d words above %d", words, stateWordLimit)

@@ -389,7 +389,8 @@ func (h *handler) ladder(w http.ResponseWriter, r *http.Request) {
 		Version     uint64        `json:"version"`
 		LambdaIndex int           `json:"lambda_index"`
 		Ladder      []LadderEntry `json:"ladder"`
-	}{d.Model, d.Version, d.LambdaIndex, d.Ladder})
+		Grid        *GridSpec     `json:"grid,omitempty"`
+	}{d.Model, d.Version, d.LambdaIndex, d.Ladder, d.Grid})
 }
 
 // readBody reads the request body up to the limit, writing 413 or 400 on

@@ -36,6 +36,10 @@ type Options struct {
 	// model's name (the daemon's choice, so a model's bits do not depend on
 	// its position in the configuration).
 	Seed uint64
+	// Unpenalized fits λ = 0, one learner and no ladder (lariat fit
+	// --lambda 0; a configuration cannot ask for it: its lambda 0 means
+	// "choose λ"). The model's Lambda must be 0.
+	Unpenalized bool
 }
 
 // Pipeline is everything one model knows: the ladder, the held-out ring and
@@ -112,6 +116,11 @@ type Step struct {
 	Retuned bool
 	// Moved is set when the retune moved λ*.
 	Moved bool
+	// Extended is the number of members the retune moved the ladder's grid
+	// down by, because the held-out minimum sat at its smallest λ (< 0: back
+	// up; online.Ladder.Extend); the new members are scored at the next
+	// retune.
+	Extended int
 	// ROC is the chosen member's new ROC table on the held-out ring
 	// (logistic models, after a retune); nil otherwise.
 	ROC []online.ROCPoint
@@ -168,6 +177,7 @@ func New(o Options) (*Pipeline, error) {
 		Size:        m.Ladder.Size,
 		Floor:       m.Ladder.Floor,
 		Lambda:      m.Lambda,
+		Unpenalized: o.Unpenalized,
 		Steps:       m.Learner.Steps,
 		Seed:        seed,
 		Learner:     m.Learner.Kind,
@@ -317,6 +327,11 @@ func (p *Pipeline) retune() {
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
 	idx, changed := p.choose()
 	p.step.Retuned, p.step.Moved = true, changed
+	if k := p.ladder.Extend(online.Choose(p.scores, online.RuleMin), idx); k != 0 {
+		p.shiftScores(k)
+		idx = p.chooser.Current()
+		p.step.Extended = k
+	}
 	if idx >= 0 && p.watch.warm {
 		m := p.ladder.Model(idx)
 		p.watch.retuned(m.Standardized, p.ladder.Lambda(idx), p.gridStep())
@@ -325,6 +340,26 @@ func (p *Pipeline) retune() {
 	if p.tuner != nil {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
+	}
+}
+
+// shiftScores re-indexes the chooser and the last scores after the grid
+// moved by k members (member i is now the old member i+k): a score keeps
+// its member, and a member that has not been scored yet has NaN metrics
+// until the next retune.
+func (p *Pipeline) shiftScores(k int) {
+	n := p.ladder.Size()
+	p.chooser.Shift(-k, n)
+	old := slices.Clone(p.scores)
+	for i := range p.scores {
+		j := i + k
+		if j >= 0 && j < len(old) {
+			p.scores[i] = old[j]
+		} else {
+			nan := math.NaN()
+			p.scores[i] = online.Score{Loss: nan, SE: nan, AUC: nan, Brier: nan, LogLoss: nan, RMSE: nan, MAE: nan, R2: nan}
+		}
+		p.scores[i].Index, p.scores[i].Lambda, p.scores[i].Nonzero = i, p.ladder.Lambda(i), p.ladder.Nonzero(i)
 	}
 }
 
@@ -453,6 +488,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	m := p.ladder.Model(cur)
 	trim(&m, len(names))
 	names = compact(&m, names)
+	grid := p.ladder.Grid()
 	var th *sink.Threshold
 	if p.tuner != nil {
 		th = p.tuner.threshold()
@@ -462,6 +498,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 		Version:   version,
 		Features:  names,
 		Model:     &m,
+		Grid:      &grid,
 		Scores:    p.ladderNow(),
 		Holdout:   p.HeldOutLen(),
 		Applied:   p.seq,

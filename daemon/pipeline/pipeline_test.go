@@ -32,8 +32,11 @@ func (s *sparseStream) next(x []float64) float64 {
 // the same window.Splitter: the pipeline must hold exactly the records the
 // split routes to each side, and every ladder member must be bit for bit
 // the bare ladder's (the pipeline adds policy, never a change to the
-// learner's input). Source: the routing rule of README.md, "Choosing λ on
-// held-out data" (every k-th record held out), no external source.
+// learner's input; its one change to the ladder, moving the grid down at
+// a retune whose held-out minimum sits at the smallest λ, is mirrored here
+// with the same chooser and online.Ladder.Extend). Source: the routing
+// rule of README.md, "Choosing λ on held-out data" (every k-th record held
+// out), no external source.
 func TestPipelineRoutesLikeLadder(t *testing.T) {
 	m := driftModel("route", config.LossSquared, featureNames(8), 1500)
 	h := newHarness(t, m)
@@ -52,6 +55,11 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 	s := &sparseStream{rng: rand.New(rand.NewPCG(3, 4))}
 	x := make([]float64, 8)
 	const n = 4000
+	rule, err := online.ParseRule(m.Retune.Rule)
+	if err != nil {
+		t.Fatal(err)
+	}
+	chooser, moved := online.Chooser{Rule: rule}, 0
 	for i := range n {
 		y := s.next(x)
 		h.feed(x, y)
@@ -64,7 +72,16 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
+		if (i+1)%m.Retune.Every == 0 {
+			scores := bare.Score(hold, nil)
+			idx, _ := chooser.Update(scores)
+			if k := bare.Extend(online.Choose(scores, online.RuleMin), idx); k != 0 {
+				chooser.Shift(-k, bare.Size())
+				moved++
+			}
+		}
 	}
+	t.Logf("grid moved %d times", moved)
 	applied, held := h.p.Counts()
 	if applied != n || held != n/5 || h.p.HeldOutLen() != hold.Len() {
 		t.Fatalf("applied %d held out %d (ring %d), want %d and %d (ring %d)", applied, held, h.p.HeldOutLen(), n, n/5, hold.Len())

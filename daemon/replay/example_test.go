@@ -30,5 +30,5 @@ func Example() {
 	// applied 6000 retunes 30
 	// 3010 performance
 	// 3200 model
-	// final version 4583 λ index 10
+	// final version 4586 λ index 1
 }
