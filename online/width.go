@@ -44,6 +44,7 @@ func (l *Ladder) Grow(n int) {
 	}
 	l.nfresh += n - l.d
 	l.d = n
+	l.grid.respec = true // a ridge grid's degrees of freedom span the new width
 }
 
 // Check validates r as Add does, but for a record of any width up to
