@@ -257,6 +257,9 @@ type Model struct {
 	Threshold Threshold `yaml:"threshold"`
 	// Drift sets the drift alerts.
 	Drift Drift `yaml:"drift"`
+	// Guard sets the plausibility checks (configured bounds and the
+	// standard-deviation guard).
+	Guard Guard `yaml:"guard"`
 }
 
 // Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max.
@@ -407,6 +410,7 @@ func DefaultModel() Model {
 			Cooldown:    Duration(10 * time.Minute),
 			Adapt:       true,
 		},
+		Guard: defaultGuard(),
 	}
 }
 
