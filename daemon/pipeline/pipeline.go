@@ -62,6 +62,7 @@ type Pipeline struct {
 	at    moment
 	watch *watch
 	tuner *tuner // nil for a squared-loss model
+	guard *guard
 
 	version  uint64
 	last     *sink.ModelDoc
@@ -183,6 +184,7 @@ func New(o Options) (*Pipeline, error) {
 	}
 	p.watch = newWatch(m, dim, trainWindow{p}, &p.at)
 	p.tuner = newTuner(m, o.Threshold)
+	p.guard = newGuard(m, dim)
 	return p, nil
 }
 
@@ -200,8 +202,10 @@ func (p *Pipeline) Width() int { return p.dim }
 // Width() columns with NaN (missing) for the names not seen yet, in its own
 // capacity when it has room. now is the wall-clock
 // time that stands in for the record's own time when it has none (alert
-// cooldowns). A record of the wrong width or one the learner refuses leaves
-// the model untouched and gives a *record.Error with the reject reason.
+// cooldowns). A record of the wrong width, one outside the configured
+// bounds or too far from a channel's recent values (see guard), or one the
+// learner refuses leaves the model untouched and gives a *record.Error with
+// the reject reason.
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
@@ -212,6 +216,9 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	}
 	for len(rec.X) < p.dim { // names not learned yet are missing
 		rec.X = append(rec.X, math.NaN())
+	}
+	if err := p.guard.check(rec.X, rec.Y, names); err != nil {
+		return st, err
 	}
 	r := rec.Learn()
 	heldOut := p.split.Holdout(p.seq, rec.Key)
@@ -227,6 +234,7 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	if err != nil {
 		return st, &record.Error{Reason: learnerReason(err), Detail: err.Error()}
 	}
+	p.guard.learn(r.X, r.Y)
 	p.seq++
 	if heldOut {
 		p.held++

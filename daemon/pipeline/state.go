@@ -12,8 +12,10 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes.
-const stateFormat = 1
+// stateFormat is the version of the layout MarshalBinary writes: 2 adds
+// the plausibility guard's statistics at the end. Restore reads 1 too (the
+// guard then starts cold).
+const stateFormat = 2
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -32,8 +34,9 @@ func fingerprint(m *config.Model) uint64 {
 // state, window, scaler, random generator), the held-out ring, the chooser
 // with its hysteresis, the counters, the feature names, the drift watch
 // (detector, data reference and sample, support streaks, cooldowns), the
-// threshold tuner, the version, the last published document and the stream
-// position. Restore brings it back bit for bit.
+// threshold tuner, the version, the last published document, the stream
+// position and the plausibility guard's statistics and run lengths. Restore
+// brings it back bit for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
@@ -48,6 +51,7 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 		return nil, err
 	}
 	p.marshalTuner(e)
+	p.guard.marshal(e)
 	return e.Bytes(), e.Err()
 }
 
@@ -127,8 +131,9 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	d := newDec(b)
-	if v := d.uvarint(); !d.failed() && v != stateFormat {
-		return nil, fmt.Errorf("%w: format %d (this build reads %d)", ErrState, v, stateFormat)
+	format := d.uvarint()
+	if !d.failed() && format != stateFormat && format != 1 {
+		return nil, fmt.Errorf("%w: format %d (this build reads 1 and %d)", ErrState, format, stateFormat)
 	}
 	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
@@ -147,6 +152,9 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	p.restoreTuner(d)
+	if format >= 2 {
+		p.guard.restore(d, p.dim, p.at.names)
+	}
 	if err := d.done(); err != nil {
 		return nil, err
 	}
