@@ -7,6 +7,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"os"
+	"strconv"
 	"testing"
 	"time"
 
@@ -214,4 +215,267 @@ func genRun(t *testing.T, name, loss string, d, n int, next func(i int, x []floa
 		r.apply(&rec, m.Features)
 	}
 	return r
+}
+
+// modelState returns the pipeline's saved state without the guard's
+// section (the model: ladder, window, held-out ring, chooser, counters,
+// names, drift watch, tuner, version) and the guard's statistics without
+// its run lengths: what a rejected record must leave bit for bit.
+func modelState(t testing.TB, p *Pipeline) (model, stats []byte) {
+	t.Helper()
+	full, err := p.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := newEnc()
+	p.guard.marshal(e)
+	model = full[:len(full)-len(e.Bytes())]
+	s := newEnc()
+	for _, c := range append(append([]gstat(nil), p.guard.cols...), p.guard.y) {
+		s.uvarint(c.n)
+		s.f64(c.mean)
+		s.f64(c.vr)
+	}
+	return model, s.Bytes()
+}
+
+// gstep is one record of a guard case: features (NaN = missing), label,
+// and the reason it must be rejected with ("" = accepted).
+type gstep struct {
+	x      []float64
+	y      float64
+	reason string
+}
+
+// interleave repeats the pattern of steps n times.
+func interleave(n int, pattern ...gstep) []gstep {
+	var out []gstep
+	for range n {
+		out = append(out, pattern...)
+	}
+	return out
+}
+
+func rep(n int, s gstep) []gstep {
+	out := make([]gstep, n)
+	for i := range out {
+		out[i] = s
+	}
+	return out
+}
+
+// TestGuardRules checks each rule of the guard on a warm model (300
+// records of a ~ N(10, 1), b ~ N(0, 1), c = 5 exactly, y = 2a + b + N(0,
+// 1); window 1000, warm 100, persist 3): the outcome of every record, and
+// that each rejected one left the model and the guard's statistics bit for
+// bit as they were. The thresholds are this product's own rules (see
+// guard); no outside source.
+func TestGuardRules(t *testing.T) {
+	nan := math.NaN()
+	ok := func(a, b, c, y float64) gstep { return gstep{[]float64{a, b, c}, y, ""} }
+	bad := func(a, b, c, y float64, reason string) gstep { return gstep{[]float64{a, b, c}, y, reason} }
+	imp, oor := record.ReasonImplausible, record.ReasonOutOfRange
+	cases := []struct {
+		name  string
+		loss  string
+		cfg   func(*config.Model)
+		cold  bool
+		steps []gstep
+	}{
+		{name: "one wild feature", steps: []gstep{bad(1e29, 0, 5, 20, imp), ok(10, 0, 5, 20)}},
+		{name: "one wild label", steps: []gstep{bad(10, 0, 5, 1e40, imp), ok(10, 0, 5, 20)}},
+		{name: "wild values between ordinary ones stay out",
+			steps: interleave(20, bad(-1e6, 0, 5, 20, imp), bad(-1e6, 0, 5, 20, imp), ok(10, 0, 5, 20))},
+		{name: "wild values alternating sides never get in",
+			steps: []gstep{bad(1e6, 0, 5, 20, imp), bad(-1e6, 0, 5, 20, imp), bad(1e6, 0, 5, 20, imp), bad(-1e6, 0, 5, 20, imp), bad(1e6, 0, 5, 20, imp), bad(-1e6, 0, 5, 20, imp)}},
+		{name: "a step of 50 sd is accepted at once", steps: rep(5, ok(60, 0, 5, 120))},
+		{name: "a constant channel's new level gets in after persist",
+			steps: append(rep(3, bad(10, 0, 7, 20, imp)), rep(20, ok(10, 0, 7, 20))...)},
+		{name: "a sentinel that persists gets in after persist, and is then ordinary",
+			steps: append(append(rep(3, bad(-9999, 0, 5, 20, imp)), rep(3, ok(-9999, 0, 5, 20))...), ok(10, 0, 5, 20))},
+		{name: "persist 0 never lets a level in", cfg: func(m *config.Model) { m.Guard.Persist = 0 },
+			steps: rep(30, bad(10, 0, 7, 20, imp))},
+		{name: "sd 0 turns the guard off", cfg: func(m *config.Model) { m.Guard.SD = 0 },
+			steps: []gstep{ok(1e29, 0, 5, 20), ok(10, 0, 5, 1e40)}},
+		{name: "a missing value is not checked", steps: []gstep{ok(nan, 0, 5, 20)}},
+		{name: "beyond the learner's limit the learner says not_finite",
+			steps: []gstep{bad(1e51, 0, 5, 20, record.ReasonNotFinite), bad(10, 0, 5, -1e60, record.ReasonNotFinite)}},
+		{name: "bounds reject however often, and replace the sd guard",
+			cfg: func(m *config.Model) {
+				m.Guard.Bounds = []config.Bound{{Feature: "a", Max: config.Limit{V: 100, Set: true}}}
+			},
+			steps: append(rep(20, bad(150, 0, 5, 20, oor)), ok(99, 0, 5, 20), ok(-1e9, 0, 5, 20))},
+		{name: "label bounds", cfg: func(m *config.Model) {
+			m.Guard.Label = config.Range{Min: config.Limit{V: 0, Set: true}, Max: config.Limit{V: 1000, Set: true}}
+		}, steps: []gstep{bad(10, 0, 5, -1, oor), bad(10, 0, 5, 1001, oor), ok(10, 0, 5, 1000)}},
+		{name: "a cold model is not guarded", cold: true, steps: []gstep{ok(1e29, 0, 5, 20)}},
+		{name: "a rare positive label of a logistic model is not guarded", loss: config.LossLogistic,
+			steps: []gstep{ok(10, 0, 5, 1), ok(10, 0, 5, 0)}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			m := config.DefaultModel()
+			m.Name, m.Subject = "guard", "test.guard"
+			if tc.loss != "" {
+				m.Loss = tc.loss
+			}
+			m.Features = []string{"a", "b", "c"}
+			m.Window.Records, m.Holdout.Records = 1000, 200
+			m.Guard.Persist = 3
+			if tc.cfg != nil {
+				tc.cfg(&m)
+			}
+			h := newHarness(t, m)
+			rng := rand.New(rand.NewPCG(1, 1))
+			warm := 300
+			if tc.cold {
+				warm = 50
+			}
+			for range warm {
+				a, b := 10+rng.NormFloat64(), rng.NormFloat64()
+				y := 2*a + b + rng.NormFloat64()
+				if m.Logistic() {
+					y = 0 // a logistic label that is always 0 has σ = 0
+				}
+				h.feed([]float64{a, b, 5}, y)
+			}
+			for i, s := range tc.steps {
+				model, stats := modelState(t, h.p)
+				h.rec.X, h.rec.Y, h.rec.W = append(h.rec.X[:0], s.x...), s.y, 1
+				_, err := h.p.Apply(&h.rec, h.names, h.now)
+				got := ""
+				var re *record.Error
+				if errors.As(err, &re) {
+					got = re.Reason
+				} else if err != nil {
+					t.Fatalf("step %d: %v", i, err)
+				}
+				if got != s.reason {
+					t.Fatalf("step %d (%v, y %v): reason %q, want %q (%v)", i, s.x, s.y, got, s.reason, err)
+				}
+				if got == "" {
+					continue
+				}
+				m2, s2 := modelState(t, h.p)
+				if !bytes.Equal(model, m2) || !bytes.Equal(stats, s2) {
+					t.Fatalf("step %d: rejected record changed the model (%v) or the guard's statistics (%v)",
+						i, !bytes.Equal(model, m2), !bytes.Equal(stats, s2))
+				}
+			}
+		})
+	}
+}
+
+// TestGuardLearnedNames checks the guard on names learned from records: a
+// bound on a name that arrives later applies from its first value, and a
+// new channel starts cold (its first values are not judged against
+// anything).
+func TestGuardLearnedNames(t *testing.T) {
+	m := config.DefaultModel()
+	m.Name, m.Subject = "learned", "test.learned"
+	m.MaxFeatures = 8
+	m.Guard.Bounds = []config.Bound{{Feature: "late", Min: config.Limit{V: 0, Set: true}}}
+	h := newHarness(t, m)
+	p := h.p
+	dec := record.NewDecoder(&record.DecoderOptions{MaxFeatures: p.Width()})
+	apply := func(msg string) string {
+		t.Helper()
+		var rec record.Record
+		if err := dec.Decode([]byte(msg), &rec); err != nil {
+			t.Fatal(err)
+		}
+		_, err := p.Apply(&rec, dec.Names(), h.now)
+		var re *record.Error
+		if errors.As(err, &re) {
+			return re.Reason
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		return ""
+	}
+	for i := range 300 {
+		if r := apply(`{"y":` + itoa(i%7) + `,"x":{"a":` + itoa(i%5) + `}}`); r != "" {
+			t.Fatalf("warm-up record %d: %s", i, r)
+		}
+	}
+	if r := apply(`{"y":1,"x":{"a":1e12}}`); r != record.ReasonImplausible {
+		t.Errorf("warm channel: %q, want implausible", r)
+	}
+	if r := apply(`{"y":1,"x":{"a":1,"new":1e12}}`); r != "" {
+		t.Errorf("a new channel's first value: %q, want accepted", r)
+	}
+	if r := apply(`{"y":1,"x":{"a":1,"late":-1}}`); r != record.ReasonOutOfRange {
+		t.Errorf("bounded channel learned late: %q, want out_of_range", r)
+	}
+	if r := apply(`{"y":1,"x":{"a":1,"late":1}}`); r != "" {
+		t.Errorf("bounded channel in range: %q", r)
+	}
+}
+
+func itoa(i int) string { return strconv.Itoa(i) }
+
+// TestGuardState saves a pipeline whose guard is in the middle of a run of
+// rejections, restores it, and checks that the restored pipeline re-saves
+// to the same bytes and treats the rest of the stream exactly as the
+// original does; and that a state of format 1 (no guard section) still
+// restores, with the guard cold.
+func TestGuardState(t *testing.T) {
+	m := config.DefaultModel()
+	m.Name, m.Subject = "gstate", "test.gstate"
+	m.Features = []string{"a", "b"}
+	m.Window.Records, m.Holdout.Records = 1000, 200
+	h := newHarness(t, m)
+	rng := rand.New(rand.NewPCG(2, 2))
+	for range 300 {
+		a := rng.NormFloat64()
+		h.feed([]float64{a, 3}, a+rng.NormFloat64())
+	}
+	rec := func(a, b, y float64) *record.Record { return &record.Record{X: []float64{a, b}, Y: y, W: 1} }
+	for range 4 { // b sat at 3: four rejections of a run of persist = 10
+		if _, err := h.p.Apply(rec(0, 4, 0), h.names, h.now); err == nil {
+			t.Fatal("new level of a constant channel accepted at once")
+		}
+	}
+	saved, err := h.p.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	q, err := Restore(Options{Model: h.p.cfg}, saved)
+	if err != nil {
+		t.Fatal(err)
+	}
+	again, _ := q.MarshalBinary()
+	if !bytes.Equal(saved, again) {
+		t.Fatal("restored pipeline saves different bytes")
+	}
+	for i := range 20 {
+		r1, r2 := rec(rng.NormFloat64(), 4, 0), (*record.Record)(nil)
+		r2 = &record.Record{X: append([]float64(nil), r1.X...), Y: r1.Y, W: 1}
+		_, e1 := h.p.Apply(r1, h.names, h.now)
+		_, e2 := q.Apply(r2, h.names, h.now)
+		if (e1 == nil) != (e2 == nil) {
+			t.Fatalf("record %d: original %v, restored %v", i, e1, e2)
+		}
+		if i < 6 && e1 == nil || i >= 6 && e1 != nil {
+			t.Errorf("record %d of the run: %v (want rejected up to the 10th in all)", i, e1)
+		}
+	}
+	b1, _ := h.p.MarshalBinary()
+	b2, _ := q.MarshalBinary()
+	if !bytes.Equal(b1, b2) {
+		t.Error("original and restored pipelines diverged")
+	}
+
+	// Format 1: the same state without the guard section.
+	e := newEnc()
+	h.p.guard.marshal(e)
+	v1 := append([]byte{1}, b1[1:len(b1)-len(e.Bytes())]...)
+	old, err := Restore(Options{Model: h.p.cfg}, v1)
+	if err != nil {
+		t.Fatalf("format 1: %v", err)
+	}
+	if old.guard.cols[0].n != 0 || h.p.guard.cols[0].n == 0 {
+		t.Error("format 1 state: guard not cold")
+	}
 }
