@@ -217,10 +217,11 @@ func genRun(t *testing.T, name, loss string, d, n int, next func(i int, x []floa
 	return r
 }
 
-// modelState returns the pipeline's saved state without the guard's
-// section (the model: ladder, window, held-out ring, chooser, counters,
-// names, drift watch, tuner, version) and the guard's statistics without
-// its run lengths: what a rejected record must leave bit for bit.
+// modelState returns the pipeline's saved state without the section that
+// format 2 added (the model: ladder, window, held-out ring, chooser,
+// counters, names, drift watch, tuner, version), and that section without
+// the guard's run lengths (the newest record time and the guard's
+// statistics): what a rejected record must leave bit for bit.
 func modelState(t testing.TB, p *Pipeline) (model, stats []byte) {
 	t.Helper()
 	full, err := p.MarshalBinary()
@@ -228,9 +229,10 @@ func modelState(t testing.TB, p *Pipeline) (model, stats []byte) {
 		t.Fatal(err)
 	}
 	e := newEnc()
-	p.guard.marshal(e)
+	p.marshalTail(e)
 	model = full[:len(full)-len(e.Bytes())]
 	s := newEnc()
+	s.int64(p.newestT)
 	for _, c := range append(append([]gstat(nil), p.guard.cols...), p.guard.y) {
 		s.uvarint(c.n)
 		s.f64(c.mean)
@@ -469,7 +471,7 @@ func TestGuardState(t *testing.T) {
 
 	// Format 1: the same state without the guard section.
 	e := newEnc()
-	h.p.guard.marshal(e)
+	h.p.marshalTail(e)
 	v1 := append([]byte{1}, b1[1:len(b1)-len(e.Bytes())]...)
 	old, err := Restore(Options{Model: h.p.cfg}, v1)
 	if err != nil {

@@ -64,6 +64,9 @@ type Pipeline struct {
 	tuner *tuner // nil for a squared-loss model
 	guard *guard
 
+	span    bool  // the train window has a time span
+	newestT int64 // the newest record time applied (Unix ms), 0 before one
+
 	version  uint64
 	last     *sink.ModelDoc
 	lastPub  time.Time
@@ -185,6 +188,7 @@ func New(o Options) (*Pipeline, error) {
 	p.watch = newWatch(m, dim, trainWindow{p}, &p.at)
 	p.tuner = newTuner(m, o.Threshold)
 	p.guard = newGuard(m, dim)
+	p.span = m.Window.Span > 0
 	return p, nil
 }
 
@@ -221,6 +225,14 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		return st, err
 	}
 	r := rec.Learn()
+	recT := r.T
+	if r.T == 0 && p.span {
+		// A record without a time takes the newest time seen, so it
+		// neither moves the span nor is evicted before the records around
+		// it (window.Timed's convention): stamped 0, one timed record
+		// would evict every untimed one.
+		r.T = p.newestT
+	}
 	heldOut := p.split.Holdout(p.seq, rec.Key)
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).
@@ -235,12 +247,13 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		return st, &record.Error{Reason: learnerReason(err), Detail: err.Error()}
 	}
 	p.guard.learn(r.X, r.Y)
+	p.newestT = max(p.newestT, r.T)
 	p.seq++
 	if heldOut {
 		p.held++
 	}
 	st.HeldOut = heldOut
-	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
+	p.at.recT, p.at.now, p.at.seq = recT, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
 	p.collect()
 	if p.sinceRetune++; p.sinceRetune >= p.cfg.Retune.Every {

@@ -13,8 +13,9 @@ import (
 )
 
 // stateFormat is the version of the layout MarshalBinary writes: 2 adds
-// the plausibility guard's statistics at the end. Restore reads 1 too (the
-// guard then starts cold).
+// the plausibility guard's statistics and the newest record time at the
+// end. Restore reads 1 too (the guard then starts cold, and the newest time
+// is taken from the next timed record).
 const stateFormat = 2
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
@@ -35,8 +36,8 @@ func fingerprint(m *config.Model) uint64 {
 // with its hysteresis, the counters, the feature names, the drift watch
 // (detector, data reference and sample, support streaks, cooldowns), the
 // threshold tuner, the version, the last published document, the stream
-// position and the plausibility guard's statistics and run lengths. Restore
-// brings it back bit for bit.
+// position, the plausibility guard's statistics and run lengths, and the
+// newest record time. Restore brings it back bit for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
@@ -51,8 +52,15 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 		return nil, err
 	}
 	p.marshalTuner(e)
-	p.guard.marshal(e)
+	p.marshalTail(e)
 	return e.Bytes(), e.Err()
+}
+
+// marshalTail writes what format 2 added at the end: the guard and the
+// newest record time.
+func (p *Pipeline) marshalTail(e enc) {
+	p.guard.marshal(e)
+	e.int64(p.newestT)
 }
 
 func (p *Pipeline) marshalModel(e enc) error {
@@ -154,6 +162,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	p.restoreTuner(d)
 	if format >= 2 {
 		p.guard.restore(d, p.dim, p.at.names)
+		p.newestT = d.int64()
 	}
 	if err := d.done(); err != nil {
 		return nil, err
