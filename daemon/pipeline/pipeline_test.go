@@ -264,22 +264,14 @@ func BenchmarkPipelineApply(b *testing.B) {
 			xs[i] = make([]float64, d)
 			ys[i] = s.next(xs[i])
 		}
-		b.Run("pipeline/d="+strconv.Itoa(d), func(b *testing.B) {
-			h := newHarness(b, m)
-			for i := range 12000 {
-				h.feed(xs[i&4095], ys[i&4095])
-			}
-			rec := record.Record{W: 1}
-			b.ReportAllocs()
-			i := 0
-			for b.Loop() {
-				rec.X, rec.Y = xs[i&4095], ys[i&4095]
-				if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
-					b.Fatal(err)
-				}
-				i++
-			}
-		})
+		off := m
+		off.Guard.SD = 0 // the baseline of the guard's cost: the same pipeline without the sd guard
+		for _, v := range []struct {
+			name string
+			m    config.Model
+		}{{"pipeline", m}, {"pipeline-guard-off", off}} {
+			benchPipeline(b, v.name+"/d="+strconv.Itoa(d), v.m, xs, ys)
+		}
 		b.Run("ladder/d="+strconv.Itoa(d), func(b *testing.B) {
 			l, err := online.NewLadder(&online.Options{Features: d, Window: m.Window.Records, Seed: 1})
 			if err != nil {
@@ -298,4 +290,25 @@ func BenchmarkPipelineApply(b *testing.B) {
 			}
 		})
 	}
+}
+
+// benchPipeline times Pipeline.Apply of model m on the records xs, ys
+// (after a full window of them), as sub-benchmark name.
+func benchPipeline(b *testing.B, name string, m config.Model, xs [][]float64, ys []float64) {
+	b.Run(name, func(b *testing.B) {
+		h := newHarness(b, m)
+		for i := range 12000 {
+			h.feed(xs[i&4095], ys[i&4095])
+		}
+		rec := record.Record{W: 1}
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			rec.X, rec.Y = xs[i&4095], ys[i&4095]
+			if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
+				b.Fatal(err)
+			}
+			i++
+		}
+	})
 }
