@@ -149,6 +149,9 @@ func (g *guard) check(x []float64, y float64, names []string) error {
 	g.resolve(names)
 	g.grow(len(x))
 	for j, v := range x {
+		if g.bounds == nil {
+			break // no channel has bounds
+		}
 		if c := &g.cols[j]; c.fixed && (v < c.lo || v > c.hi) {
 			return g.outOfRange(name(names, j), v, c)
 		}
