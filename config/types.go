@@ -276,7 +276,10 @@ type Window struct {
 	// always applies, with or without Span. Default 10000.
 	Records int `yaml:"records"`
 	// Span, when > 0, also evicts records older than the newest record's
-	// time minus Span. Default 0 (no time limit).
+	// time minus Span. A record's own time is its "t"; a record without
+	// one takes the newest time seen, and a far-past or out-of-order time
+	// evicts nothing (a time too far ahead is refused, see TimeSkew).
+	// Default 0 (no time limit).
 	Span Duration `yaml:"span"`
 }
 
