@@ -204,7 +204,7 @@ func streamFileRun(t *testing.T, cfg *config.Config) *guardRun {
 func genRun(t *testing.T, name, loss string, d, n int, next func(i int, x []float64) float64) *guardRun {
 	m := config.DefaultModel()
 	m.Name, m.Subject, m.Loss = name, "test."+name, loss
-	m.Features = featureNames(d)
+	m.Features, m.MaxFeatures = featureNames(d), d
 	h := newHarness(t, m)
 	r := newGuardRun(t, h.p)
 	x := make([]float64, d)
@@ -321,7 +321,7 @@ func TestGuardRules(t *testing.T) {
 			if tc.loss != "" {
 				m.Loss = tc.loss
 			}
-			m.Features = []string{"a", "b", "c"}
+			m.Features, m.MaxFeatures = []string{"a", "b", "c"}, 3
 			m.Window.Records, m.Holdout.Records = 1000, 200
 			m.Guard.Persist = 3
 			if tc.cfg != nil {
@@ -425,7 +425,7 @@ func itoa(i int) string { return strconv.Itoa(i) }
 func TestGuardState(t *testing.T) {
 	m := config.DefaultModel()
 	m.Name, m.Subject = "gstate", "test.gstate"
-	m.Features = []string{"a", "b"}
+	m.Features, m.MaxFeatures = []string{"a", "b"}, 2
 	m.Window.Records, m.Holdout.Records = 1000, 200
 	h := newHarness(t, m)
 	rng := rand.New(rand.NewPCG(2, 2))

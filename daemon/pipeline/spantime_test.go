@@ -34,7 +34,7 @@ func TestSpanWindowTime(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			m := config.DefaultModel()
 			m.Name, m.Subject = "span", "test.span"
-			m.Features = []string{"a", "b"}
+			m.Features, m.MaxFeatures = []string{"a", "b"}, 2
 			m.Window.Records, m.Window.Span = 5000, config.Duration(time.Minute)
 			m.Holdout.Every = 1000 // the odd record goes to training
 			h := newHarness(t, m)
@@ -83,7 +83,7 @@ func TestSpanWindowTime(t *testing.T) {
 func TestSpanWindowUntimed(t *testing.T) {
 	m := config.DefaultModel()
 	m.Name, m.Subject = "untimed", "test.untimed"
-	m.Features = []string{"a"}
+	m.Features, m.MaxFeatures = []string{"a"}, 1
 	m.Window.Records, m.Window.Span = 5000, config.Duration(time.Minute)
 	m.Holdout.Every = 1000
 	h := newHarness(t, m)
