@@ -164,7 +164,10 @@ func (g *guard) check(x []float64, y float64, names []string) error {
 	}
 	bad, badV := -1, 0.0
 	for j, v := range x {
-		if c := &g.cols[j]; !c.fixed && math.Abs(v) <= learnerLimit && !g.step(c, v) && bad < 0 {
+		if !(math.Abs(v) <= learnerLimit) {
+			continue // missing (NaN), or the learner's to refuse
+		}
+		if c := &g.cols[j]; !c.fixed && !g.step(c, v) && bad < 0 {
 			bad, badV = j, v
 		}
 	}
@@ -202,7 +205,10 @@ func (g *guard) learn(x []float64, y float64) {
 		return
 	}
 	for j, v := range x {
-		if c := &g.cols[j]; !c.fixed && v == v {
+		if v != v {
+			continue // missing
+		}
+		if c := &g.cols[j]; !c.fixed {
 			g.add(c, v)
 		}
 	}
