@@ -53,6 +53,7 @@ import (
 // μ, v and the counts; only the run lengths of the guard itself move.
 type guard struct {
 	sd      float64 // guard.sd; 0 = off
+	sd2     float64 // sd²
 	warm    uint64
 	persist int64 // 0 = a run never lets values in
 	alpha   float64
@@ -86,6 +87,7 @@ const learnerLimit = 1e50
 func newGuard(m *config.Model, dim int) *guard {
 	g := &guard{
 		sd:      m.Guard.SD,
+		sd2:     m.Guard.SD * m.Guard.SD,
 		warm:    uint64(max(m.Guard.Warm, 1)),
 		persist: int64(m.Guard.Persist),
 		alpha:   -math.Expm1(-math.Ln2 / float64(max(m.Window.Records, 1))),
@@ -184,7 +186,9 @@ func (g *guard) check(x []float64, y float64, names []string) error {
 // step applies the sd guard to value v of a channel and moves its run
 // length; it reports whether v passes.
 func (g *guard) step(c *gstat, v float64) bool {
-	if c.n < g.warm || !(math.Abs(v-c.mean) > g.sd*math.Sqrt(c.vr)) {
+	// |v − μ| > sd·√v, squared: no square root per value (|v|, |μ| ≤
+	// 1e50, so the squares stay finite).
+	if d := v - c.mean; c.n < g.warm || !(d*d > g.sd2*c.vr) {
 		c.run = 0
 		return true
 	}

@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -479,5 +480,61 @@ func TestGuardState(t *testing.T) {
 	}
 	if old.guard.cols[0].n != 0 || h.p.guard.cols[0].n == 0 {
 		t.Error("format 1 state: guard not cold")
+	}
+}
+
+// BenchmarkGuard times Pipeline.Apply of the default model with the guard
+// on (the default) and off (guard.sd 0) in the same loop, alternating
+// records between the two so that both see the same machine load, and
+// reports each per record and their ratio (go test -run '^$'
+// -bench Guard -benchtime 40000x ./daemon/pipeline/). Width 256 (the
+// default max_features) with 16 channels, and 64 of 64.
+func BenchmarkGuard(b *testing.B) {
+	for _, c := range []struct{ d, width int }{{16, 256}, {64, 64}} {
+		b.Run(fmt.Sprintf("d=%d/width=%d", c.d, c.width), func(b *testing.B) {
+			mk := func(sd float64) *harness {
+				m := config.DefaultModel()
+				m.Name, m.Subject = "bench", "bench"
+				m.Features, m.MaxFeatures = featureNames(c.d), c.width
+				m.Guard.SD = sd
+				return newHarness(b, m)
+			}
+			on, off := mk(config.DefaultGuardSD), mk(0)
+			rng := rand.New(rand.NewPCG(1, 2))
+			xs := make([][]float64, 4096)
+			ys := make([]float64, len(xs))
+			for i := range xs {
+				xs[i] = make([]float64, c.d)
+				for j := range xs[i] {
+					xs[i][j] = rng.NormFloat64()
+				}
+				ys[i] = xs[i][0] - xs[i][1] + rng.NormFloat64()
+			}
+			for i := range 12000 {
+				on.feed(xs[i&4095], ys[i&4095])
+				off.feed(xs[i&4095], ys[i&4095])
+			}
+			var ton, toff time.Duration
+			var non, noff int
+			i := 0
+			b.ResetTimer()
+			for b.Loop() {
+				h, t, n := on, &ton, &non // both get the same records: i and i+1 share xs[i/2]
+				if i%2 == 1 {
+					h, t, n = off, &toff, &noff
+				}
+				st := time.Now()
+				h.feed(xs[i/2&4095], ys[i/2&4095])
+				*t += time.Since(st)
+				*n++
+				i++
+			}
+			if non > 0 && noff > 0 {
+				a, z := float64(ton)/float64(non), float64(toff)/float64(noff)
+				b.ReportMetric(a, "ns/on")
+				b.ReportMetric(z, "ns/off")
+				b.ReportMetric(a/z, "on/off")
+			}
+		})
 	}
 }
