@@ -219,7 +219,7 @@ func genRun(t *testing.T, name, loss string, d, n int, next func(i int, x []floa
 }
 
 // modelState returns the pipeline's saved state without the section that
-// format 2 added (the model: ladder, window, held-out ring, chooser,
+// format 3 added (the model: ladder, window, held-out ring, chooser,
 // counters, names, drift watch, tuner, version), and that section without
 // the guard's run lengths (the newest record time and the guard's
 // statistics): what a rejected record must leave bit for bit.
@@ -421,7 +421,7 @@ func itoa(i int) string { return strconv.Itoa(i) }
 // TestGuardState saves a pipeline whose guard is in the middle of a run of
 // rejections, restores it, and checks that the restored pipeline re-saves
 // to the same bytes and treats the rest of the stream exactly as the
-// original does; and that a state of format 1 (no guard section) still
+// original does; and that a state of format 2 (no guard section) still
 // restores, with the guard cold.
 func TestGuardState(t *testing.T) {
 	m := config.DefaultModel()
@@ -470,16 +470,16 @@ func TestGuardState(t *testing.T) {
 		t.Error("original and restored pipelines diverged")
 	}
 
-	// Format 1: the same state without the guard section.
+	// Format 2: the same state without the guard section.
 	e := newEnc()
 	h.p.marshalTail(e)
-	v1 := append([]byte{1}, b1[1:len(b1)-len(e.Bytes())]...)
+	v1 := append([]byte{stateFormat - 1}, b1[1:len(b1)-len(e.Bytes())]...)
 	old, err := Restore(Options{Model: h.p.cfg}, v1)
 	if err != nil {
-		t.Fatalf("format 1: %v", err)
+		t.Fatalf("format 2: %v", err)
 	}
 	if old.guard.cols[0].n != 0 || h.p.guard.cols[0].n == 0 {
-		t.Error("format 1 state: guard not cold")
+		t.Error("format 2 state: guard not cold")
 	}
 }
 

@@ -57,7 +57,12 @@ type Pipeline struct {
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout
 	sinceRetune int
-	scores      []online.Score
+	// adopt is set by a drift adaptation: while the train window grows
+	// back, every retune adopts its choice of λ* at once (the chooser's
+	// hysteresis would protect a choice made on a smaller window, or on
+	// pre-change records, which no longer count).
+	adopt  bool
+	scores []online.Score
 
 	at    moment
 	watch *watch
@@ -113,8 +118,10 @@ type Step struct {
 	// ROC is the chosen member's new ROC table on the held-out ring
 	// (logistic models, after a retune); nil otherwise.
 	ROC []online.ROCPoint
-	// Adapted is set when a confirmed performance drift shrank the train
-	// window and the held-out ring to their post-change records.
+	// Adapted is set when a drift adaptation cut the train window and the
+	// held-out ring to the records after the estimated change point: at
+	// the performance alert, or when the 50th train record after that
+	// point arrived (see the drift watch in watch.go).
 	Adapted bool
 	// Alerts are the drift alerts the record raised (already past their
 	// cooldown).
@@ -269,6 +276,7 @@ func (p *Pipeline) collect() {
 	p.watch.alerts = p.watch.alerts[:0]
 	if p.watch.adapted {
 		st.Adapted, p.watch.adapted = true, false
+		p.adopt = true
 	}
 }
 
@@ -315,7 +323,7 @@ func (p *Pipeline) retune() {
 		return
 	}
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
-	idx, changed := p.chooser.Update(p.scores)
+	idx, changed := p.choose()
 	p.step.Retuned, p.step.Moved = true, changed
 	if idx >= 0 && p.watch.warm {
 		m := p.ladder.Model(idx)
@@ -326,6 +334,28 @@ func (p *Pipeline) retune() {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
 	}
+}
+
+// choose lets the chooser pick λ* from the last scores. After a drift
+// adaptation, until the train window has filled again (the drift watch's
+// "filled": window.records train records, or n_s with a time span or the
+// decay learner), each pick that the scores give is adopted without the
+// hysteresis.
+func (p *Pipeline) choose() (int, bool) {
+	if p.adopt && p.ladder.Len() >= p.watch.fillAt {
+		p.adopt = false
+	}
+	if !p.adopt {
+		return p.chooser.Update(p.scores)
+	}
+	kept, prev := p.chooser, p.chooser.Current()
+	p.chooser.Reset()
+	idx, _ := p.chooser.Update(p.scores)
+	if idx < 0 {
+		p.chooser = kept
+		return prev, false
+	}
+	return idx, idx != prev
 }
 
 // gridStep returns the ladder's step in ln λ, ln(λ_0/λ_{K−1})/(K−1), or 0

@@ -12,11 +12,11 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes: 2 adds
+// stateFormat is the version of the layout MarshalBinary writes: 3 adds
 // the plausibility guard's statistics and the newest record time at the
-// end. Restore reads 1 too (the guard then starts cold, and the newest time
-// is taken from the next timed record).
-const stateFormat = 2
+// end of format 2. Restore reads 2 too (the guard then starts cold, and
+// the newest time is taken from the next timed record).
+const stateFormat = 3
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -34,10 +34,11 @@ func fingerprint(m *config.Model) uint64 {
 // MarshalBinary returns the pipeline's whole state: the ladder (learner
 // state, window, scaler, random generator), the held-out ring, the chooser
 // with its hysteresis, the counters, the feature names, the drift watch
-// (detector, data reference and sample, support streaks, cooldowns), the
-// threshold tuner, the version, the last published document, the stream
-// position, the plausibility guard's statistics and run lengths, and the
-// newest record time. Restore brings it back bit for bit.
+// (detector, loss trail and waiting cut, data reference and sample,
+// support streaks, cooldowns), the threshold tuner, the version, the last
+// published document, the stream position, the plausibility guard's
+// statistics and run lengths, and the newest record time. Restore brings
+// it back bit for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
@@ -56,7 +57,7 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	return e.Bytes(), e.Err()
 }
 
-// marshalTail writes what format 2 added at the end: the guard and the
+// marshalTail writes what format 3 added at the end: the guard and the
 // newest record time.
 func (p *Pipeline) marshalTail(e enc) {
 	p.guard.marshal(e)
@@ -89,6 +90,7 @@ func (p *Pipeline) marshalCounters(e enc) {
 	e.uvarint(p.seq)
 	e.uvarint(p.held)
 	e.int(p.sinceRetune)
+	e.bool(p.adopt)
 	e.uvarint(uint64(len(p.scores)))
 	for _, s := range p.scores {
 		e.int(s.Index)
@@ -140,8 +142,8 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	}
 	d := newDec(b)
 	format := d.uvarint()
-	if !d.failed() && format != stateFormat && format != 1 {
-		return nil, fmt.Errorf("%w: format %d (this build reads 1 and %d)", ErrState, format, stateFormat)
+	if !d.failed() && format != stateFormat && format != stateFormat-1 {
+		return nil, fmt.Errorf("%w: format %d (this build reads %d and %d)", ErrState, format, stateFormat-1, stateFormat)
 	}
 	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
@@ -160,7 +162,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	p.restoreTuner(d)
-	if format >= 2 {
+	if format >= 3 {
 		p.guard.restore(d, p.dim, p.at.names)
 		p.newestT = d.int64()
 	}
@@ -223,6 +225,7 @@ func (p *Pipeline) restoreModel(d dec) error {
 func (p *Pipeline) restoreCounters(d dec) {
 	p.seq, p.held = d.uvarint(), d.uvarint()
 	p.sinceRetune = d.int()
+	p.adopt = d.bool()
 	n := d.count(11)
 	p.scores = make([]online.Score, n)
 	for i := range p.scores {
@@ -334,8 +337,16 @@ func (wt *watch) marshalDetector(e enc) error {
 		return err
 	}
 	e.bytes(b)
-	e.int(wt.det.sinceZero)
-	return nil
+	e.bool(wt.trail != nil)
+	if wt.trail != nil {
+		wt.trail.encode(e)
+		c := wt.cut
+		e.bool(c.on)
+		e.int(c.post)
+		e.int(c.train)
+		e.int(c.held)
+	}
+	return e.Err()
 }
 
 // restore reads what marshal wrote into a watch built for the same model.
@@ -411,6 +422,19 @@ func (wt *watch) restoreDetector(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: performance detector: %v", ErrState, err)
 	}
-	wt.det.sinceZero = d.int()
+	if has := d.bool(); has != (wt.trail != nil) {
+		d.fail("loss trail present %v, the model's %v", has, wt.trail != nil)
+	}
+	if d.failed() || wt.trail == nil {
+		return d.err()
+	}
+	if err := wt.trail.decode(d); err != nil {
+		return err
+	}
+	c := pendingCut{on: d.bool(), post: d.int(), train: d.int(), held: d.int()}
+	if !d.failed() && (c.post < 0 || c.train < 0 || c.held < 0 || c.train+c.held != c.post || (!c.on && c.post != 0)) {
+		d.fail("waiting cut of %d records (%d train, %d held out)", c.post, c.train, c.held)
+	}
+	wt.cut = c
 	return d.err()
 }

@@ -29,6 +29,6 @@ func Example() {
 	// Output:
 	// applied 6000 retunes 30
 	// 3010 performance
-	// 3106 performance
-	// final version 4418 λ index 4
+	// 3200 model
+	// final version 4583 λ index 10
 }
