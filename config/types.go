@@ -262,6 +262,9 @@ type Model struct {
 	Threshold Threshold `yaml:"threshold"`
 	// Drift sets the drift alerts.
 	Drift Drift `yaml:"drift"`
+	// Guard sets the plausibility checks (configured bounds and the
+	// standard-deviation guard).
+	Guard Guard `yaml:"guard"`
 }
 
 // Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max
@@ -283,7 +286,10 @@ type Window struct {
 	// always applies, with or without Span. Default 10000.
 	Records int `yaml:"records"`
 	// Span, when > 0, also evicts records older than the newest record's
-	// time minus Span. Default 0 (no time limit).
+	// time minus Span. A record's own time is its "t"; a record without
+	// one takes the newest time seen, and a far-past or out-of-order time
+	// evicts nothing (a time too far ahead is refused, see TimeSkew).
+	// Default 0 (no time limit).
 	Span Duration `yaml:"span"`
 }
 
@@ -417,6 +423,7 @@ func DefaultModel() Model {
 			Cooldown:    Duration(10 * time.Minute),
 			Adapt:       true,
 		},
+		Guard: defaultGuard(),
 	}
 }
 

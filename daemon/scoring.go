@@ -101,7 +101,7 @@ func (s *scoring) handle(m *nats.Msg) {
 	w := s.w
 	snap := w.snap.Load()
 	if snap == nil {
-		s.d.reject(w, m.Subject, "not_ready", "no model published yet to score against", m.Data)
+		s.d.reject(w, m.Subject, reasonNotReady, "no model published yet to score against", m.Data)
 		return
 	}
 	a, suppressed, err := s.sc.Score(snap, m.Data, time.Now())

@@ -21,6 +21,10 @@ import (
 // queue full.
 const reasonQueueFull = "queue_full"
 
+// reasonNotReady is the reject reason of a record to score that arrived
+// before the model published its first version.
+const reasonNotReady = "not_ready"
+
 // item is one decoded record on its way from the subscription goroutine to
 // the model goroutine. Items cycle between worker.free and worker.queue, so
 // the steady state allocates nothing of ours.

@@ -22,7 +22,7 @@ type Options struct {
 	Penalty  *Penalty      // default lasso (Mix 1)
 	Features int           // d, required >= 1: the width at the start
 	Window   int           // max records in the train window; default 10000
-	Span     time.Duration // 0 = none; else records with T < newest.T − Span are evicted
+	Span     time.Duration // 0 = none; else records with T < newest.T − Span are evicted (a record with T = 0, no time, only by count)
 	Size     int           // K ladder members; default 12
 	Floor    float64       // ε, smallest λ = ε·λ_max; default 1e-3
 	Lambda   float64       // > 0: one fixed λ (Size forced to 1, no re-anchoring)

@@ -218,7 +218,9 @@ func (s *sagaLearner) setGamma() {
 func (s *sagaLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := s.ts
 	if s.span > 0 && t != 0 {
-		for m, ok := ts.ring.Oldest(); ok && m.t < t-s.span; m, ok = ts.ring.Oldest() {
+		// A record without a time (t = 0) leaves by count only: one timed
+		// record must not evict every untimed one before it.
+		for m, ok := ts.ring.Oldest(); ok && m.t != 0 && m.t < t-s.span; m, ok = ts.ring.Oldest() {
 			s.evict()
 		}
 	}

@@ -276,8 +276,9 @@ func Run(w io.Writer, o Options) error {
 // pipeline returns the pipeline lariat fit drives: the daemon's per-model
 // pipeline on the table's columns, with a window of window rows, λ fixed
 // (lambda > 0) or a ladder, every every-th row held out into a ring of
-// hold rows (every = 0: none), no drift watch and no retune but the one
-// fit asks for.
+// hold rows (every = 0: none), no drift watch, no retune but the one fit
+// asks for, and no sd guard (a batch fit takes every row of the user's own
+// file; whether a row looked extreme would depend on the rows before it).
 func (s *fitSpec) pipeline(t *table, window int, lambda float64, every, hold int, seed uint64) (*pipeline.Pipeline, error) {
 	return s.pipelineFor(t, window, lambda, every, hold, seed, false)
 }
@@ -294,6 +295,7 @@ func (s *fitSpec) pipelineFor(t *table, window int, lambda float64, every, hold 
 	m.Retune.Every = math.MaxInt32
 	m.Retune.Rule = s.rule.String()
 	m.Drift.Performance = config.DriftOff
+	m.Guard.SD = 0
 	p, err := pipeline.New(pipeline.Options{Model: &m, Seed: seed, Unpenalized: unpenalized})
 	if err != nil {
 		return nil, &Error{Msg: err.Error()}

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -344,5 +345,21 @@ func TestFitOutput(t *testing.T) {
 	d := fitJSON(t, Options{Input: writeCSV(t, "a,b,y\n1,0,1\n2,1,3\n3,0,2\n4,1,5\n5,1,4\n6,0,7\n"), Label: "y"})
 	if d.Selection == nil || d.Selection.Rule != "fraction" || math.Abs(d.Penalty.Lambda-0.01*d.Selection.LambdaMax) > 1e-15 {
 		t.Errorf("few rows: selection %+v, λ %g; want λ = 0.01·λ_max", d.Selection, d.Penalty.Lambda)
+	}
+}
+
+// TestFitTakesEveryRow: lariat fit has no sd guard, so a row far out
+// after 200 ordinary ones (1e12 where the column is 0..9) is fitted, not
+// refused as it would be on a warm daemon model.
+func TestFitTakesEveryRow(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("a,y\n")
+	for i := range 200 {
+		fmt.Fprintf(&b, "%d,%d\n", i%10, 2*(i%10)+i%3)
+	}
+	b.WriteString("1e12,5\n")
+	d := fitJSON(t, Options{Input: writeCSV(t, b.String()), Label: "y", Lambda: new(0.1)})
+	if d.Records != 201 {
+		t.Errorf("records %d, want 201", d.Records)
 	}
 }

@@ -71,6 +71,10 @@ type Pipeline struct {
 	at    moment
 	watch *watch
 	tuner *tuner // nil for a squared-loss model
+	guard *guard
+
+	span    bool  // the train window has a time span
+	newestT int64 // the newest record time applied (Unix ms), 0 before one
 
 	freed    uint64 // columns reset because their slot changed hands (width.go)
 	version  uint64
@@ -205,6 +209,8 @@ func New(o Options) (*Pipeline, error) {
 	}
 	p.watch = newWatch(m, start, trainWindow{p}, &p.at)
 	p.tuner = newTuner(m, o.Threshold)
+	p.guard = newGuard(m, dim)
+	p.span = m.Window.Span > 0
 	return p, nil
 }
 
@@ -224,8 +230,10 @@ func (p *Pipeline) Width() int { return p.dim }
 // room; a name in a slot that changed hands since the last record resets
 // that column first (width.go). now is the wall-clock
 // time that stands in for the record's own time when it has none (alert
-// cooldowns). A record of the wrong width or one the learner refuses leaves
-// the model untouched and gives a *record.Error with the reject reason.
+// cooldowns). A record of the wrong width, one outside the configured
+// bounds or too far from a channel's recent values (see guard), or one the
+// learner refuses leaves the model untouched and gives a *record.Error with
+// the reject reason.
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
@@ -239,7 +247,18 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
 		rec.X = append(rec.X, math.NaN())
 	}
+	if err := p.guard.check(rec.X, rec.Y, names); err != nil {
+		return st, err
+	}
 	r := rec.Learn()
+	recT := r.T
+	if r.T == 0 && p.span {
+		// A record without a time takes the newest time seen, so it
+		// neither moves the span nor is evicted before the records around
+		// it (window.Timed's convention): stamped 0, one timed record
+		// would evict every untimed one.
+		r.T = p.newestT
+	}
 	heldOut := p.split.Holdout(p.seq, rec.Key)
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).
@@ -253,6 +272,8 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	if err != nil {
 		return st, &record.Error{Reason: learnerReason(err), Detail: err.Error()}
 	}
+	p.guard.learn(r.X, r.Y)
+	p.newestT = max(p.newestT, r.T)
 	p.seq++
 	if heldOut {
 		p.held++
@@ -261,7 +282,7 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	// The names move only with an applied record: a refused one that
 	// brought a new name leaves the state as it was.
 	p.at.names = names
-	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
+	p.at.recT, p.at.now, p.at.seq = recT, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
 	p.watch.rereference()
 	p.collect()

@@ -12,10 +12,12 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes. Format 3
-// added the current width (a model grows with the names it learns) and the
-// count of reset columns.
-const stateFormat = 3
+// stateFormat is the version of the layout MarshalBinary writes. Format 4
+// holds the current width (a model grows with the names it learns), the
+// count of reset columns and, at the end, the plausibility guard's
+// statistics and the newest record time. Older formats are refused (their
+// ladder state, online format 3 or older, is no longer read either).
+const stateFormat = 4
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -35,8 +37,9 @@ func fingerprint(m *config.Model) uint64 {
 // with its hysteresis, the counters, the feature names, the drift watch
 // (detector, loss trail and waiting cut, data reference and sample,
 // support streaks, cooldowns), the threshold tuner, the version, the last
-// published document and the stream position. Restore brings it back bit
-// for bit.
+// published document, the stream position, the plausibility guard's
+// statistics and run lengths, and the newest record time. Restore brings
+// it back bit for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
@@ -53,7 +56,15 @@ func (p *Pipeline) MarshalBinary() ([]byte, error) {
 		return nil, err
 	}
 	p.marshalTuner(e)
+	p.marshalTail(e)
 	return e.Bytes(), e.Err()
+}
+
+// marshalTail writes the end of format 4: the guard and the
+// newest record time.
+func (p *Pipeline) marshalTail(e enc) {
+	p.guard.marshal(e)
+	e.int64(p.newestT)
 }
 
 func (p *Pipeline) marshalModel(e enc) error {
@@ -133,8 +144,9 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	d := newDec(b)
-	if v := d.uvarint(); !d.failed() && v != stateFormat {
-		return nil, fmt.Errorf("%w: format %d (this build reads %d)", ErrState, v, stateFormat)
+	format := d.uvarint()
+	if !d.failed() && format != stateFormat {
+		return nil, fmt.Errorf("%w: format %d (this build reads %d)", ErrState, format, stateFormat)
 	}
 	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
@@ -162,6 +174,8 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 		return nil, err
 	}
 	p.restoreTuner(d)
+	p.guard.restore(d, p.dim, p.at.names)
+	p.newestT = d.int64()
 	if err := d.done(); err != nil {
 		return nil, err
 	}

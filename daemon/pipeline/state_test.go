@@ -284,12 +284,20 @@ func TestStateWaitingCut(t *testing.T) {
 	}
 	// The waiting cut ends the watch's state (on, post, train, held: small
 	// counts, one zig-zag byte each), followed by the one byte that says
-	// the squared-loss model has no threshold tuner.
-	bad := bytes.Clone(state)
-	if bad[len(bad)-2] != byte(2*saved.held) {
-		t.Fatalf("state layout: byte %d before the end, want the held-out count %d", bad[len(bad)-2], saved.held)
+	// the squared-loss model has no threshold tuner, and the guard's
+	// section (marshalTail).
+	c, err := Restore(Options{Model: a.p.cfg}, state)
+	if err != nil {
+		t.Fatal(err)
 	}
-	bad[len(bad)-2] += 2 // held + 1: train + held no longer equals post
+	tail := newEnc()
+	c.marshalTail(tail)
+	bad := bytes.Clone(state)
+	at := len(bad) - len(tail.Bytes()) - 2
+	if bad[at] != byte(2*saved.held) {
+		t.Fatalf("state layout: byte %d before the guard section, want the held-out count %d", bad[at], saved.held)
+	}
+	bad[at] += 2 // held + 1: train + held no longer equals post
 	if _, err := Restore(Options{Model: a.p.cfg}, bad); !errors.Is(err, ErrState) {
 		t.Errorf("a waiting cut whose counts do not add up: %v", err)
 	}

@@ -286,7 +286,7 @@ func TestError(t *testing.T) {
 		t.Error("errors.Is matched a target with a detail")
 	}
 	rs := Reasons()
-	if len(rs) != 11 || rs[0] != ReasonOversize || rs[9] != ReasonTime || rs[10] != ReasonName {
+	if len(rs) != 13 || rs[0] != ReasonOversize || rs[9] != ReasonTime || rs[10] != ReasonName || rs[12] != ReasonImplausible {
 		t.Errorf("Reasons() = %q", rs)
 	}
 	rs[0] = "changed"

@@ -19,11 +19,14 @@ const (
 	ReasonWeight          = "weight"            // "w" is 0 or negative (a weight must be positive; absent means 1)
 	ReasonTime            = "time"              // "t" is neither RFC 3339 nor integer Unix milliseconds
 	ReasonName            = "name"              // a new channel name is empty, longer than MaxNameBytes, or holds a control character, invalid UTF-8 or a lone surrogate
+	ReasonOutOfRange      = "out_of_range"      // a channel or the label is outside the bounds configured for it (guard.bounds, guard.label); set by the pipeline
+	ReasonImplausible     = "implausible"       // a value is further from its channel's recent mean than guard.sd standard deviations; set by the pipeline
 )
 
 var reasons = [...]string{
 	ReasonOversize, ReasonMalformed, ReasonType, ReasonNotFinite, ReasonLabel,
 	ReasonTooManyFeatures, ReasonMissingFeature, ReasonDimension, ReasonWeight, ReasonTime, ReasonName,
+	ReasonOutOfRange, ReasonImplausible,
 }
 
 // Reasons returns every reason token, in a fixed order, for example to
