@@ -257,7 +257,34 @@ type Model struct {
 	Threshold Threshold `yaml:"threshold"`
 	// Drift sets the drift alerts.
 	Drift Drift `yaml:"drift"`
+	// Instances makes the entry a template: one model per distinct key
+	// found in a wildcard token of Subject (see [Instances]).
+	Instances Instances `yaml:"instances"`
 }
+
+// Instances turns a model entry into a template. With KeyToken > 0 the
+// token at that position of Subject (counted from 1) must be "*"; the
+// value a record's subject has there is its instance key, and each
+// distinct key gets a model of its own, named <name>.<key>, created on its
+// first record from the template's settings. A key must match
+// [A-Za-z0-9][A-Za-z0-9_-]* and be at most 64 bytes (else the record is
+// rejected with reason "key").
+type Instances struct {
+	// KeyToken is the 1-based position of the subject token that holds
+	// the instance key; 0 (the default) is an ordinary model.
+	KeyToken int `yaml:"key_token"`
+	// Max caps the distinct keys of the template, 1..1000000; a record
+	// of a new key past it is rejected with reason "instances". Default
+	// 10000.
+	Max int `yaml:"max"`
+	// Idle unloads an instance that has had no record for this long,
+	// after a checkpoint; its next record loads it back from that
+	// checkpoint. 0s never unloads. Default 1h.
+	Idle Duration `yaml:"idle"`
+}
+
+// Template reports whether the model entry is a template (KeyToken > 0).
+func (m Model) Template() bool { return m.Instances.KeyToken > 0 }
 
 // Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max.
 type Ladder struct {
@@ -407,6 +434,7 @@ func DefaultModel() Model {
 			Cooldown:    Duration(10 * time.Minute),
 			Adapt:       true,
 		},
+		Instances: Instances{Max: 10000, Idle: Duration(time.Hour)},
 	}
 }
 

@@ -333,6 +333,7 @@ func (m *Model) validate(k *checker, p string) {
 	m.validateTraining(k, p)
 	m.validateFeatures(k, p)
 	m.validateAlerts(k, p)
+	m.validateInstances(k, p)
 }
 
 // validateLoss checks loss, penalty, mix, lambda, the ladder and score_subject.
