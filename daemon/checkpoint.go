@@ -133,9 +133,13 @@ func (w *worker) saveDue(now time.Time) bool {
 // is counted and logged at most once a minute; the model goes on.
 func (w *worker) save(now time.Time) {
 	w.sinceSave, w.lastSave = 0, now
-	err := w.saveErr(now)
+	size, err := w.saveErr(now)
+	w.saveFailed = err != nil
 	if err == nil {
 		w.mm.Checkpoint(sink.CheckpointSaved)
+		if w.onSaved != nil {
+			w.onSaved(w.pipe.Position(), size)
+		}
 		return
 	}
 	w.mm.Checkpoint(sink.CheckpointFailed)
@@ -145,16 +149,17 @@ func (w *worker) save(now time.Time) {
 	}
 }
 
-func (w *worker) saveErr(now time.Time) error {
+// saveErr saves a checkpoint and returns the size of the pipeline state.
+func (w *worker) saveErr(now time.Time) (int, error) {
 	state, err := w.pipe.MarshalBinary()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	payload, err := encodePayload(state, w.d.store.Alerts(w.name))
 	if err != nil {
-		return err
+		return 0, err
 	}
-	return w.d.ckpt.Save(w.name, checkpoint.Encode(payload, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
+	return len(state), w.d.ckpt.Save(w.name, checkpoint.Encode(payload, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
 }
 
 // openCheckpoints opens the checkpoint store under data_dir.

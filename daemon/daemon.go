@@ -54,6 +54,12 @@ type Daemon struct {
 	workers []*worker
 	byName  map[string]*worker
 	routes  map[string][]*worker // subject pattern -> models fed by it
+	// templates are the model entries with instances.key_token: their
+	// instances are workers created on demand (template.go).
+	templates []*template
+	tmpl      map[string]*template
+	tm        *sink.TemplateMetrics
+	wg        *sync.WaitGroup // Run's goroutines, for instances loaded later
 
 	run     atomic.Bool
 	started chan struct{} // closed once listeners are bound and models subscribed
@@ -127,6 +133,7 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 		drainTO:    5 * time.Second,
 		byName:     make(map[string]*worker),
 		routes:     make(map[string][]*worker),
+		tmpl:       make(map[string]*template),
 		started:    make(chan struct{}),
 	}
 	for _, o := range opts {
@@ -144,8 +151,17 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 		return nil, fmt.Errorf("daemon: metrics: %w", err)
 	}
 	d.metrics = m
+	if d.tm, err = sink.NewTemplateMetrics(d.reg); err != nil {
+		return nil, fmt.Errorf("daemon: metrics: %w", err)
+	}
 	d.out = newOutbox(d)
 	for i := range cfg.Models {
+		if cfg.Models[i].Template() {
+			t := newTemplate(d, &cfg.Models[i])
+			d.templates = append(d.templates, t)
+			d.tmpl[t.name] = t
+			continue
+		}
 		w, err := newWorker(d, &cfg.Models[i])
 		if err != nil {
 			return nil, err
@@ -204,7 +220,31 @@ func (d *Daemon) Ready() error {
 			return fmt.Errorf("degraded: model %s does not publish: %s", w.name, *p)
 		}
 	}
+	for _, t := range d.templates {
+		for _, w := range t.workers() {
+			if p := w.problem.Load(); p != nil {
+				return fmt.Errorf("degraded: model %s does not publish: %s", w.name, *p)
+			}
+		}
+	}
 	return nil
+}
+
+// lookup returns the worker of a model or of a template's instance
+// (<template>.<key>; an unloaded instance is loaded).
+func (d *Daemon) lookup(name string) (*worker, bool) {
+	if w, ok := d.byName[name]; ok {
+		return w, true
+	}
+	for i := 0; i < len(name); i++ {
+		if name[i] == '.' {
+			if t := d.tmpl[name[:i]]; t != nil && d.wg != nil {
+				return t.lookup(name[i+1:])
+			}
+			break
+		}
+	}
+	return nil, false
 }
 
 // Run starts the daemon and blocks until ctx is done, then shuts down in the
@@ -232,6 +272,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 // start brings the daemon up in dependency order: HTTP (so /readyz answers
 // during the rest), NATS, model goroutines, subscriptions, the bus watcher.
 func (d *Daemon) start(wg *sync.WaitGroup) error {
+	d.wg = wg
 	if err := d.startHTTP(wg); err != nil {
 		return err
 	}
@@ -247,6 +288,10 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 	for _, w := range d.workers {
 		w.running.Store(true) // before the goroutine starts, so wait never misses it
 		wg.Go(w.run)
+	}
+	for _, t := range d.templates {
+		t.started = true
+		wg.Go(t.run)
 	}
 	if d.cfg.Intake.Mode == config.IntakeCore {
 		if err := d.subscribeModels(); err != nil {
@@ -275,6 +320,9 @@ func (d *Daemon) restoreModels() error {
 	for _, w := range d.workers {
 		w.restored = w.restore()
 	}
+	for _, t := range d.templates {
+		t.loadIndex()
+	}
 	return nil
 }
 
@@ -283,6 +331,11 @@ func (d *Daemon) subscribeModels() error {
 	for subject, ws := range d.routes {
 		if err := d.in.subscribe(subject, ws, d.handler(subject, ws)); err != nil {
 			return fmt.Errorf("daemon: subscribing %s: %w", subject, err)
+		}
+	}
+	for _, t := range d.templates {
+		if err := d.in.subscribe(t.cfg.Subject, nil, t.handleCore); err != nil {
+			return fmt.Errorf("daemon: subscribing %s: %w", t.cfg.Subject, err)
 		}
 	}
 	return nil
@@ -388,6 +441,11 @@ func (d *Daemon) stopAll(wg *sync.WaitGroup) error {
 	}
 	// 2. Drain the queues: each model applies what it holds, publishes its
 	// final document and returns.
+	for _, t := range d.templates {
+		if err := t.stopAll(ctx); err != nil {
+			errs = append(errs, err)
+		}
+	}
 	for _, w := range d.workers {
 		w.stop()
 	}

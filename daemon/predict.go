@@ -24,7 +24,7 @@ var _ sink.Predictor = predictor{}
 // the probability and alert decision for logistic models, and each nonzero
 // feature's contribution coef·x (a missing value is imputed with the mean).
 func (p predictor) Predict(model string, body []byte) (*sink.Prediction, error) {
-	w, ok := p.d.byName[model]
+	w, ok := p.d.lookup(model)
 	if !ok {
 		return nil, fmt.Errorf("%w: %q", sink.ErrUnknownModel, model)
 	}

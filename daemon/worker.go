@@ -73,6 +73,16 @@ type worker struct {
 	// checkpoints (checkpoint.go)
 	sinceSave             int // records consumed since the last checkpoint
 	lastSave, lastSaveLog time.Time
+	saveFailed            bool // the last checkpoint could not be saved
+	// onSaved, if set, is called on the model goroutine after each saved
+	// checkpoint with its stream position and state size (templates).
+	onSaved func(pos uint64, size int)
+	// tick is how often the model goroutine idles and checks publication.
+	tick time.Duration
+	// unloading is set before stop by a template unloading an idle
+	// instance: the final document is not published again (nothing
+	// changed since the last one), the checkpoint is still saved.
+	unloading bool
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -112,6 +122,7 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		pipe:      pipe,
 		popts:     popts,
 		idleSteps: m.Learner.IdleSteps,
+		tick:      d.tick,
 	}
 	w.dec = w.newDecoder(nil)
 	for range m.Queue {
@@ -226,7 +237,7 @@ const batch = 256
 // still queued and publishes a final document.
 func (w *worker) run() {
 	defer close(w.done)
-	tick := time.NewTicker(w.d.tick)
+	tick := time.NewTicker(w.tick)
 	defer tick.Stop()
 	now := time.Now()
 	w.lastSave = now
@@ -268,7 +279,9 @@ func (w *worker) run() {
 				break
 			}
 			now := time.Now()
-			w.publish(now, true)
+			if !w.unloading {
+				w.publish(now, true)
+			}
 			if w.d.ckpt != nil {
 				w.save(now)
 			}
