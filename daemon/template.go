@@ -59,7 +59,7 @@ type template struct {
 	// only then).
 	started bool
 	quit    chan struct{}
-	done  chan struct{}
+	done    chan struct{}
 }
 
 // instance is one key of a template. w is nil while it is unloaded.
