@@ -64,8 +64,11 @@ type template struct {
 
 // instance is one key of a template. w is nil while it is unloaded.
 type instance struct {
-	key  string
-	w    *worker
+	key string
+	w   *worker
+	// leaving is the worker being unloaded (applying what it holds and
+	// saving its checkpoint), until it has; a load waits for it first.
+	leaving *worker
 	last atomic.Int64 // Unix ns of the last record dispatched
 	// lastSeq is the last stream sequence dispatched to it; saved is the
 	// position of its newest saved checkpoint (before its first
@@ -138,6 +141,10 @@ func (t *template) instanceFor(key string, seq uint64) (*instance, string, strin
 // load builds key's worker, restores it from its checkpoint if it has one,
 // and starts its goroutine; t.mu is held.
 func (t *template) load(in *instance) error {
+	if in.leaving != nil {
+		<-in.leaving.done // its checkpoint is saved: load from it
+		t.unloaded(in)
+	}
 	m := *t.cfg
 	m.Name = instanceName(t.name, in.key)
 	w, err := newWorker(t.d, &m)
@@ -359,56 +366,69 @@ func (t *template) run() {
 		case <-t.quit:
 			return
 		case now := <-tick.C:
-			t.mu.Lock()
 			n := t.evictIdle(now)
 			if n > 0 || now.Sub(lastIndex) >= t.d.cfg.Checkpoint.Interval.Std() {
 				lastIndex = now
-				if err := t.saveIndex(now); err != nil {
+				t.mu.Lock()
+				err := t.saveIndex(now)
+				t.mu.Unlock()
+				if err != nil {
 					t.log.Error("template index not saved", "err", err)
 				}
 			}
-			t.mu.Unlock()
 		}
 	}
 }
 
-// evictIdle unloads every instance silent for instances.idle; t.mu is
-// held. It returns how many were unloaded.
+// evictIdle unloads every instance silent for instances.idle: its worker
+// applies what it holds, saves its checkpoint and returns (waited for
+// without holding t.mu, so the other instances go on). It returns how many
+// were unloaded.
 func (t *template) evictIdle(now time.Time) int {
 	idle := t.cfg.Instances.Idle.Std()
 	if idle <= 0 {
 		return 0
 	}
-	n := 0
+	t.mu.Lock()
+	var gone []*instance
+	var ws []*worker
 	for _, in := range t.inst {
-		if in.w == nil || now.UnixNano()-in.last.Load() < int64(idle) || len(in.w.queue) > 0 {
-			continue
-		}
-		if t.unload(in) {
-			n++
+		if w := in.w; w != nil && now.UnixNano()-in.last.Load() >= int64(idle) && len(w.queue) == 0 {
+			w.unloading = true
+			w.stop()
+			in.w, in.leaving = nil, w
+			gone = append(gone, in)
+			ws = append(ws, w)
 		}
 	}
-	return n
+	t.mu.Unlock()
+	for _, w := range ws {
+		<-w.done
+	}
+	t.mu.Lock()
+	for i, in := range gone {
+		if in.leaving == ws[i] { // not loaded again meanwhile
+			t.unloaded(in)
+		}
+	}
+	t.mu.Unlock()
+	return len(gone)
 }
 
-// unload stops an instance's worker, which applies what is queued and
-// saves its checkpoint, and drops it from memory; t.mu is held. A worker
-// whose last checkpoint failed stays unloaded with its stream records
-// unsaved (the floor stays below them, so a restart applies them again).
-func (t *template) unload(in *instance) bool {
-	w := in.w
-	w.unloading = true
-	w.stop()
-	<-w.done
+// unloaded finishes the unloading of in, whose worker has returned; t.mu
+// is held. A worker whose last checkpoint failed leaves its records since
+// the one before unsaved (the floor stays below them, so a restart
+// applies them again).
+func (t *template) unloaded(in *instance) {
+	w := in.leaving
+	in.leaving = nil
 	w.mm.QueueDepthFunc(nil)
 	if w.saveFailed {
 		t.log.Error("instance unloaded without its last checkpoint: its records since the one before are applied again after a restart", "model", w.name)
 	}
-	in.w = nil
 	t.loaded--
 	t.d.tm.Loaded.WithLabelValues(t.name).Set(float64(t.loaded))
 	t.d.tm.Unloads.WithLabelValues(t.name).Inc()
-	return true
 }
 
 // stopAll stops the template's goroutine and every loaded instance (each
@@ -426,6 +446,9 @@ func (t *template) stopAll(ctx context.Context) error {
 		if in.w != nil {
 			in.w.stop()
 			ws = append(ws, in.w)
+		}
+		if in.leaving != nil {
+			ws = append(ws, in.leaving)
 		}
 	}
 	var errs []error

@@ -148,7 +148,11 @@ func checkInstances(t *testing.T, got, ref *Daemon, kr keyedRecords) {
 // the same instance in a daemon that never stopped. Source: the rules of
 // README "Model templates", no external source.
 func TestTemplateRestart(t *testing.T) {
-	kr := makeKeyed(50, 80, 100)
+	keys, cuts := 50, []int{1300, 2900, 4000}
+	if testing.Short() { // -race -short: fewer keys
+		keys, cuts = 15, []int{400, 900, 1200}
+	}
+	kr := makeKeyed(keys, 80, 100)
 	n := len(kr.data)
 	m := tripTemplate(0)
 
@@ -161,7 +165,6 @@ func TestTemplateRestart(t *testing.T) {
 	srv := runServer(t, -1, t.TempDir())
 	url := srv.ClientURL()
 	dir := t.TempDir()
-	cuts := []int{1300, 2900, n}
 	from := 0
 	var td *testDaemon
 	for round, to := range cuts {
@@ -182,8 +185,8 @@ func TestTemplateRestart(t *testing.T) {
 	}
 	waitRead(t, td.Daemon, "trip", uint64(n))
 	checkInstances(t, td.Daemon, ref.Daemon, kr)
-	if got := metricValue(t, td.Daemon, "lariat_template_instances", map[string]string{"template": "trip"}); got != 50 {
-		t.Errorf("lariat_template_instances = %v, want 50", got)
+	if got := metricValue(t, td.Daemon, "lariat_template_instances", map[string]string{"template": "trip"}); got != float64(keys) {
+		t.Errorf("lariat_template_instances = %v, want %d", got, keys)
 	}
 	doc, _, err := getDoc(td.Daemon, "trip.pump07")
 	if err != nil || doc.Model != "trip.pump07" {
@@ -203,6 +206,9 @@ func TestTemplateRestart(t *testing.T) {
 // bit-identical to the instances of a daemon that never unloads.
 func TestTemplateUnload(t *testing.T) {
 	kr := makeKeyed(20, 60, 200)
+	if testing.Short() { // -race -short: fewer keys
+		kr = makeKeyed(8, 60, 200)
+	}
 	n := len(kr.data)
 	refSrv := runServer(t, -1, t.TempDir())
 	ref := startDaemon(t, templateConfig(t, refSrv.ClientURL(), t.TempDir(), tripTemplate(0)), withoutIdle())
@@ -214,7 +220,7 @@ func TestTemplateUnload(t *testing.T) {
 	td := startDaemon(t, templateConfig(t, srv.ClientURL(), t.TempDir(), tripTemplate(150*time.Millisecond)), withoutIdle())
 	natstest.WaitFor(t, 10*time.Second, td.Ready)
 	tp := td.tmpl["trip"]
-	for _, cut := range [][2]int{{0, 400}, {400, 800}, {800, n}} {
+	for _, cut := range [][2]int{{0, n / 3}, {n / 3, 2 * n / 3}, {2 * n / 3, n}} {
 		publishKeyed(t, srv.ClientURL(), kr, cut[0], cut[1])
 		waitRead(t, td.Daemon, "trip", uint64(cut[1]))
 		natstest.WaitFor(t, 10*time.Second, func() error {
@@ -224,8 +230,8 @@ func TestTemplateUnload(t *testing.T) {
 			return nil
 		})
 	}
-	if u := metricValue(t, td.Daemon, "lariat_template_unloads_total", map[string]string{"template": "trip"}); u < 40 {
-		t.Errorf("%v unloads, want at least 40 (20 keys, three bursts)", u)
+	if u := metricValue(t, td.Daemon, "lariat_template_unloads_total", map[string]string{"template": "trip"}); u < float64(2*len(kr.keys)) {
+		t.Errorf("%v unloads, want at least %d (%d keys, three bursts)", u, 2*len(kr.keys), len(kr.keys))
 	}
 	checkInstances(t, td.Daemon, ref.Daemon, kr)
 }
