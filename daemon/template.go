@@ -77,6 +77,16 @@ type instance struct {
 	lastSeq, saved atomic.Uint64
 }
 
+// instanceQueue bounds an instance's queue (the stream is the buffer; a
+// template may have thousands of instances).
+const instanceQueue = 64
+
+// instanceSlowdown is how much less often an instance than a plain model
+// idles, checks its publication and may publish a changed model (a
+// template may have thousands of instances, and each publication solves
+// the window exactly).
+const instanceSlowdown = 10
+
 // instanceName returns the model name of key in template t.
 func instanceName(t, key string) string { return t + "." + key }
 
@@ -147,11 +157,11 @@ func (t *template) load(in *instance) error {
 	}
 	m := *t.cfg
 	m.Name = instanceName(t.name, in.key)
+	m.Queue = min(m.Queue, instanceQueue)
 	w, err := newWorker(t.d, &m)
 	if err != nil {
 		return err
 	}
-	w.tick = 10 * t.d.tick // many instances: a slower tick each
 	if t.d.ckpt != nil {
 		w.restored = w.restore()
 		if w.startPos > in.saved.Load() {

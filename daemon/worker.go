@@ -105,6 +105,11 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		MinPublish: d.minPublish,
 		Threshold:  thresholdOverrideFor(d.cfg.DataDir, m, log),
 	}
+	if m.Template() {
+		// Thousands of instances: each publishes a changed model (an
+		// exact solve on its window) and idles ten times less often.
+		popts.MinPublish = instanceSlowdown * d.minPublish
+	}
 	pipe, err := pipeline.New(popts)
 	if err != nil {
 		return nil, fmt.Errorf("daemon: %w", err)
@@ -124,9 +129,16 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		idleSteps: m.Learner.IdleSteps,
 		tick:      d.tick,
 	}
+	if m.Template() {
+		w.tick = instanceSlowdown * d.tick
+	}
 	w.dec = w.newDecoder(nil)
+	xcap := dim
+	if m.Template() {
+		xcap = 0 // thousands of instances: rows grow to the width in use, once per item
+	}
 	for range m.Queue {
-		w.free <- &item{rec: record.Record{X: make([]float64, 0, dim)}}
+		w.free <- &item{rec: record.Record{X: make([]float64, 0, xcap)}}
 	}
 	w.mm.QueueDepthFunc(func() int { return len(w.queue) })
 	w.scoring = newScoring(w)
