@@ -180,7 +180,24 @@ type Checkpoint struct {
 	// Interval saves at least this often while records arrive, 1s to 1h.
 	// Default 30s.
 	Interval Duration `yaml:"interval"`
+	// Store is where checkpoints live: dir (data_dir/checkpoints, this
+	// process only) or bucket (a JetStream object store every lariat
+	// process on the NATS system can read, so another process can take a
+	// model over). Default "dir".
+	Store string `yaml:"store"`
+	// Bucket names the object store of Store bucket: letters, digits, '_'
+	// or '-'. Default "lariat_checkpoints".
+	Bucket string `yaml:"bucket"`
+	// Replicas is how many servers hold the bucket, 1..5 (3 on a
+	// three-node cluster). Default 1.
+	Replicas int `yaml:"replicas"`
 }
+
+// Checkpoint stores.
+const (
+	CheckpointDir    = "dir"    // data_dir/checkpoints
+	CheckpointBucket = "bucket" // a JetStream object store
+)
 
 // Log configures the process log.
 type Log struct {
@@ -405,7 +422,8 @@ func Default() *Config {
 			MaxAge:       Duration(72 * time.Hour),
 			MaxBytes:     1 << 30,
 		},
-		Checkpoint: Checkpoint{Records: 100000, Interval: Duration(30 * time.Second)},
+		Checkpoint: Checkpoint{Records: 100000, Interval: Duration(30 * time.Second),
+			Store: CheckpointDir, Bucket: "lariat_checkpoints", Replicas: 1},
 	}
 }
 

@@ -1,6 +1,7 @@
 package daemon
 
 import (
+	"context"
 	"encoding/binary"
 	"encoding/json"
 	"errors"
@@ -8,11 +9,15 @@ import (
 	"path/filepath"
 	"time"
 
+	"github.com/nats-io/nats.go/jetstream"
+
+	"lariat/config"
 	"lariat/daemon/pipeline"
 	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
 	"lariat/sink/checkpoint"
+	"lariat/sink/ckptobj"
 )
 
 // checkpointDir is the directory under data_dir that holds the models'
@@ -162,7 +167,31 @@ func (w *worker) saveErr(now time.Time) (int, error) {
 	return len(state), w.d.ckpt.Save(w.name, checkpoint.Encode(payload, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
 }
 
-// openCheckpoints opens the checkpoint store under data_dir.
-func openCheckpoints(dataDir string) (*checkpoint.Dir, error) {
-	return checkpoint.NewDir(filepath.Join(dataDir, checkpointDir))
+// openCheckpoints opens the checkpoint store: the directory under
+// data_dir, or (checkpoint.store bucket) the JetStream object store every
+// lariat process on the NATS system reads, which needs the connection:
+// it waits for it up to bucketWait.
+func (d *Daemon) openCheckpoints() (checkpoint.Store, error) {
+	cp := d.cfg.Checkpoint
+	if cp.Store != config.CheckpointBucket {
+		return checkpoint.NewDir(filepath.Join(d.cfg.DataDir, checkpointDir))
+	}
+	deadline := time.Now().Add(bucketWait)
+	for !d.nc.IsConnected() {
+		if time.Now().After(deadline) {
+			return nil, fmt.Errorf("checkpoint store bucket %s: NATS not connected after %v", cp.Bucket, bucketWait)
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+	js, err := jetstream.New(d.nc)
+	if err != nil {
+		return nil, err
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), bucketWait)
+	defer cancel()
+	return ckptobj.Open(ctx, js, ckptobj.Options{Bucket: cp.Bucket, Replicas: cp.Replicas})
 }
+
+// bucketWait bounds the wait for NATS before the checkpoints in a bucket
+// can be read at start.
+const bucketWait = 30 * time.Second

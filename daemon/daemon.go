@@ -64,7 +64,10 @@ type Daemon struct {
 	run     atomic.Bool
 	started chan struct{} // closed once listeners are bound and models subscribed
 	out     *outbox
-	ckpt    *checkpoint.Dir // the models' checkpoints (set by start, before the model goroutines)
+	ckpt    checkpoint.Store // the models' checkpoints (set by start, before the model goroutines)
+	// ckptWrap, if set, wraps the checkpoint store once it is open (tests
+	// that stop a process without its final checkpoints).
+	ckptWrap func(checkpoint.Store) checkpoint.Store
 
 	// Set while starting, read-only afterwards (published by closing started).
 	srv      *server.Server
@@ -312,9 +315,12 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 // restoreModels opens the checkpoint store under data_dir and restores
 // every model that has a good checkpoint, before any model goroutine runs.
 func (d *Daemon) restoreModels() error {
-	store, err := openCheckpoints(d.cfg.DataDir)
+	store, err := d.openCheckpoints()
 	if err != nil {
 		return fmt.Errorf("daemon: %w", err)
+	}
+	if d.ckptWrap != nil {
+		store = d.ckptWrap(store)
 	}
 	d.ckpt = store
 	for _, w := range d.workers {

@@ -69,7 +69,7 @@ type instance struct {
 	// leaving is the worker being unloaded (applying what it holds and
 	// saving its checkpoint), until it has; a load waits for it first.
 	leaving *worker
-	last atomic.Int64 // Unix ns of the last record dispatched
+	last    atomic.Int64 // Unix ns of the last record dispatched
 	// lastSeq is the last stream sequence dispatched to it; saved is the
 	// position of its newest saved checkpoint (before its first
 	// checkpoint: its first sequence − 1). lastSeq > saved means records
