@@ -16,7 +16,7 @@ import (
 
 // ErrBadName is returned for a model name that cannot be a NATS subject
 // token and key-value key (allowed: letters, digits, '_' and '-').
-var ErrBadName = errors.New("sink: model name must be non-empty and use only letters, digits, '_' and '-'")
+var ErrBadName = errors.New("sink: model name must be tokens of letters, digits, '_' and '-' separated by single dots")
 
 // ErrNoConn is returned by NewPublisher for a nil connection.
 var ErrNoConn = errors.New("sink: no NATS connection")
