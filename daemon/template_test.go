@@ -281,3 +281,34 @@ func TestTemplateRejects(t *testing.T) {
 		t.Error("p4 exists past instances.max")
 	}
 }
+
+// TestTemplateCore: with core intake the template subscribes its subject
+// and each key's records reach its own instance (at most once: nothing is
+// published while the daemon is down here).
+func TestTemplateCore(t *testing.T) {
+	m := tripTemplate(0)
+	cfg := testConfigMode(t, config.IntakeCore, m)
+	td := startDaemon(t, cfg, withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, td.Ready)
+	nc := connect(t, td.NATSURL())
+	kr := makeKeyed(3, 40, 400)
+	for i := range kr.data {
+		if err := nc.Publish(kr.subj[i], kr.data[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := nc.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	natstest.WaitFor(t, 20*time.Second, func() error {
+		for _, k := range kr.keys {
+			if _, ok := td.tmpl["trip"].lookup(k); !ok {
+				return fmt.Errorf("instance %s not created yet", k)
+			}
+			if n, _ := instanceState(t, td.Daemon, "trip", k); n != uint64(kr.per[k]) {
+				return fmt.Errorf("instance %s applied %d of %d", k, n, kr.per[k])
+			}
+		}
+		return nil
+	})
+}
