@@ -37,7 +37,7 @@ func (s deadStore) Save(model string, frame []byte) error {
 // rules of README "Running more than one", no external source.
 func TestTemplateTakeover(t *testing.T) {
 	if testing.Short() {
-		t.Skip("takeover: three NATS servers' worth of records and a dead process's shutdown (minutes under -race)")
+		t.Skip("takeover: two daemons over 2,400 records and a dead process's 10 s shutdown (minutes under -race)")
 	}
 	keys := 30
 	kr := makeKeyed(keys, 80, 300)
