@@ -3,6 +3,8 @@ package daemon
 import (
 	"context"
 	"fmt"
+	"os"
+	"strconv"
 	"runtime"
 	"sync"
 	"testing"
@@ -18,7 +20,9 @@ import (
 // the stream reader's side is measured by BenchmarkThroughput), and the
 // memory per instance (Go heap after a GC, once every instance has full
 // windows, divided by the instances) and the size of one instance's saved
-// state. instances=1 is the baseline of the same run.
+// state. instances=1 is the baseline of the same run. LARIAT_BENCH_FILL
+// sets the records per instance before the timed part (default 55, which
+// fills the windows; the 10k case then takes many minutes on two cores).
 //
 //	go test -run '^$' -bench TemplateInstances -benchtime 100000x -timeout 30m ./daemon/
 func BenchmarkTemplateInstances(b *testing.B) {
@@ -71,7 +75,11 @@ func benchInstances(b *testing.B, keys int) {
 	var before, after runtime.MemStats
 	runtime.GC()
 	runtime.ReadMemStats(&before)
-	feed(keys * 55) // every instance's windows full
+	fill := 55 // every instance's windows full
+	if f, err := strconv.Atoi(os.Getenv("LARIAT_BENCH_FILL")); err == nil && f > 0 {
+		fill = f // fewer records per instance before the timed part
+	}
+	feed(keys * fill)
 	drain()
 	runtime.GC()
 	runtime.ReadMemStats(&after)
