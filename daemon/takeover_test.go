@@ -71,20 +71,25 @@ func TestTemplateTakeover(t *testing.T) {
 	ta := runDaemon(t, a)
 	natstest.WaitFor(t, 10*time.Second, ta.Ready)
 	cut := n * 3 / 5
-	publishKeyed(t, url, kr, 0, cut)
-	// Wait until the index has been saved past the first records at
-	// least once (it is saved every checkpoint interval), then die.
-	natstest.WaitFor(t, 20*time.Second, func() error {
+	publishKeyed(t, url, kr, 0, cut/2)
+	// Every instance has saved a checkpoint into the bucket (pump03 is
+	// checked below) and the template its index, at least once.
+	natstest.WaitFor(t, 30*time.Second, func() error {
 		if _, _, _, err := a.ckpt.Load(indexName("trip")); err != nil {
 			return err
 		}
-		if a.tmpl["trip"].read.Load() < uint64(cut/2) {
-			return errors.New("not read far enough")
+		if metricValue(t, a, "lariat_checkpoints_total", map[string]string{"model": "trip.pump03", "result": "saved"}) < 1 {
+			return errors.New("trip.pump03 has no checkpoint yet")
 		}
 		return nil
 	})
+	// Then more records, and A dies as soon as they are stored, with the
+	// records it applied since its last checkpoints (every 50 records of
+	// an instance or every second) and whatever it still holds.
+	publishKeyed(t, url, kr, cut/2, cut)
 	dead.Store(true)
 	a.nc.Close()
+	t.Logf("A died having read %d of the %d records stored", a.tmpl["trip"].read.Load(), cut)
 	if err := ta.stop(t); err == nil {
 		t.Log("the dead process stopped without an error")
 	}
