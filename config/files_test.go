@@ -152,6 +152,17 @@ var badFiles = map[string][]string{
 	"multidoc.bad.yaml": {
 		`multidoc.bad.yaml:4: more than one YAML document`,
 	},
+	"instances.bad.yaml": {
+		`instances.bad.yaml:5: models[0].instances.key_token: 3 is not a * token of subject "plant.*.trip" (allowed: the 1-based position of a * token)`,
+		`instances.bad.yaml:6: models[0].instances.max: 0 is out of range (allowed: 1..1000000)`,
+		`instances.bad.yaml:7: models[0].instances.idle: -1s is negative (allowed: >= 0s, 0 = never unload)`,
+		`instances.bad.yaml:11: models[1].score_subject: is not offered for a template (instances.key_token > 0)`,
+	},
+	"checkpoint_store.bad.yaml": {
+		`checkpoint_store.bad.yaml:2: checkpoint.store: "cloud" is not allowed (allowed: dir, bucket)`,
+		`checkpoint_store.bad.yaml:3: checkpoint.bucket: "lariat.checkpoints" is not allowed (allowed: 1 to 32 letters, digits, '_' or '-')`,
+		`checkpoint_store.bad.yaml:4: checkpoint.replicas: 7 is out of range (allowed: 1..5)`,
+	},
 	"shape.bad.yaml": {
 		`shape.bad.yaml:1: nats: expected a mapping, got "nats://bus:4222"`,
 		`shape.bad.yaml:3: models: expected a list, got a mapping`,

@@ -180,7 +180,24 @@ type Checkpoint struct {
 	// Interval saves at least this often while records arrive, 1s to 1h.
 	// Default 30s.
 	Interval Duration `yaml:"interval"`
+	// Store is where checkpoints live: dir (data_dir/checkpoints, this
+	// process only) or bucket (a JetStream object store every lariat
+	// process on the NATS system can read, so another process can take a
+	// model over). Default "dir".
+	Store string `yaml:"store"`
+	// Bucket names the object store of Store bucket: letters, digits, '_'
+	// or '-'. Default "lariat_checkpoints".
+	Bucket string `yaml:"bucket"`
+	// Replicas is how many servers hold the bucket, 1..5 (3 on a
+	// three-node cluster). Default 1.
+	Replicas int `yaml:"replicas"`
 }
+
+// Checkpoint stores.
+const (
+	CheckpointDir    = "dir"    // data_dir/checkpoints
+	CheckpointBucket = "bucket" // a JetStream object store
+)
 
 // Log configures the process log.
 type Log struct {
@@ -265,7 +282,35 @@ type Model struct {
 	// Guard sets the plausibility checks (configured bounds and the
 	// standard-deviation guard).
 	Guard Guard `yaml:"guard"`
+
+	// Instances makes the entry a template: one model per distinct key
+	// found in a wildcard token of Subject (see [Instances]).
+	Instances Instances `yaml:"instances"`
 }
+
+// Instances turns a model entry into a template. With KeyToken > 0 the
+// token at that position of Subject (counted from 1) must be "*"; the
+// value a record's subject has there is its instance key, and each
+// distinct key gets a model of its own, named <name>.<key>, created on its
+// first record from the template's settings. A key must match
+// [A-Za-z0-9][A-Za-z0-9_-]* and be at most 64 bytes (else the record is
+// rejected with reason "key").
+type Instances struct {
+	// KeyToken is the 1-based position of the subject token that holds
+	// the instance key; 0 (the default) is an ordinary model.
+	KeyToken int `yaml:"key_token"`
+	// Max caps the distinct keys of the template, 1..1000000; a record
+	// of a new key past it is rejected with reason "instances". Default
+	// 10000.
+	Max int `yaml:"max"`
+	// Idle unloads an instance that has had no record for this long,
+	// after a checkpoint; its next record loads it back from that
+	// checkpoint. 0s never unloads. Default 1h.
+	Idle Duration `yaml:"idle"`
+}
+
+// Template reports whether the model entry is a template (KeyToken > 0).
+func (m Model) Template() bool { return m.Instances.KeyToken > 0 }
 
 // Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max
 // for lasso and elastic net, and for ridge between the λ where its effective
@@ -394,7 +439,8 @@ func Default() *Config {
 			MaxAge:       Duration(72 * time.Hour),
 			MaxBytes:     1 << 30,
 		},
-		Checkpoint: Checkpoint{Records: 100000, Interval: Duration(30 * time.Second)},
+		Checkpoint: Checkpoint{Records: 100000, Interval: Duration(30 * time.Second),
+			Store: CheckpointDir, Bucket: "lariat_checkpoints", Replicas: 1},
 	}
 }
 
@@ -423,7 +469,8 @@ func DefaultModel() Model {
 			Cooldown:    Duration(10 * time.Minute),
 			Adapt:       true,
 		},
-		Guard: defaultGuard(),
+		Guard:     defaultGuard(),
+		Instances: Instances{Max: 10000, Idle: Duration(time.Hour)},
 	}
 }
 

@@ -161,6 +161,11 @@ func (c *Config) validateDurability(k *checker) {
 	if cp.Interval < Duration(time.Second) || cp.Interval > Duration(time.Hour) {
 		k.add("checkpoint.interval", "%v is out of range (allowed: 1s..1h)", cp.Interval)
 	}
+	k.oneOf("checkpoint.store", cp.Store, CheckpointDir, CheckpointBucket)
+	if !streamRE.MatchString(cp.Bucket) {
+		k.add("checkpoint.bucket", "%q is not allowed (allowed: 1 to 32 letters, digits, '_' or '-')", cp.Bucket)
+	}
+	k.intRange("checkpoint.replicas", cp.Replicas, 1, 5)
 	if in.Mode != IntakeCore {
 		if minAge := max(Duration(time.Minute), 10*cp.Interval); in.MaxAge < minAge {
 			k.add("intake.max_age", "%v is too short (allowed: >= %v, ten checkpoint intervals and at least 1m, so a restart finds every record after its checkpoint)", in.MaxAge, minAge)
@@ -334,6 +339,7 @@ func (m *Model) validate(k *checker, p string) {
 	m.validateFeatures(k, p)
 	m.validateAlerts(k, p)
 	m.validateGuard(k, p)
+	m.validateInstances(k, p)
 }
 
 // validateLoss checks loss, penalty, mix, lambda, the ladder and score_subject.

@@ -1,6 +1,7 @@
 package daemon
 
 import (
+	"context"
 	"encoding/binary"
 	"encoding/json"
 	"errors"
@@ -8,11 +9,15 @@ import (
 	"path/filepath"
 	"time"
 
+	"github.com/nats-io/nats.go/jetstream"
+
+	"lariat/config"
 	"lariat/daemon/pipeline"
 	"lariat/daemon/record"
 	"lariat/online"
 	"lariat/sink"
 	"lariat/sink/checkpoint"
+	"lariat/sink/ckptobj"
 )
 
 // checkpointDir is the directory under data_dir that holds the models'
@@ -134,9 +139,13 @@ func (w *worker) saveDue(now time.Time) bool {
 // is counted and logged at most once a minute; the model goes on.
 func (w *worker) save(now time.Time) {
 	w.sinceSave, w.lastSave = 0, now
-	err := w.saveErr(now)
+	size, err := w.saveErr(now)
+	w.saveFailed = err != nil
 	if err == nil {
 		w.mm.Checkpoint(sink.CheckpointSaved)
+		if w.onSaved != nil {
+			w.onSaved(w.pipe.Position(), size)
+		}
 		return
 	}
 	w.mm.Checkpoint(sink.CheckpointFailed)
@@ -146,19 +155,44 @@ func (w *worker) save(now time.Time) {
 	}
 }
 
-func (w *worker) saveErr(now time.Time) error {
+// saveErr saves a checkpoint and returns the size of the pipeline state.
+func (w *worker) saveErr(now time.Time) (int, error) {
 	state, err := w.pipe.MarshalBinary()
 	if err != nil {
-		return err
+		return 0, err
 	}
 	payload, err := encodePayload(state, w.d.store.Alerts(w.name))
 	if err != nil {
-		return err
+		return 0, err
 	}
-	return w.d.ckpt.Save(w.name, checkpoint.Encode(payload, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
+	return len(state), w.d.ckpt.Save(w.name, checkpoint.Encode(payload, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
 }
 
-// openCheckpoints opens the checkpoint store under data_dir.
-func openCheckpoints(dataDir string) (*checkpoint.Dir, error) {
-	return checkpoint.NewDir(filepath.Join(dataDir, checkpointDir))
+// openCheckpoints opens the checkpoint store: the directory under
+// data_dir, or (checkpoint.store bucket) the JetStream object store every
+// lariat process on the NATS system reads, which needs the connection:
+// it waits for it up to bucketWait.
+func (d *Daemon) openCheckpoints() (checkpoint.Store, error) {
+	cp := d.cfg.Checkpoint
+	if cp.Store != config.CheckpointBucket {
+		return checkpoint.NewDir(filepath.Join(d.cfg.DataDir, checkpointDir))
+	}
+	deadline := time.Now().Add(bucketWait)
+	for !d.nc.IsConnected() {
+		if time.Now().After(deadline) {
+			return nil, fmt.Errorf("checkpoint store bucket %s: NATS not connected after %v", cp.Bucket, bucketWait)
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+	js, err := jetstream.New(d.nc)
+	if err != nil {
+		return nil, err
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), bucketWait)
+	defer cancel()
+	return ckptobj.Open(ctx, js, ckptobj.Options{Bucket: cp.Bucket, Replicas: cp.Replicas})
 }
+
+// bucketWait bounds the wait for NATS before the checkpoints in a bucket
+// can be read at start.
+const bucketWait = 30 * time.Second

@@ -59,11 +59,20 @@ type Daemon struct {
 	workers []*worker
 	byName  map[string]*worker
 	routes  map[string][]*worker // subject pattern -> models fed by it
+	// templates are the model entries with instances.key_token: their
+	// instances are workers created on demand (template.go).
+	templates []*template
+	tmpl      map[string]*template
+	tm        *sink.TemplateMetrics
+	wg        *sync.WaitGroup // Run's goroutines, for instances loaded later
 
 	run     atomic.Bool
 	started chan struct{} // closed once listeners are bound and models subscribed
 	out     *outbox
-	ckpt    *checkpoint.Dir // the models' checkpoints (set by start, before the model goroutines)
+	ckpt    checkpoint.Store // the models' checkpoints (set by start, before the model goroutines)
+	// ckptWrap, if set, wraps the checkpoint store once it is open (tests
+	// that stop a process without its final checkpoints).
+	ckptWrap func(checkpoint.Store) checkpoint.Store
 
 	// Set while starting, read-only afterwards (published by closing started).
 	srv      *server.Server
@@ -134,6 +143,7 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 		rejectBurst: rejectBurst,
 		byName:      make(map[string]*worker),
 		routes:      make(map[string][]*worker),
+		tmpl:        make(map[string]*template),
 		started:     make(chan struct{}),
 	}
 	for _, o := range opts {
@@ -151,9 +161,18 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 		return nil, fmt.Errorf("daemon: metrics: %w", err)
 	}
 	d.metrics = m
+	if d.tm, err = sink.NewTemplateMetrics(d.reg); err != nil {
+		return nil, fmt.Errorf("daemon: metrics: %w", err)
+	}
 	d.out = newOutbox(d)
 	d.unrouted = newRejectLimiter(d.rejectRate, d.rejectBurst)
 	for i := range cfg.Models {
+		if cfg.Models[i].Template() {
+			t := newTemplate(d, &cfg.Models[i])
+			d.templates = append(d.templates, t)
+			d.tmpl[t.name] = t
+			continue
+		}
 		w, err := newWorker(d, &cfg.Models[i])
 		if err != nil {
 			return nil, err
@@ -212,7 +231,31 @@ func (d *Daemon) Ready() error {
 			return fmt.Errorf("degraded: model %s does not publish: %s", w.name, *p)
 		}
 	}
+	for _, t := range d.templates {
+		for _, w := range t.workers() {
+			if p := w.problem.Load(); p != nil {
+				return fmt.Errorf("degraded: model %s does not publish: %s", w.name, *p)
+			}
+		}
+	}
 	return nil
+}
+
+// lookup returns the worker of a model or of a template's instance
+// (<template>.<key>; an unloaded instance is loaded).
+func (d *Daemon) lookup(name string) (*worker, bool) {
+	if w, ok := d.byName[name]; ok {
+		return w, true
+	}
+	for i := 0; i < len(name); i++ {
+		if name[i] == '.' {
+			if t := d.tmpl[name[:i]]; t != nil && d.wg != nil {
+				return t.lookup(name[i+1:])
+			}
+			break
+		}
+	}
+	return nil, false
 }
 
 // Run starts the daemon and blocks until ctx is done, then shuts down in the
@@ -240,6 +283,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 // start brings the daemon up in dependency order: HTTP (so /readyz answers
 // during the rest), NATS, model goroutines, subscriptions, the bus watcher.
 func (d *Daemon) start(wg *sync.WaitGroup) error {
+	d.wg = wg
 	if err := d.startHTTP(wg); err != nil {
 		return err
 	}
@@ -255,6 +299,10 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 	for _, w := range d.workers {
 		w.running.Store(true) // before the goroutine starts, so wait never misses it
 		wg.Go(w.run)
+	}
+	for _, t := range d.templates {
+		t.started = true
+		wg.Go(t.run)
 	}
 	if d.cfg.Intake.Mode == config.IntakeCore {
 		if err := d.subscribeModels(); err != nil {
@@ -275,13 +323,19 @@ func (d *Daemon) start(wg *sync.WaitGroup) error {
 // restoreModels opens the checkpoint store under data_dir and restores
 // every model that has a good checkpoint, before any model goroutine runs.
 func (d *Daemon) restoreModels() error {
-	store, err := openCheckpoints(d.cfg.DataDir)
+	store, err := d.openCheckpoints()
 	if err != nil {
 		return fmt.Errorf("daemon: %w", err)
+	}
+	if d.ckptWrap != nil {
+		store = d.ckptWrap(store)
 	}
 	d.ckpt = store
 	for _, w := range d.workers {
 		w.restored = w.restore()
+	}
+	for _, t := range d.templates {
+		t.loadIndex()
 	}
 	return nil
 }
@@ -291,6 +345,11 @@ func (d *Daemon) subscribeModels() error {
 	for subject, ws := range d.routes {
 		if err := d.in.subscribe(subject, ws, d.handler(subject, ws)); err != nil {
 			return fmt.Errorf("daemon: subscribing %s: %w", subject, err)
+		}
+	}
+	for _, t := range d.templates {
+		if err := d.in.subscribe(t.cfg.Subject, nil, t.handleCore); err != nil {
+			return fmt.Errorf("daemon: subscribing %s: %w", t.cfg.Subject, err)
 		}
 	}
 	return nil
@@ -396,6 +455,11 @@ func (d *Daemon) stopAll(wg *sync.WaitGroup) error {
 	}
 	// 2. Drain the queues: each model applies what it holds, publishes its
 	// final document and returns.
+	for _, t := range d.templates {
+		if err := t.stopAll(ctx); err != nil {
+			errs = append(errs, err)
+		}
+	}
 	for _, w := range d.workers {
 		w.stop()
 	}

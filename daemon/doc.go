@@ -41,6 +41,14 @@
 // newest good checkpoint under data_dir/checkpoints (checkpoint.go) and
 // published at once; the model goroutine saves a checkpoint every
 // checkpoint.records records or checkpoint.interval, and at shutdown.
+// With checkpoint.store bucket the checkpoints live in a JetStream object
+// store instead (sink/ckptobj), where another process can restore them.
+//
+// A template (instances.key_token, template.go) has one stream over every
+// key, read from the floor of its index, and creates an instance (an
+// ordinary model goroutine named <template>.<key>) per key on its first
+// record; idle instances are checkpointed and unloaded, and loaded back on
+// their next record.
 //
 // Core NATS drops messages for a client that falls behind (a slow
 // consumer). The per-subscription pending limits are raised to
@@ -57,7 +65,8 @@
 //     (what a reader held and did not queue is read again at the next start:
 //     a model's stream position only moves when it has applied a record);
 //  2. drain the queues: each model goroutine applies every queued record,
-//     publishes its final document, saves its checkpoint and returns;
+//     publishes its final document, saves its checkpoint and returns (a
+//     template's instances first, then the template saves its index);
 //  3. publish the final documents (bus and key-value bucket), flush and
 //     close the NATS connection, shut the embedded server down;
 //  4. shut the HTTP server down.

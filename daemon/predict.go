@@ -30,7 +30,7 @@ var _ sink.Predictor = predictor{}
 // features is refused (an error wrapping sink.ErrBadRecord, 400): its
 // prediction would be the mean one, whatever was sent.
 func (p predictor) Predict(model string, body []byte) (*sink.Prediction, error) {
-	w, ok := p.d.byName[model]
+	w, ok := p.d.lookup(model)
 	if !ok {
 		return nil, fmt.Errorf("%w: %s", sink.ErrUnknownModel, sink.QuoteInput(model))
 	}

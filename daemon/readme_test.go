@@ -36,7 +36,7 @@ func TestReadmeRejectTable(t *testing.T) {
 			t.Errorf("row %s has no example or explanation", m[1])
 		}
 	}
-	want := append(record.Reasons(), reasonQueueFull, reasonNoModel, reasonNotReady)
+	want := append(record.Reasons(), reasonQueueFull, reasonNoModel, reasonNotReady, reasonKey, reasonInstances)
 	for _, r := range want {
 		if !slices.Contains(listed, r) {
 			t.Errorf("reason %q has no row in the README's reject table", r)

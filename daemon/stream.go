@@ -59,6 +59,11 @@ func (s *streamIntake) start(ctx context.Context) error {
 			return fmt.Errorf("daemon: model %s: %w", w.name, err)
 		}
 	}
+	for _, t := range s.d.templates {
+		if err := s.startTemplate(ctx, t); err != nil {
+			return fmt.Errorf("daemon: template %s: %w", t.name, err)
+		}
+	}
 	return nil
 }
 
@@ -176,7 +181,7 @@ func (s *streamIntake) drain(ctx context.Context) error {
 
 // describeStreams lists the streams, for the start-up log.
 func describeStreams(c *config.Config) string {
-	names := make([]string, len(c.Models))
+	names := make([]string, len(c.Models)) // templates included
 	for i := range c.Models {
 		names[i] = streamName(c, &c.Models[i])
 	}

@@ -23,7 +23,7 @@ var _ sink.ThresholdSetter = (*Daemon)(nil)
 // or non-logistic model gives an error wrapping sink.ErrUnknownModel; a
 // change that could not be saved or handed over wraps sink.ErrNotReady.
 func (d *Daemon) SetThresholdTarget(model, mode string, target float64) error {
-	w, ok := d.byName[model]
+	w, ok := d.lookup(model)
 	if !ok {
 		return fmt.Errorf("%w: %s", sink.ErrUnknownModel, sink.QuoteInput(model))
 	}

@@ -78,6 +78,16 @@ type worker struct {
 	// checkpoints (checkpoint.go)
 	sinceSave             int // records consumed since the last checkpoint
 	lastSave, lastSaveLog time.Time
+	saveFailed            bool // the last checkpoint could not be saved
+	// onSaved, if set, is called on the model goroutine after each saved
+	// checkpoint with its stream position and state size (templates).
+	onSaved func(pos uint64, size int)
+	// tick is how often the model goroutine idles and checks publication.
+	tick time.Duration
+	// unloading is set before stop by a template unloading an idle
+	// instance: the final document is not published again (nothing
+	// changed since the last one), the checkpoint is still saved.
+	unloading bool
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -101,6 +111,11 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		MinPublish: d.minPublish,
 		Threshold:  thresholdOverrideFor(d.cfg.DataDir, m, log),
 	}
+	if m.Template() {
+		// Thousands of instances: each publishes a changed model (an
+		// exact solve on its window) and idles ten times less often.
+		popts.MinPublish = instanceSlowdown * d.minPublish
+	}
 	pipe, err := pipeline.New(popts)
 	if err != nil {
 		return nil, fmt.Errorf("daemon: %w", err)
@@ -119,6 +134,10 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		popts:     popts,
 		idleSteps: m.Learner.IdleSteps,
 		rejects:   newRejectLimiter(d.rejectRate, d.rejectBurst),
+		tick:      d.tick,
+	}
+	if m.Template() {
+		w.tick = instanceSlowdown * d.tick
 	}
 	w.dec = w.newDecoder(nil)
 	// Each item's record starts with room for the listed features (at least
@@ -126,8 +145,12 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 	// of 256 would hold 8 MB. An item grows once when it first carries a
 	// wider record (the decoder reallocates X), so the steady state still
 	// allocates nothing.
+	xcap := min(dim, max(32, len(m.Features)))
+	if m.Template() {
+		xcap = 0 // thousands of instances: rows grow to the width in use, once per item
+	}
 	for range m.Queue {
-		w.free <- &item{rec: record.Record{X: make([]float64, 0, min(dim, max(32, len(m.Features))))}}
+		w.free <- &item{rec: record.Record{X: make([]float64, 0, xcap)}}
 	}
 	w.mm.QueueDepthFunc(func() int { return len(w.queue) })
 	w.scoring = newScoring(w)
@@ -239,7 +262,7 @@ const batch = 256
 // still queued and publishes a final document.
 func (w *worker) run() {
 	defer close(w.done)
-	tick := time.NewTicker(w.d.tick)
+	tick := time.NewTicker(w.tick)
 	defer tick.Stop()
 	now := time.Now()
 	w.lastSave = now
@@ -281,7 +304,9 @@ func (w *worker) run() {
 				break
 			}
 			now := time.Now()
-			w.publish(now, true)
+			if !w.unloading {
+				w.publish(now, true)
+			}
 			if w.d.ckpt != nil {
 				w.save(now)
 			}

@@ -21,7 +21,7 @@ import (
 //
 //	Method  Path                          Success                      Errors
 //	GET     /                             status page (HTML)           404 (other paths)
-//	GET     /v1/models                    {"models": [summary…]}
+//	GET     /v1/models?prefix=&after=&limit=  {"models": [summary…], "next"}   400 (limit)
 //	GET     /v1/models/{name}             ModelDoc, ETag "<epoch>-<version>"   304 (If-None-Match), 404, 503 (no version yet)
 //	GET     /v1/models/{name}/pmml        PMML 4.4 XML, same ETag      304, 404, 503
 //	GET     /v1/models/{name}/ladder      {model, version, lambda_index, ladder}  404, 503
@@ -300,13 +300,46 @@ type modelSummary struct {
 	Updated time.Time `json:"updated"`
 }
 
-// list serves GET /v1/models.
+// MaxListLimit bounds the limit parameter of GET /v1/models.
+const MaxListLimit = 10000
+
+// list serves GET /v1/models, sorted by name: ?prefix= keeps the names
+// that start with it (a template's instances: "<template>."), ?after=
+// those after it, ?limit= at most that many (1..MaxListLimit; default
+// all). When more follow, "next" is the after= of the next page.
 func (h *handler) list(w http.ResponseWriter, r *http.Request) {
+	q := r.URL.Query()
+	prefix, after := q.Get("prefix"), q.Get("after")
+	limit := -1
+	if l := q.Get("limit"); l != "" {
+		n, err := strconv.Atoi(l)
+		if err != nil || n < 1 || n > MaxListLimit {
+			writeError(w, http.StatusBadRequest, fmt.Sprintf("limit %q is not allowed (allowed: 1..%d)", l, MaxListLimit))
+			return
+		}
+		limit = n
+	}
 	rows := []modelSummary{}
-	for _, d := range h.o.Store.Models() {
+	next := ""
+	for _, name := range h.o.Store.Names() {
+		if !strings.HasPrefix(name, prefix) || after != "" && name <= after {
+			continue
+		}
+		d, _ := h.o.Store.Model(name)
+		if d == nil {
+			continue
+		}
+		if limit >= 0 && len(rows) == limit {
+			next = rows[len(rows)-1].Name
+			break
+		}
 		rows = append(rows, modelSummary{d.Model, d.Version, d.Loss, d.Penalty.Lambda, d.Nonzero(), d.Updated})
 	}
-	writeJSON(w, http.StatusOK, map[string]any{"models": rows})
+	out := map[string]any{"models": rows}
+	if next != "" {
+		out["next"] = next
+	}
+	writeJSON(w, http.StatusOK, out)
 }
 
 // model serves GET /v1/models/{name} with ETag and If-None-Match.

@@ -16,7 +16,7 @@ import (
 
 // ErrBadName is returned for a model name that cannot be a NATS subject
 // token and key-value key (allowed: letters, digits, '_' and '-').
-var ErrBadName = errors.New("sink: model name must be non-empty and use only letters, digits, '_' and '-'")
+var ErrBadName = errors.New("sink: model name must be tokens of letters, digits, '_' and '-' separated by single dots")
 
 // ErrNoConn is returned by NewPublisher for a nil connection.
 var ErrNoConn = errors.New("sink: no NATS connection")
@@ -159,12 +159,17 @@ func (p *Publisher) withTimeout(ctx context.Context) (context.Context, context.C
 	return context.WithTimeout(ctx, p.timeout)
 }
 
-// validName reports whether name is a safe subject token and KV key.
+// validName reports whether name is safe as subject tokens and a KV key:
+// tokens of [A-Za-z0-9_-] separated by single dots (a template instance is
+// <template>.<key>).
 func validName(name string) bool {
-	if name == "" {
+	if name == "" || name[0] == '.' || name[len(name)-1] == '.' {
 		return false
 	}
-	for _, c := range name {
+	for i, c := range name {
+		if c == '.' && name[i-1] != '.' {
+			continue
+		}
 		if !(c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= '0' && c <= '9' || c == '_' || c == '-') {
 			return false
 		}

@@ -179,7 +179,7 @@ func TestPublisherErrors(t *testing.T) {
 		want error
 		kind string
 	}{
-		{"model name with a dot", func() error { return p.PublishModel(ctx, testDoc(t, "a.b", "squared", 1)) }, ErrBadName, PublishKindModel},
+		{"model name with an empty token", func() error { return p.PublishModel(ctx, testDoc(t, "a..b", "squared", 1)) }, ErrBadName, PublishKindModel},
 		{"alert without kind", func() error { return p.PublishAlert(&Alert{Model: "m", Severity: SeverityInfo}) }, ErrBadAlert, PublishKindAlert},
 		{"reject with wildcard", func() error { return p.PublishReject(&Reject{Model: "m.*"}) }, ErrBadName, PublishKindReject},
 	} {

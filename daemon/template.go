@@ -1,0 +1,505 @@
+package daemon
+
+import (
+	"context"
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"slices"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"lariat/config"
+	"lariat/sink"
+	"lariat/sink/checkpoint"
+)
+
+// Reject reasons of a template's records.
+const (
+	// reasonKey: the subject's key token is not a valid instance key.
+	reasonKey = "key"
+	// reasonInstances: a new key past instances.max.
+	reasonInstances = "instances"
+)
+
+// template is a model entry with instances.key_token: one model (a worker
+// named <template>.<key>) per distinct key in the subject's key token,
+// created on the key's first record, unloaded after instances.idle without
+// a record (checkpointed first) and loaded back from its checkpoint on its
+// next record.
+//
+// With the durable intake one stream captures the template's subject and
+// one ordered consumer reads every key in stream order (dispatch). Each
+// instance's checkpoint holds the last stream sequence it applied, so a
+// record already applied is skipped per instance. The template's index (a
+// checkpoint named <template>._index) keeps every known key with the
+// position of its newest saved checkpoint and the floor: a sequence at or
+// below which every record is in some saved checkpoint. A restart reads
+// the stream from floor+1 and skips, per instance, what its checkpoint
+// already holds: nothing is lost and nothing applied twice.
+type template struct {
+	d    *Daemon
+	cfg  *config.Model
+	name string
+	log  *slog.Logger
+	mm   *sink.ModelMetrics // the template's own rejects (key, instances)
+
+	mu     sync.Mutex
+	inst   map[string]*instance // every known key, loaded or not
+	loaded int                  // instances with a running worker
+
+	read  atomic.Uint64 // last stream sequence dispatched (or rejected here)
+	floor uint64        // the index's floor at start (read once by the intake)
+	// started is set before run's goroutine starts (stopAll waits for it
+	// only then).
+	started bool
+	quit    chan struct{}
+	done    chan struct{}
+}
+
+// instance is one key of a template. w is nil while it is unloaded.
+type instance struct {
+	key string
+	w   *worker
+	// leaving is the worker being unloaded (applying what it holds and
+	// saving its checkpoint), until it has; a load waits for it first.
+	leaving *worker
+	last    atomic.Int64 // Unix ns of the last record dispatched
+	// lastSeq is the last stream sequence dispatched to it; saved is the
+	// position of its newest saved checkpoint (before its first
+	// checkpoint: its first sequence − 1). lastSeq > saved means records
+	// not yet in a saved checkpoint.
+	lastSeq, saved atomic.Uint64
+}
+
+// instanceQueue bounds an instance's queue (the stream is the buffer; a
+// template may have thousands of instances).
+const instanceQueue = 64
+
+// instanceSlowdown is how much less often an instance than a plain model
+// idles, checks its publication and may publish a changed model (a
+// template may have thousands of instances, and each publication solves
+// the window exactly).
+const instanceSlowdown = 10
+
+// instanceName returns the model name of key in template t.
+func instanceName(t, key string) string { return t + "." + key }
+
+// indexName is the checkpoint name of a template's index; "_" cannot start
+// a key, so it never names an instance.
+func indexName(t string) string { return t + "._index" }
+
+func newTemplate(d *Daemon, m *config.Model) *template {
+	return &template{
+		d: d, cfg: m, name: m.Name,
+		log:  d.log.With("template", m.Name),
+		mm:   d.metrics.Model(m.Name),
+		inst: make(map[string]*instance),
+		quit: make(chan struct{}),
+		done: make(chan struct{}),
+	}
+}
+
+// key returns the instance key of subject, or a reject reason and detail.
+func (t *template) key(subject string) (key, reason, detail string) {
+	key = config.InstanceKey(subject, t.cfg.Instances.KeyToken)
+	if !config.ValidKey(key) {
+		return "", reasonKey, fmt.Sprintf("subject %q: token %d (%q) is not an instance key (allowed: [A-Za-z0-9][A-Za-z0-9_-]*, at most 64 bytes)",
+			subject, t.cfg.Instances.KeyToken, key)
+	}
+	return key, "", ""
+}
+
+// reject counts a record the template refused before any instance saw it.
+func (t *template) reject(subject, reason, detail string, data []byte) {
+	t.mm.Rejected(reason)
+	if p := t.d.pub.Load(); p != nil {
+		_ = p.PublishReject(&sink.Reject{Model: t.name, Subject: subject, Reason: reason, Detail: detail, Data: data})
+	}
+}
+
+// instanceFor returns key's loaded worker, creating or loading it; t.mu is
+// held. It returns a reject reason when the key is new and the template is
+// full, or the instance cannot be built.
+func (t *template) instanceFor(key string, seq uint64) (*instance, string, string) {
+	in := t.inst[key]
+	if in == nil {
+		if len(t.inst) >= t.cfg.Instances.Max {
+			return nil, reasonInstances, fmt.Sprintf("template %s has %d instances (instances.max)", t.name, len(t.inst))
+		}
+		in = &instance{key: key}
+		if seq > 0 {
+			in.saved.Store(seq - 1)
+			in.lastSeq.Store(seq - 1)
+		}
+		t.inst[key] = in
+	}
+	if in.w == nil {
+		if err := t.load(in); err != nil {
+			t.log.Error("instance not loaded", "key", key, "err", err)
+			return nil, reasonInstances, fmt.Sprintf("instance %s could not be loaded: %v", instanceName(t.name, key), err)
+		}
+	}
+	return in, "", ""
+}
+
+// load builds key's worker, restores it from its checkpoint if it has one,
+// and starts its goroutine; t.mu is held.
+func (t *template) load(in *instance) error {
+	if in.leaving != nil {
+		<-in.leaving.done // its checkpoint is saved: load from it
+		t.unloaded(in)
+	}
+	m := *t.cfg
+	m.Name = instanceName(t.name, in.key)
+	m.Queue = min(m.Queue, instanceQueue)
+	w, err := newWorker(t.d, &m)
+	if err != nil {
+		return err
+	}
+	if t.d.ckpt != nil {
+		w.restored = w.restore()
+		if w.startPos > in.saved.Load() {
+			in.saved.Store(w.startPos)
+		}
+		if w.startPos > in.lastSeq.Load() {
+			in.lastSeq.Store(w.startPos)
+		}
+	}
+	if p := t.d.pub.Load(); p != nil && p.KV() != nil {
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+		if e, err := p.KV().Get(ctx, m.Name); err == nil {
+			var v struct {
+				Version uint64 `json:"version"`
+			}
+			if json.Unmarshal(e.Value(), &v) == nil {
+				w.versionFloor.Store(v.Version)
+			}
+		}
+		cancel()
+	}
+	w.onSaved = func(pos uint64, size int) {
+		if pos > in.saved.Load() {
+			in.saved.Store(pos)
+		}
+		t.d.tm.StateBytes.WithLabelValues(w.name).Set(float64(size))
+	}
+	t.d.store.Register(w.name)
+	in.w = w
+	in.last.Store(time.Now().UnixNano())
+	t.loaded++
+	t.d.tm.Loaded.WithLabelValues(t.name).Set(float64(t.loaded))
+	t.d.tm.Known.WithLabelValues(t.name).Set(float64(len(t.inst)))
+	w.running.Store(true)
+	t.d.wg.Go(w.run)
+	return nil
+}
+
+// dispatch hands one record of the template's stream (sequence seq, 0 from
+// core NATS) to its instance. A record at or below the instance's
+// checkpoint position was applied before and is skipped. It returns false
+// once stop is closed (nothing queued).
+func (t *template) dispatch(subject string, data []byte, seq uint64, stop <-chan struct{}, m *nats.Msg) bool {
+	key, reason, detail := t.key(subject)
+	if reason != "" {
+		t.reject(subject, reason, detail, data)
+		t.read.Store(seq)
+		return true
+	}
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	if in := t.inst[key]; seq > 0 && in != nil && in.w == nil && seq <= in.saved.Load() {
+		t.read.Store(seq) // in the unloaded instance's checkpoint already
+		return true
+	}
+	in, reason, detail := t.instanceFor(key, seq)
+	if reason != "" {
+		t.reject(subject, reason, detail, data)
+		t.read.Store(seq)
+		return true
+	}
+	if seq > 0 && seq <= in.w.startPos {
+		t.read.Store(seq) // applied before the checkpoint it was restored from
+		return true
+	}
+	in.last.Store(time.Now().UnixNano())
+	if m != nil {
+		in.w.intake(m)
+		return true
+	}
+	in.lastSeq.Store(seq) // before read: see floorNow
+	if !in.w.intakeSeq(subject, data, seq, stop) {
+		return false
+	}
+	t.read.Store(seq)
+	return true
+}
+
+// handleCore is the core NATS subscription callback of the template.
+func (t *template) handleCore(m *nats.Msg) { t.dispatch(m.Subject, m.Data, 0, nil, m) }
+
+// floorNow returns a stream sequence at or below which every record the
+// template dispatched is in a saved checkpoint of its instance: the last
+// sequence dispatched, lowered to the checkpoint position of every
+// instance holding records not yet saved. read is loaded before each
+// instance's lastSeq, and lastSeq is stored before read, so an instance
+// that received a record at or below read is seen with it.
+func (t *template) floorNow() uint64 {
+	f := t.read.Load()
+	for _, in := range t.inst {
+		if last, saved := in.lastSeq.Load(), in.saved.Load(); last > saved && saved < f {
+			f = saved
+		}
+	}
+	return f
+}
+
+// indexFormat is the version of the index payload.
+const indexFormat = 1
+
+// saveIndex writes the template's index; t.mu is held.
+func (t *template) saveIndex(now time.Time) error {
+	if t.d.ckpt == nil {
+		return nil
+	}
+	keys := make([]string, 0, len(t.inst))
+	for k := range t.inst {
+		keys = append(keys, k)
+	}
+	slices.Sort(keys)
+	b := binary.AppendUvarint(nil, indexFormat)
+	b = binary.AppendUvarint(b, t.floorNow())
+	b = binary.AppendUvarint(b, uint64(len(keys)))
+	for _, k := range keys {
+		b = binary.AppendUvarint(b, uint64(len(k)))
+		b = append(b, k...)
+		b = binary.AppendUvarint(b, t.inst[k].saved.Load())
+	}
+	return t.d.ckpt.Save(indexName(t.name), checkpoint.Encode(b, checkpoint.Meta{Arithmetic: arithmetic(), Written: now}))
+}
+
+// loadIndex reads the template's index at start: the known keys with their
+// checkpoint positions, and the floor the stream is read from.
+func (t *template) loadIndex() {
+	payload, _, skipped, err := t.d.ckpt.Load(indexName(t.name))
+	for _, s := range skipped {
+		t.log.Error("template index refused; using the one before it", "reason", s)
+	}
+	if errors.Is(err, checkpoint.ErrNotFound) {
+		return
+	}
+	if err == nil {
+		err = t.decodeIndex(payload)
+	}
+	if err != nil {
+		// Without an index the stream is read from its start; each
+		// instance still skips what its checkpoint holds.
+		t.log.Error("template index unusable; reading the stream from its first record", "err", err)
+		clear(t.inst)
+		t.floor = 0
+		return
+	}
+	t.d.tm.Known.WithLabelValues(t.name).Set(float64(len(t.inst)))
+	t.log.Info("template index restored", "instances", len(t.inst), "floor", t.floor)
+}
+
+func (t *template) decodeIndex(b []byte) error {
+	next := func() (uint64, error) {
+		v, n := binary.Uvarint(b)
+		if n <= 0 {
+			return 0, errors.New("template index truncated")
+		}
+		b = b[n:]
+		return v, nil
+	}
+	v, err := next()
+	if err != nil {
+		return err
+	}
+	if v != indexFormat {
+		return fmt.Errorf("template index format %d (this build reads %d)", v, indexFormat)
+	}
+	if t.floor, err = next(); err != nil {
+		return err
+	}
+	n, err := next()
+	if err != nil {
+		return err
+	}
+	if n > uint64(len(b)) {
+		return fmt.Errorf("template index of %d keys in %d bytes", n, len(b))
+	}
+	for range n {
+		l, err := next()
+		if err != nil {
+			return err
+		}
+		if l > uint64(len(b)) {
+			return errors.New("template index truncated")
+		}
+		key := string(b[:l])
+		b = b[l:]
+		pos, err := next()
+		if err != nil {
+			return err
+		}
+		if !config.ValidKey(key) {
+			return fmt.Errorf("template index holds key %q", key)
+		}
+		in := &instance{key: key}
+		in.saved.Store(pos)
+		in.lastSeq.Store(pos)
+		t.inst[key] = in
+	}
+	t.read.Store(t.floor)
+	return nil
+}
+
+// run unloads idle instances and saves the index every checkpoint
+// interval, until stop.
+func (t *template) run() {
+	defer close(t.done)
+	every := t.d.cfg.Checkpoint.Interval.Std()
+	if idle := t.cfg.Instances.Idle.Std(); idle > 0 {
+		every = min(every, max(idle/4, 10*time.Millisecond))
+	}
+	tick := time.NewTicker(every)
+	defer tick.Stop()
+	lastIndex := time.Now()
+	for {
+		select {
+		case <-t.quit:
+			return
+		case now := <-tick.C:
+			n := t.evictIdle(now)
+			if n > 0 || now.Sub(lastIndex) >= t.d.cfg.Checkpoint.Interval.Std() {
+				lastIndex = now
+				t.mu.Lock()
+				err := t.saveIndex(now)
+				t.mu.Unlock()
+				if err != nil {
+					t.log.Error("template index not saved", "err", err)
+				}
+			}
+		}
+	}
+}
+
+// evictIdle unloads every instance silent for instances.idle: its worker
+// applies what it holds, saves its checkpoint and returns (waited for
+// without holding t.mu, so the other instances go on). It returns how many
+// were unloaded.
+func (t *template) evictIdle(now time.Time) int {
+	idle := t.cfg.Instances.Idle.Std()
+	if idle <= 0 {
+		return 0
+	}
+	t.mu.Lock()
+	var gone []*instance
+	var ws []*worker
+	for _, in := range t.inst {
+		if w := in.w; w != nil && now.UnixNano()-in.last.Load() >= int64(idle) && len(w.queue) == 0 {
+			w.unloading = true
+			w.stop()
+			in.w, in.leaving = nil, w
+			gone = append(gone, in)
+			ws = append(ws, w)
+		}
+	}
+	t.mu.Unlock()
+	for _, w := range ws {
+		<-w.done
+	}
+	t.mu.Lock()
+	for i, in := range gone {
+		if in.leaving == ws[i] { // not loaded again meanwhile
+			t.unloaded(in)
+		}
+	}
+	t.mu.Unlock()
+	return len(gone)
+}
+
+// unloaded finishes the unloading of in, whose worker has returned; t.mu
+// is held. A worker whose last checkpoint failed leaves its records since
+// the one before unsaved (the floor stays below them, so a restart
+// applies them again).
+func (t *template) unloaded(in *instance) {
+	w := in.leaving
+	in.leaving = nil
+	w.mm.QueueDepthFunc(nil)
+	if w.saveFailed {
+		t.log.Error("instance unloaded without its last checkpoint: its records since the one before are applied again after a restart", "model", w.name)
+	}
+	t.loaded--
+	t.d.tm.Loaded.WithLabelValues(t.name).Set(float64(t.loaded))
+	t.d.tm.Unloads.WithLabelValues(t.name).Inc()
+}
+
+// stopAll stops the template's goroutine and every loaded instance (each
+// applies what it holds, publishes and saves its checkpoint), then saves
+// the index. The intake must have stopped.
+func (t *template) stopAll(ctx context.Context) error {
+	close(t.quit)
+	if t.started {
+		<-t.done
+	}
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	var ws []*worker
+	for _, in := range t.inst {
+		if in.w != nil {
+			in.w.stop()
+			ws = append(ws, in.w)
+		}
+		if in.leaving != nil {
+			ws = append(ws, in.leaving)
+		}
+	}
+	var errs []error
+	for _, w := range ws {
+		if err := w.wait(ctx); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	if err := t.saveIndex(time.Now()); err != nil {
+		errs = append(errs, fmt.Errorf("daemon: template %s index: %w", t.name, err))
+	}
+	return errors.Join(errs...)
+}
+
+// lookup returns the worker of instance name (<template>.<key>) if the key
+// is known, loading it if it was unloaded.
+func (t *template) lookup(key string) (*worker, bool) {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	in := t.inst[key]
+	if in == nil {
+		return nil, false
+	}
+	if in.w == nil {
+		if err := t.load(in); err != nil {
+			return nil, false
+		}
+		in.last.Store(time.Now().UnixNano())
+	}
+	return in.w, true
+}
+
+// workers returns the loaded instances' workers.
+func (t *template) workers() []*worker {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	var ws []*worker
+	for _, in := range t.inst {
+		if in.w != nil {
+			ws = append(ws, in.w)
+		}
+	}
+	return ws
+}
