@@ -163,7 +163,7 @@ func (e *exact) solve(tol float64, rounds int) (float64, int) {
 // window.
 func (e *exact) pass() {
 	e.passes++
-	s, ts := e.s, e.s.ts
+	ts := e.s.ts
 	clear(e.grad)
 	var f, gb float64
 	for k, sl := range ts.order() {
@@ -172,10 +172,11 @@ func (e *exact) pass() {
 		stdRow(e.xs, x, e.mu, e.inv)
 		eta := e.b + dot(e.theta, e.xs)
 		e.eta[k] = eta
-		g := r.w * s.deriv(r.y, eta)
+		v, d1, d2 := e.derivs(r.y, eta)
+		g := r.w * d1
 		e.rho[k] = g
-		e.q[k] = r.w * max(s.loss.SecondDeriv(r.y, eta), e.floor)
-		f += r.w * s.loss.Value(r.y, eta)
+		e.q[k] = r.w * max(d2, e.floor)
+		f += r.w * v
 		gb += g
 		axpy(g, e.xs, e.grad)
 	}
@@ -184,6 +185,26 @@ func (e *exact) pass() {
 		e.grad[j] /= w
 	}
 	e.f, e.gb = f/w, gb/w
+}
+
+// derivs returns ℓ(y, η), ℓ' and ℓ”; for the logistic loss from one
+// exponential, e = exp(−|η|): σ(η) = 1/(1 + e) or e/(1 + e), and
+// log(1 + e^η) = max(η, 0) + log1p(e), the stable forms of Loss.
+func (e *exact) derivs(y, eta float64) (v, d1, d2 float64) {
+	switch e.s.kind {
+	case lossSquared:
+		r := eta - y
+		return r * r / 2, r, 1
+	case lossLogistic:
+		x := math.Exp(-math.Abs(eta))
+		p := 1 / (1 + x)
+		if eta < 0 {
+			p = x / (1 + x)
+		}
+		return max(eta, 0) + math.Log1p(x) - y*eta, p - y, p * (1 - p)
+	}
+	l := e.s.loss
+	return l.Value(y, eta), l.Deriv(y, eta), l.SecondDeriv(y, eta)
 }
 
 // violation returns the largest KKT violation at the last pass (as

@@ -105,3 +105,27 @@ func TestOptimumWarmStart(t *testing.T) {
 	}
 	t.Logf("passes: from the member %d, from the previous optimum %d", cold.Passes, warm.Passes)
 }
+
+// TestOptimumDerivs checks the fused loss derivatives of the exact fit
+// against the Loss methods (the stable forms of Loss, to 1e-15 relative;
+// common practice, no single source).
+func TestOptimumDerivs(t *testing.T) {
+	for _, loss := range []Loss{Squared{}, Logistic{}} {
+		l, err := NewLadder(&Options{Features: 1, Loss: loss})
+		if err != nil {
+			t.Fatal(err)
+		}
+		e := &exact{s: l.lrn.(*sagaLearner)}
+		for _, eta := range []float64{-40, -3, -1e-3, 0, 0.5, 7, 40} {
+			for _, y := range []float64{0, 1} {
+				v, d1, d2 := e.derivs(y, eta)
+				want := [3]float64{loss.Value(y, eta), loss.Deriv(y, eta), loss.SecondDeriv(y, eta)}
+				for k, got := range [3]float64{v, d1, d2} {
+					if math.Abs(got-want[k]) > 1e-15*(1+math.Abs(want[k])) {
+						t.Errorf("%s y=%g η=%g: derivative %d is %g, Loss says %g", loss.Name(), y, eta, k, got, want[k])
+					}
+				}
+			}
+		}
+	}
+}

@@ -36,6 +36,10 @@ type Options struct {
 	// model's name (the daemon's choice, so a model's bits do not depend on
 	// its position in the configuration).
 	Seed uint64
+	// Exact bounds the exact fits of the published model and of the
+	// members scored at a retune (online.Ladder.Optimum); nil gives its
+	// defaults (KKT tolerance online.DefaultKKT, 30 rounds).
+	Exact *online.ExactOptions
 }
 
 // Pipeline is everything one model knows: the ladder, the held-out ring and
@@ -69,6 +73,27 @@ type Pipeline struct {
 	position uint64 // the last stream sequence applied or rejected (durable intake)
 
 	step Step
+
+	// The exact fits (online.Ladder.Optimum). They start from the
+	// streaming members, so they follow from the state alone and are not
+	// saved: fits holds every member's fit at the last retune (scored in
+	// its place, nil before one or after a restore), pub the last fit of
+	// the published member, reused while no record arrived.
+	exact ExactOptions
+	fits  []online.Model
+	pub   exactFit
+}
+
+// ExactOptions is online.ExactOptions with its defaults filled in.
+type ExactOptions = online.ExactOptions
+
+// exactFit is one exact fit of the published member and what it depends on.
+type exactFit struct {
+	ok     bool
+	seen   uint64
+	index  int
+	lambda float64
+	opt    online.Optimum
 }
 
 // moment is what the policies know of the record being applied: its time,
@@ -175,6 +200,12 @@ func New(o Options) (*Pipeline, error) {
 	}
 	if p.minPublish <= 0 {
 		p.minPublish = DefaultMinPublish
+	}
+	if o.Exact != nil {
+		p.exact = *o.Exact
+	}
+	if !(p.exact.Tol > 0) {
+		p.exact.Tol = online.DefaultKKT
 	}
 	if m.HoldoutOff() {
 		p.split.Every = -1 // window.Splitter: < 2 (and not 0) disables the split
@@ -294,17 +325,78 @@ func (p *Pipeline) retune() {
 		return
 	}
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
+	lo, hi := contention(p.scores)
+	p.fitRange(lo, hi)
+	p.scores = p.ladder.ScoreModels(p.hold, p.fits, p.scores[:0])
 	idx, changed := p.chooser.Update(p.scores)
 	p.step.Retuned, p.step.Moved = true, changed
 	if idx >= 0 && p.watch.warm {
-		m := p.ladder.Model(idx)
-		p.watch.retuned(m.Standardized, p.ladder.Lambda(idx), p.gridStep())
+		p.watch.retuned(p.fits[idx].Standardized, p.ladder.Lambda(idx), p.gridStep())
 		p.collect()
 	}
 	if p.tuner != nil {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
 	}
+}
+
+// contentionMargin is how many standard errors of the lowest streaming
+// held-out loss a member's may exceed it and still be refitted exactly at
+// a retune: the one-SE rule's own limit is 1; the second covers the
+// streaming members' blur, whose effect on a held-out loss is of second
+// order in their distance from the optimum (0.26 % median measured, issue
+// 9), far below one SE.
+const contentionMargin = 2
+
+// contention returns the range [lo, hi] of ladder members the λ rule could
+// pick on the streaming scores: every member whose held-out loss is within
+// contentionMargin SE of the lowest, widened by one member on each side;
+// (0, −1) when no loss is finite.
+func contention(scores []online.Score) (lo, hi int) {
+	best := online.Choose(scores, online.RuleMin)
+	if best < 0 {
+		return 0, -1
+	}
+	limit := scores[best].Loss + contentionMargin*scores[best].SE
+	lo, hi = best, best
+	for i, s := range scores {
+		if s.Loss <= limit {
+			lo, hi = min(lo, i), max(hi, i)
+		}
+	}
+	return max(lo-1, 0), min(hi+1, len(scores)-1)
+}
+
+// fitRange fits members lo..hi and the current choice exactly on the
+// current window (support honesty: λ* is chosen among members at their
+// optimum, to the KKT tolerance); the others keep their streaming
+// models. The fit of the current member is kept for the next
+// publication.
+func (p *Pipeline) fitRange(lo, hi int) {
+	p.fits = p.fits[:0]
+	cur := p.current()
+	for i := range p.ladder.Size() {
+		if (i < lo || i > hi) && i != cur {
+			p.fits = append(p.fits, p.ladder.Model(i))
+			continue
+		}
+		opt := p.ladder.Optimum(i, nil, &p.exact)
+		p.fits = append(p.fits, opt.Model)
+		if i == cur {
+			p.pub = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), opt: opt}
+		}
+	}
+}
+
+// optimum returns the exact fit of member i on the current window,
+// computing it only when a record arrived or λ moved since the last.
+func (p *Pipeline) optimum(i int) online.Optimum {
+	f := &p.pub
+	if f.ok && f.seen == p.ladder.Seen() && f.index == i && f.lambda == p.ladder.Lambda(i) && f.opt.Model.Records == p.ladder.Len() {
+		return f.opt
+	}
+	*f = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), opt: p.ladder.Optimum(i, nil, &p.exact)}
+	return f.opt
 }
 
 // gridStep returns the ladder's step in ln λ, ln(λ_0/λ_{K−1})/(K−1), or 0
@@ -407,7 +499,8 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 	if cur < 0 || p.ladder.Len() == 0 || len(names) == 0 {
 		return nil, nil
 	}
-	m := p.ladder.Model(cur)
+	opt := p.optimum(cur)
+	m := opt.Model
 	trim(&m, len(names))
 	var th *sink.Threshold
 	if p.tuner != nil {
@@ -424,6 +517,8 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, er
 		Rejected:  rejected,
 		Threshold: th,
 		Updated:   now,
+		KKT:       opt.KKT,
+		KKTTol:    p.exact.Tol,
 	})
 	if err != nil {
 		return nil, err
@@ -439,7 +534,10 @@ func (p *Pipeline) addPath(s *Snapshot) {
 	s.PathLambdas, s.Path = make([]float64, k), make([][]float64, k)
 	for i := range k {
 		mi := p.ladder.Model(i)
-		s.PathLambdas[i], s.Path[i] = mi.Lambda, mi.Standardized[:min(len(mi.Standardized), len(s.Names))]
+		if len(p.fits) == k {
+			mi = p.fits[i] // the exact fits of the last retune
+		}
+		s.PathLambdas[i], s.Path[i] = p.ladder.Lambda(i), mi.Standardized[:min(len(mi.Standardized), len(s.Names))]
 	}
 }
 
@@ -462,10 +560,11 @@ func (p *Pipeline) RaiseVersion(v uint64) { p.version = max(p.version, v) }
 // Version returns the last published version (0 before the first).
 func (p *Pipeline) Version() uint64 { return p.version }
 
-// ladderNow returns the last retune's scores with each member's current λ
-// and support size: the ladder re-anchors as the window moves, so the λ
-// grid of the document must be the one the published model belongs to,
-// while the held-out metrics are those of the last retune.
+// ladderNow returns the last retune's scores with each member's current λ:
+// the ladder re-anchors as the window moves, so the λ grid of the document
+// must be the one the published model belongs to, while the held-out
+// metrics and support sizes are those of the exact fits of the last
+// retune.
 func (p *Pipeline) ladderNow() []online.Score {
 	if len(p.scores) == 0 {
 		return nil
@@ -473,7 +572,7 @@ func (p *Pipeline) ladderNow() []online.Score {
 	out := slices.Clone(p.scores)
 	for i := range out {
 		if j := out[i].Index; j >= 0 && j < p.ladder.Size() {
-			out[i].Lambda, out[i].Nonzero = p.ladder.Lambda(j), p.ladder.Nonzero(j)
+			out[i].Lambda = p.ladder.Lambda(j)
 		}
 	}
 	return out
@@ -569,6 +668,9 @@ func (p *Pipeline) HeldOutLen() int {
 func (p *Pipeline) HeldOutScores(member int, probs, labels []float64) ([]float64, []float64) {
 	if p.hold == nil || p.hold.Len() == 0 {
 		return probs[:0], labels[:0]
+	}
+	if member < len(p.fits) {
+		return p.ladder.ModelPredictions(&p.fits[member], p.hold, probs), p.hold.Labels(labels)
 	}
 	return p.ladder.HoldoutPredictions(member, p.hold, probs), p.hold.Labels(labels)
 }
