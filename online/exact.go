@@ -269,24 +269,39 @@ func (e *exact) penalty() float64 {
 	return e.lam * (e.alpha*l1 + (1-e.alpha)/2*l2)
 }
 
+// gramBlock is the number of records gram stages at a time.
+const gramBlock = 256
+
 // gram returns the quadratic model's Hessian on Z = [1, x̃_A] (row-major
-// k×k, upper triangle filled, k = |A|+1), ZᵀQZ/W, and its gradient at the
-// current point, Zᵀρ/W: one pass over the window, O(n·k²).
+// k×k, both triangles filled, k = |A|+1), ZᵀQZ/W, and its gradient at the
+// current point, Zᵀρ/W: one pass over the window, O(n·k²). The records
+// are staged in blocks of gramBlock as columns (Z's columns and Q·Z's), so
+// that each entry of the Hessian is one long dot product per block.
 func (e *exact) gram() (h, c []float64) {
 	e.passes++
 	ts := e.s.ts
 	k := len(e.act) + 1
 	h, c = make([]float64, k*k), make([]float64, k)
-	z := make([]float64, k)
-	z[0] = 1
-	for i, sl := range ts.order() {
-		x := e.row(sl)
-		for u, j := range e.act {
-			z[u+1] = (x[j] - e.mu[j]) * e.inv[j]
+	z := make([]float64, k*gramBlock)  // column u of the block at z[u·B:]
+	qz := make([]float64, k*gramBlock) // the same, times q
+	order := ts.order()
+	for lo := 0; lo < len(order); lo += gramBlock {
+		blk := order[lo:min(lo+gramBlock, len(order))]
+		nb := len(blk)
+		for r, sl := range blk {
+			x := e.row(sl)
+			q := e.q[lo+r]
+			z[r], qz[r] = 1, q
+			for u, j := range e.act {
+				v := (x[j] - e.mu[j]) * e.inv[j]
+				z[(u+1)*gramBlock+r], qz[(u+1)*gramBlock+r] = v, q*v
+			}
 		}
-		q := e.q[i]
 		for u := range k {
-			axpy(q*z[u], z[u:], h[u*k+u:u*k+k])
+			zu := qz[u*gramBlock : u*gramBlock+nb]
+			for v := u; v < k; v++ {
+				h[u*k+v] += dot(zu, z[v*gramBlock:v*gramBlock+nb])
+			}
 		}
 	}
 	w := ts.sc.w
