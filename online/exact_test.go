@@ -7,7 +7,7 @@ import (
 	"pgregory.net/rapid"
 )
 
-// TestOptimumProperty checks on randomized problems (pgregory.net/rapid
+// TestOptimumProperty checks, for OptimumPath too, on randomized problems (pgregory.net/rapid
 // v1.3.0), for both losses, weights and three penalty mixes, that
 // Ladder.Optimum reaches the KKT conditions of the elastic net to 1e-6
 // (Hastie, Tibshirani & Wainwright 2015, ch. 2 and 5) from a member that
@@ -36,10 +36,14 @@ func TestOptimumProperty(t *testing.T) {
 		}
 		feed(t, l, p, 0, n)
 		state, _ := l.MarshalBinary()
+		path := l.OptimumPath(nil, nil)
 		for i := range l.Size() {
 			opt := l.Optimum(i, nil, nil)
 			if !opt.Converged || opt.KKT > DefaultKKT {
 				t.Fatalf("member %d: KKT %g after %d passes", i, opt.KKT, opt.Passes)
+			}
+			if p := path[i]; !p.Converged || relDist(p.Model.Standardized, opt.Model.Standardized) > 1e-6 || math.Abs(p.Model.StdIntercept-opt.Model.StdIntercept) > 1e-6 {
+				t.Fatalf("member %d: OptimumPath %v (KKT %g), Optimum %v", i, p.Model.Standardized, p.KKT, opt.Model.Standardized)
 			}
 			ref := *o
 			ref.Lambda, ref.Size = l.Lambda(i), 1

@@ -81,6 +81,7 @@ type Pipeline struct {
 	// the published member, reused while no record arrived.
 	exact ExactOptions
 	fits  []online.Model
+	path  []online.Optimum
 	pub   exactFit
 }
 
@@ -324,9 +325,7 @@ func (p *Pipeline) retune() {
 	if p.hold == nil || p.hold.Len() == 0 || p.ladder.Len() == 0 {
 		return
 	}
-	p.scores = p.ladder.Score(p.hold, p.scores[:0])
-	lo, hi := contention(p.scores)
-	p.fitRange(lo, hi)
+	p.fitMembers()
 	p.scores = p.ladder.ScoreModels(p.hold, p.fits, p.scores[:0])
 	idx, changed := p.chooser.Update(p.scores)
 	p.step.Retuned, p.step.Moved = true, changed
@@ -367,14 +366,26 @@ func contention(scores []online.Score) (lo, hi int) {
 	return max(lo-1, 0), min(hi+1, len(scores)-1)
 }
 
-// fitRange fits members lo..hi and the current choice exactly on the
-// current window (support honesty: λ* is chosen among members at their
-// optimum, to the KKT tolerance); the others keep their streaming
-// models. The fit of the current member is kept for the next
-// publication.
-func (p *Pipeline) fitRange(lo, hi int) {
-	p.fits = p.fits[:0]
+// fitMembers fits the members exactly on the current window before they
+// are scored (support honesty: λ* is chosen among members at their
+// optimum, to the KKT tolerance). For the squared loss every member, from
+// the window's Gram matrix (online.Ladder.OptimumPath, one pass over the
+// window); for other losses the members in contention on the streaming
+// scores (contention) and the current choice, each by its own exact fit,
+// while the others keep their streaming models. The fit of the current
+// member is kept for the next publication.
+func (p *Pipeline) fitMembers() {
 	cur := p.current()
+	p.fits = p.fits[:0]
+	if p.ladder.Loss().Quadratic() {
+		p.path = p.ladder.OptimumPath(&p.exact, p.path[:0])
+		for _, o := range p.path {
+			p.fits = append(p.fits, o.Model)
+		}
+		return
+	}
+	p.scores = p.ladder.Score(p.hold, p.scores[:0])
+	lo, hi := contention(p.scores)
 	for i := range p.ladder.Size() {
 		if (i < lo || i > hi) && i != cur {
 			p.fits = append(p.fits, p.ladder.Model(i))
