@@ -19,6 +19,13 @@ type ExactOptions struct {
 	// Tol is the KKT tolerance on the standardized scale (Ladder.KKT);
 	// default DefaultKKT.
 	Tol float64
+	// Target is the KKT violation the fit iterates to before it stops,
+	// ≤ Tol; default Tol/1000. The margin below Tol is for the support: a
+	// violation of Tol still allows a coefficient of about Tol/ℓ” where
+	// the optimum has an exact zero (measured: 2.7e-6 on a logistic
+	// problem at KKT 5.8e-7), and proximal Newton's fast local
+	// convergence makes the margin cost one or two rounds.
+	Target float64
 	// Rounds caps the proximal Newton rounds (each one pass over the
 	// window, plus one to build the active set's matrix when the point
 	// moves); default 30. An exact fit that runs out says so (Converged
@@ -68,6 +75,9 @@ func (l *Ladder) Optimum(i int, warm *Model, o *ExactOptions) Optimum {
 	if opt.Rounds <= 0 {
 		opt.Rounds = defaultRounds
 	}
+	if !(opt.Target > 0) || opt.Target > opt.Tol {
+		opt.Target = opt.Tol / 1000
+	}
 	s, ok := l.lrn.(*sagaLearner)
 	if !ok || s.ts.ring.Len() == 0 {
 		return Optimum{Model: l.Model(i), KKT: math.NaN()}
@@ -83,7 +93,7 @@ func (l *Ladder) Optimum(i int, warm *Model, o *ExactOptions) Optimum {
 			e.theta[j] = t
 		}
 	}
-	kkt, passes := e.solve(opt.Tol, opt.Rounds)
+	kkt, passes := e.solve(opt.Target, opt.Rounds)
 	m := l.Model(i)
 	m.StdIntercept, m.Intercept = e.b, e.b
 	copy(m.Standardized, e.theta)
@@ -138,21 +148,16 @@ func (e *exact) row(sl int) []float64 {
 	return s.ts.row(sl)
 }
 
-// solve runs rounds until the KKT violation is at most tol/1000 or rounds
+// solve runs rounds until the KKT violation is at most target or rounds
 // are spent, and returns the violation at the final point and the passes.
-// The margin below tol is for the support: a KKT violation of tol still
-// allows a coefficient of about tol/ℓ” where the optimum has an exact
-// zero (measured: 2.7e-6 on a logistic problem at KKT 5.8e-7), and
-// proximal Newton's fast local convergence makes the margin cost about one
-// round.
-func (e *exact) solve(tol float64, rounds int) (float64, int) {
+func (e *exact) solve(target float64, rounds int) (float64, int) {
 	e.pass()
 	for r := 0; ; r++ {
 		kkt := e.violation()
-		if kkt <= tol/1000 || r >= rounds {
+		if kkt <= target || r >= rounds {
 			return kkt, e.passes
 		}
-		if !e.step(tol) {
+		if !e.step(target) {
 			return kkt, e.passes
 		}
 	}
@@ -482,9 +487,12 @@ func (l *Ladder) OptimumPath(o *ExactOptions, dst []Optimum) []Optimum {
 		}
 		return dst
 	}
-	tol := DefaultKKT
+	tol, target := DefaultKKT, 0.0
 	if o != nil && o.Tol > 0 {
-		tol = o.Tol
+		tol, target = o.Tol, o.Target
+	}
+	if !(target > 0) || target > tol {
+		target = tol / 1000
 	}
 	e := newExact(s, 0)
 	for j := range e.inv {
@@ -501,7 +509,7 @@ func (l *Ladder) OptimumPath(o *ExactOptions, dst []Optimum) []Optimum {
 	beta := make([]float64, k) // [Δb, θ_A]
 	for i := range l.Size() {
 		e.lam = l.lambdas[i]
-		e.subproblemFrom(h, c, beta, tol)
+		e.subproblemFrom(h, c, beta, target)
 		m := l.Model(i)
 		clear(m.Standardized)
 		for u, j := range e.act {

@@ -371,8 +371,10 @@ func contention(scores []online.Score) (lo, hi int) {
 // optimum, to the KKT tolerance). For the squared loss every member, from
 // the window's Gram matrix (online.Ladder.OptimumPath, one pass over the
 // window); for other losses the members in contention on the streaming
-// scores (contention) and the current choice, each by its own exact fit,
-// while the others keep their streaming models. The fit of the current
+// scores (contention) and the current choice, each by its own exact fit
+// to the KKT tolerance (without the margin below it that the published
+// fit takes for exact zeros), while the others keep their streaming
+// models. The fit of the current
 // member is kept for the next publication.
 func (p *Pipeline) fitMembers() {
 	cur := p.current()
@@ -391,7 +393,12 @@ func (p *Pipeline) fitMembers() {
 			p.fits = append(p.fits, p.ladder.Model(i))
 			continue
 		}
-		opt := p.ladder.Optimum(i, nil, &p.exact)
+		score := p.exact
+		score.Target = score.Tol // scoring needs the tolerance, not the margin for exact zeros
+		if i == cur {
+			score = p.exact
+		}
+		opt := p.ladder.Optimum(i, nil, &score)
 		p.fits = append(p.fits, opt.Model)
 		if i == cur {
 			p.pub = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), opt: opt}
