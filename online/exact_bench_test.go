@@ -3,7 +3,6 @@ package online
 import (
 	"fmt"
 	"math"
-	"math/rand/v2"
 	"testing"
 	"time"
 )
@@ -47,15 +46,10 @@ func BenchmarkExactPath(b *testing.B) {
 func benchExact(b *testing.B, loss Loss, d, n int) {
 	const k, every, member = 12, 500, 8
 	pool := benchPool(n+8192, d)
-	if loss.Name() == "logistic" {
-		// P(y = 1) = σ(x_0 + x_1 − x_2), drawn with a fixed seed.
-		r := rand.New(rand.NewPCG(5, 6))
+	if loss.Name() == "logistic" { // the same generator with logistic labels
+		p := makeProblem(11, n+8192, d, min(d, 8), true, false)
 		for i := range pool {
-			x := pool[i].X
-			pool[i].Y = 0
-			if r.Float64() < Sigmoid(x[0]+x[1]-x[2]) {
-				pool[i].Y = 1
-			}
+			pool[i] = p.record(i)
 		}
 	}
 	l, err := NewLadder(&Options{Loss: loss, Features: d, Size: k, Window: n, Seed: 1})

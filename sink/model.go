@@ -241,8 +241,8 @@ type DocInput struct {
 	// Updated is the publication time; stored in UTC.
 	Updated time.Time
 	// KKT is the model's KKT residual on its window and KKTTol the
-	// tolerance it was fitted to; a NaN or infinite KKT (not measured) is
-	// left out of the document.
+	// tolerance it was fitted to; both are left out of the document when
+	// KKTTol is 0 or KKT is NaN or infinite (not measured).
 	KKT, KKTTol float64
 }
 
@@ -284,7 +284,7 @@ func NewModelDoc(in *DocInput) (*ModelDoc, error) {
 		}
 		doc.Scale[name] = Scale{Mean: m.Mean[j], Std: m.Std[j]}
 	}
-	if finite(in.KKT) {
+	if in.KKTTol > 0 && finite(in.KKT) {
 		kkt := in.KKT
 		doc.KKT, doc.KKTTolerance = &kkt, in.KKTTol
 	}
