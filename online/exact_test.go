@@ -7,9 +7,9 @@ import (
 	"pgregory.net/rapid"
 )
 
-// TestOptimumProperty checks, for OptimumPath too, on randomized problems (pgregory.net/rapid
+// TestOptimumProperty checks on randomized problems (pgregory.net/rapid
 // v1.3.0), for both losses, weights and three penalty mixes, that
-// Ladder.Optimum reaches the KKT conditions of the elastic net to 1e-6
+// Ladder.Optimum and Ladder.OptimumPath reach the KKT conditions of the elastic net to 1e-6
 // (Hastie, Tibshirani & Wainwright 2015, ch. 2 and 5) from a member that
 // has taken only the streaming steps, that it leaves the ladder unchanged,
 // and that its support and coefficients match the existing batch solver
