@@ -94,6 +94,7 @@ type exactFit struct {
 	seen   uint64
 	index  int
 	lambda float64
+	at     time.Time // when Publish or Document made it; zero at a retune
 	opt    online.Optimum
 }
 
@@ -406,14 +407,20 @@ func (p *Pipeline) fitMembers() {
 	}
 }
 
-// optimum returns the exact fit of member i on the current window,
-// computing it only when a record arrived or λ moved since the last.
-func (p *Pipeline) optimum(i int) online.Optimum {
+// optimum returns the exact fit of member i on the current window. The
+// last fit is reused while no record arrived and λ did not move, and also,
+// unless fresh, for MinPublish after it was made: Publish builds a
+// candidate on every call once MinPublish has passed (the daemon calls it
+// every 100 ms), and most candidates are not published, so without this
+// the daemon would fit up to ten times a second.
+func (p *Pipeline) optimum(i int, now time.Time, fresh bool) online.Optimum {
 	f := &p.pub
-	if f.ok && f.seen == p.ladder.Seen() && f.index == i && f.lambda == p.ladder.Lambda(i) && f.opt.Model.Records == p.ladder.Len() {
+	if f.ok && f.index == i && f.lambda == p.ladder.Lambda(i) &&
+		((f.seen == p.ladder.Seen() && f.opt.Model.Records == p.ladder.Len()) ||
+			(!fresh && !f.at.IsZero() && now.Sub(f.at) < p.minPublish && now.Sub(f.at) >= 0)) {
 		return f.opt
 	}
-	*f = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), opt: p.ladder.Optimum(i, nil, &p.exact)}
+	*f = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), at: now, opt: p.ladder.Optimum(i, nil, &p.exact)}
 	return f.opt
 }
 
@@ -483,7 +490,7 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 	if !force && now.Sub(p.lastPub) < p.minPublish {
 		return nil, nil // a busy stream moves coefficients all the time
 	}
-	s, err := p.build(now, p.version+1, rejected)
+	s, err := p.build(now, p.version+1, rejected, force)
 	if s == nil || err != nil {
 		return nil, err
 	}
@@ -503,21 +510,22 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 // the current version number (lariat fit, replay, tests); nil before λ* has
 // been chosen or before a feature has a name.
 func (p *Pipeline) Document(now time.Time, rejected uint64) (*Snapshot, error) {
-	s, err := p.build(now, p.version, rejected)
+	s, err := p.build(now, p.version, rejected, true)
 	if s != nil {
 		p.addPath(s)
 	}
 	return s, err
 }
 
-// build writes the current model as a snapshot of the given version.
-func (p *Pipeline) build(now time.Time, version, rejected uint64) (*Snapshot, error) {
+// build writes the current model as a snapshot of the given version;
+// fresh makes the exact fit current (optimum).
+func (p *Pipeline) build(now time.Time, version, rejected uint64, fresh bool) (*Snapshot, error) {
 	cur := p.current()
 	names := p.at.names
 	if cur < 0 || p.ladder.Len() == 0 || len(names) == 0 {
 		return nil, nil
 	}
-	opt := p.optimum(cur)
+	opt := p.optimum(cur, now, fresh)
 	m := opt.Model
 	trim(&m, len(names))
 	var th *sink.Threshold
