@@ -79,10 +79,11 @@ type Pipeline struct {
 	// saved: fits holds every member's fit at the last retune (scored in
 	// its place, nil before one or after a restore), pub the last fit of
 	// the published member, reused while no record arrived.
-	exact ExactOptions
-	fits  []online.Model
-	path  []online.Optimum
-	pub   exactFit
+	exact  ExactOptions
+	fits   []online.Model
+	path   []online.Optimum
+	decide []bool
+	pub    exactFit
 }
 
 // ExactOptions is online.ExactOptions with its defaults filled in.
@@ -340,39 +341,37 @@ func (p *Pipeline) retune() {
 	}
 }
 
-// contentionMargin is how many standard errors of the lowest streaming
-// held-out loss a member's may exceed it and still be refitted exactly at
-// a retune: the one-SE rule's own limit is 1; the second covers the
-// streaming members' blur, whose effect on a held-out loss is of second
-// order in their distance from the optimum (0.26 % median measured, issue
-// 9), far below one SE.
-const contentionMargin = 2
-
-// contention returns the range [lo, hi] of ladder members the λ rule could
-// pick on the streaming scores: every member whose held-out loss is within
-// contentionMargin SE of the lowest, widened by one member on each side;
-// (0, −1) when no loss is finite.
-func contention(scores []online.Score) (lo, hi int) {
-	best := online.Choose(scores, online.RuleMin)
-	if best < 0 {
-		return 0, -1
-	}
-	limit := scores[best].Loss + contentionMargin*scores[best].SE
-	lo, hi = best, best
-	for i, s := range scores {
-		if s.Loss <= limit {
-			lo, hi = min(lo, i), max(hi, i)
+// contention reports which ladder members decide the choice of λ on the
+// streaming scores: the rule's pick and its two neighbours, the member of
+// lowest loss (whose loss and SE set the one-SE limit) and the current
+// choice (kept by hysteresis). The streaming members' blur moves a
+// held-out loss by an amount of second order in their distance from the
+// optimum (0.26 % median measured in issue 9), so the members outside,
+// clearly worse or clearly not the pick, keep their streaming scores.
+func contention(scores []online.Score, rule online.Rule, cur int, in []bool) []bool {
+	in = append(in[:0], make([]bool, len(scores))...)
+	mark := func(i int) {
+		if i >= 0 && i < len(in) {
+			in[i] = true
 		}
 	}
-	return max(lo-1, 0), min(hi+1, len(scores)-1)
+	pick := online.Choose(scores, rule)
+	if pick >= 0 {
+		mark(pick - 1)
+		mark(pick)
+		mark(pick + 1)
+	}
+	mark(online.Choose(scores, online.RuleMin))
+	mark(cur)
+	return in
 }
 
 // fitMembers fits the members exactly on the current window before they
 // are scored (support honesty: λ* is chosen among members at their
 // optimum, to the KKT tolerance). For the squared loss every member, from
 // the window's Gram matrix (online.Ladder.OptimumPath, one pass over the
-// window); for other losses the members in contention on the streaming
-// scores (contention) and the current choice, each by its own exact fit
+// window); for other losses the members that decide the choice on the
+// streaming scores (contention), each by its own exact fit
 // to the KKT tolerance (without the margin below it that the published
 // fit takes for exact zeros), while the others keep their streaming
 // models. The fit of the current
@@ -388,9 +387,9 @@ func (p *Pipeline) fitMembers() {
 		return
 	}
 	p.scores = p.ladder.Score(p.hold, p.scores[:0])
-	lo, hi := contention(p.scores)
+	p.decide = contention(p.scores, p.chooser.Rule, cur, p.decide)
 	for i := range p.ladder.Size() {
-		if (i < lo || i > hi) && i != cur {
+		if !p.decide[i] {
 			p.fits = append(p.fits, p.ladder.Model(i))
 			continue
 		}
