@@ -19,7 +19,7 @@ import (
 //   - retune: exact fits of all K members every 500 records
 //     (Ladder.OptimumPath: from the window's Gram matrix for the squared
 //     loss, one Optimum per member for the logistic, where the pipeline
-//     fits only the members in contention, so this is its upper bound).
+//     fits at most 5, the members that decide the choice: an upper bound).
 //   - refit: what a user would do instead: the whole path refitted every
 //     500 records by the project's batch solver (Ladder.Optimum from zero
 //     at the largest λ, then warm down the path, Friedman, Hastie &
