@@ -222,7 +222,9 @@ type Model struct {
 	// Mix is the elastic-net mixing α in (0,1), required for elastic-net;
 	// it must stay 0 for lasso and ridge. Default 0 (unset).
 	Mix float64 `yaml:"mix"`
-	// Lambda > 0 fixes λ: one learner, no ladder, no retuning. Default 0.
+	// Lambda > 0 fixes λ: one learner, no ladder, no retuning. Default 0,
+	// which means "choose λ on held-out data with the ladder", never λ = 0:
+	// the daemon fits no unpenalized model (lariat fit --lambda 0 does).
 	Lambda float64 `yaml:"lambda"`
 	// Ladder is the λ grid.
 	Ladder Ladder `yaml:"ladder"`
@@ -240,7 +242,10 @@ type Model struct {
 	// record form): unique, non-empty names. Default none.
 	Features []string `yaml:"features"`
 	// MaxFeatures caps the feature set (Features plus names learned from
-	// records); at least len(Features), at most 100000. Default 256.
+	// records); at least len(Features), at most 100000. Default 256. The
+	// model is as wide as the names in use, not as the cap; a learned name
+	// unseen for a whole window frees its slot, and a new name past the cap
+	// is dropped (or, with Missing "reject", rejects its record).
 	MaxFeatures int `yaml:"max_features"`
 	// Missing is impute (window mean) or reject. Default "impute".
 	Missing string `yaml:"missing"`
@@ -259,11 +264,16 @@ type Model struct {
 	Drift Drift `yaml:"drift"`
 }
 
-// Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max.
+// Ladder is the grid of λ values, log-spaced from λ_max down to Floor·λ_max
+// for lasso and elastic net, and for ridge between the λ where its effective
+// degrees of freedom are 0.5 and rank − 0.5; either grid moves further down
+// while the held-out minimum sits at its smallest λ (online.Ladder.Extend).
 type Ladder struct {
 	// Size is the number of λ values, 1 to 100. Default 12.
 	Size int `yaml:"size"`
-	// Floor is the smallest λ as a fraction of λ_max, in (0,1). Default 0.001.
+	// Floor is the smallest λ of the anchored grid as a fraction of λ_max,
+	// in (0,1), for lasso and elastic net (ridge does not use it). Default
+	// 0.001.
 	Floor float64 `yaml:"floor"`
 }
 

@@ -11,6 +11,7 @@ import (
 	"github.com/nats-io/nats.go"
 
 	"lariat/config"
+	"lariat/daemon/record"
 	"lariat/sink"
 )
 
@@ -190,7 +191,7 @@ func (d *Daemon) startIntake(ctx context.Context) error {
 // openPublisher opens the sink publisher with the model KV bucket, or without
 // it if JetStream is not available on the server.
 func (d *Daemon) openPublisher(ctx context.Context) *sink.Publisher {
-	o := &sink.PublisherOptions{Prefix: d.cfg.SubjectPrefix, Metrics: d.metrics}
+	o := &sink.PublisherOptions{Prefix: d.cfg.SubjectPrefix, Metrics: d.metrics, MaxRejectBytes: record.DefaultMaxBytes}
 	p, err := sink.NewPublisher(ctx, d.nc, o)
 	if err != nil {
 		d.log.Warn("model key-value bucket unavailable; publishing on subjects only", "err", err)
@@ -230,19 +231,30 @@ const reasonNoModel = "no_model"
 const unrouted = "_unrouted"
 
 // reject counts a rejected record and republishes it with its reason on
-// <prefix>.reject.<model>. w is nil for a record no model is fed by.
+// <prefix>.reject.<model>, within the model's republish rate (rejectlimit.go;
+// a reject past it is counted in lariat_rejects_not_republished_total). w
+// is nil for a record no model is fed by.
 func (d *Daemon) reject(w *worker, subject, reason, detail string, data []byte) {
-	name := unrouted
+	var (
+		name = unrouted
+		mm   *sink.ModelMetrics
+		lim  = d.unrouted
+	)
 	if w != nil {
-		name = w.name
+		name, mm, lim = w.name, w.mm, w.rejects
 		w.rejected.Add(1)
-		w.mm.Rejected(reason)
 	} else {
-		d.metrics.Model(unrouted).Rejected(reason)
+		mm = d.metrics.Model(unrouted)
 	}
+	mm.Rejected(reason)
 	p := d.pub.Load()
 	if p == nil {
+		mm.NotRepublished.Inc()
 		d.log.Debug("record rejected before the publisher is up", "model", name, "reason", reason, "detail", detail)
+		return
+	}
+	if !lim.allow(time.Now()) {
+		mm.NotRepublished.Inc()
 		return
 	}
 	_ = p.PublishReject(&sink.Reject{Model: name, Subject: subject, Reason: reason, Detail: detail, Data: data})

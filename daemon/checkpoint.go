@@ -120,6 +120,7 @@ func (w *worker) newDecoder(names []string) *record.Decoder {
 		MaxFeatures: w.dim,
 		Logistic:    w.cfg.Logistic(),
 		Missing:     w.cfg.Missing,
+		FreeAfter:   freeAfter(w.cfg),
 	})
 }
 

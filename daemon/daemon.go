@@ -50,6 +50,11 @@ type Daemon struct {
 	// are not forced (the heartbeat and the final document always go out).
 	minPublish time.Duration
 	drainTO    time.Duration
+	// rejectRate and rejectBurst limit the republication of each model's
+	// rejected records (rejectlimit.go); tests change them.
+	rejectRate  float64
+	rejectBurst int
+	unrouted    *rejectLimiter // the limiter of records no model is fed by
 
 	workers []*worker
 	byName  map[string]*worker
@@ -119,15 +124,17 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 		return nil, ErrNoModels
 	}
 	d := &Daemon{
-		cfg:        cfg,
-		log:        discardLogger(),
-		store:      sink.NewStore(),
-		tick:       100 * time.Millisecond,
-		minPublish: time.Second,
-		drainTO:    5 * time.Second,
-		byName:     make(map[string]*worker),
-		routes:     make(map[string][]*worker),
-		started:    make(chan struct{}),
+		cfg:         cfg,
+		log:         discardLogger(),
+		store:       sink.NewStore(),
+		tick:        100 * time.Millisecond,
+		minPublish:  time.Second,
+		drainTO:     5 * time.Second,
+		rejectRate:  rejectRate,
+		rejectBurst: rejectBurst,
+		byName:      make(map[string]*worker),
+		routes:      make(map[string][]*worker),
+		started:     make(chan struct{}),
 	}
 	for _, o := range opts {
 		if err := o(d); err != nil {
@@ -145,6 +152,7 @@ func New(cfg *config.Config, opts ...Option) (*Daemon, error) {
 	}
 	d.metrics = m
 	d.out = newOutbox(d)
+	d.unrouted = newRejectLimiter(d.rejectRate, d.rejectBurst)
 	for i := range cfg.Models {
 		w, err := newWorker(d, &cfg.Models[i])
 		if err != nil {

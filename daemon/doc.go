@@ -13,8 +13,9 @@
 // decodes each message with the model's record.Decoder, which that goroutine
 // owns, and puts the record on the model's bounded queue without blocking.
 // Rejected records (bad input, a full queue) are counted by model and reason
-// and republished with the reason on <prefix>.reject.<model>; they never
-// reach a model. The model goroutine is a thin loop: it hands each record
+// and republished with the reason on <prefix>.reject.<model> (the body cut
+// to 64 KiB, at most 100 a second per model after a burst of 200: see
+// rejectlimit.go); they never reach a model. The model goroutine is a thin loop: it hands each record
 // to its pipeline (pipeline.Pipeline.Apply: every k-th record to the
 // holdout, the rest to the ladder, a retune every retune.every records,
 // the drift watch and the threshold), sends the alerts the record raised,

@@ -28,6 +28,7 @@ func TestRejects(t *testing.T) {
 	strict := testModel("rej-strict", "test.rej.strict", config.LossSquared)
 	strict.Features = []string{"a", "b"}
 	strict.Missing = config.MissingReject
+	strict.MaxFeatures = 2
 	td := startDaemon(t, testConfig(t, lin, logit, strict), withoutIdle())
 	nc := connect(t, td.NATSURL())
 	rejects := make(chan *nats.Msg, 64)
@@ -67,7 +68,9 @@ func TestRejects(t *testing.T) {
 		{"NaN as a string", "rej-lin", lin.Subject, `{"y":"NaN","x":{"a":1}}`, record.ReasonType},
 		{"label outside {0,1}", "rej-log", logit.Subject, `{"y":2,"x":{"a":1}}`, record.ReasonLabel},
 		{"missing label", "rej-log", logit.Subject, `{"x":{"a":1}}`, record.ReasonLabel},
-		{"too many features", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1,"b":2,"c":3,"d":4}}`, record.ReasonTooManyFeatures},
+		// Past the cap a new name is dropped (TestNameFlood), or under the
+		// missing policy reject the record is rejected.
+		{"too many features, strict", "rej-strict", strict.Subject, `{"y":1,"x":{"a":1,"b":2,"c":3}}`, record.ReasonTooManyFeatures},
 		{"oversized message", "rej-lin", lin.Subject, big, record.ReasonOversize},
 		{"wrong v length", "rej-lin", lin.Subject, `{"y":1,"v":[1,2]}`, record.ReasonDimension},
 		{"negative weight", "rej-lin", lin.Subject, `{"y":1,"x":{"a":1},"w":-1}`, record.ReasonWeight},
@@ -101,8 +104,15 @@ func TestRejects(t *testing.T) {
 				if got := msg.Header.Get(sink.HeaderSubject); got != tc.subject {
 					t.Errorf("subject header %q, want %q", got, tc.subject)
 				}
-				if string(msg.Data) != tc.body {
-					t.Errorf("body changed: %d bytes, want %d", len(msg.Data), len(tc.body))
+				want := tc.body
+				if len(want) > record.DefaultMaxBytes { // cut, with the original length in a header
+					want = want[:record.DefaultMaxBytes]
+					if got := msg.Header.Get(sink.HeaderTruncated); got != strconv.Itoa(len(tc.body)) {
+						t.Errorf("truncated header %q, want %d", got, len(tc.body))
+					}
+				}
+				if string(msg.Data) != want {
+					t.Errorf("body changed: %d bytes, want %d", len(msg.Data), len(want))
 				}
 			case <-time.After(5 * time.Second):
 				t.Fatal("no reject message")

@@ -25,10 +25,10 @@ var _ sink.ThresholdSetter = (*Daemon)(nil)
 func (d *Daemon) SetThresholdTarget(model, mode string, target float64) error {
 	w, ok := d.byName[model]
 	if !ok {
-		return fmt.Errorf("%w: %q", sink.ErrUnknownModel, model)
+		return fmt.Errorf("%w: %s", sink.ErrUnknownModel, sink.QuoteInput(model))
 	}
 	if !w.pipe.Logistic() {
-		return fmt.Errorf("%w: model %q is not logistic and has no threshold", sink.ErrUnknownModel, model)
+		return fmt.Errorf("%w: model %s is not logistic and has no threshold", sink.ErrUnknownModel, sink.QuoteInput(model))
 	}
 	if err := pipeline.CheckThreshold(mode, target); err != nil {
 		return err

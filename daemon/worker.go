@@ -47,10 +47,11 @@ type worker struct {
 	name string
 	log  *slog.Logger
 	mm   *sink.ModelMetrics
-	dim  int // record width: pipeline.Width (names not learned yet stay NaN)
+	dim  int // the most columns a record can have: pipeline.Width (the cap)
 
 	// intake side
 	dec   *record.Decoder
+	slots slotWatch  // the decoder's dropped names and freed slots (width.go)
 	free  chan *item // empty items; empty channel = queue full
 	queue chan *item // decoded records in arrival order
 
@@ -84,6 +85,7 @@ type worker struct {
 
 	// shared
 	rejected     atomic.Uint64
+	rejects      *rejectLimiter                    // republication of rejected records
 	versionFloor atomic.Uint64                     // last version found in the KV bucket at start
 	snap         atomic.Pointer[pipeline.Snapshot] // latest published model, for predictions
 }
@@ -112,10 +114,16 @@ func newWorker(d *Daemon, m *config.Model) (*worker, error) {
 		pipe:      pipe,
 		popts:     popts,
 		idleSteps: m.Learner.IdleSteps,
+		rejects:   newRejectLimiter(d.rejectRate, d.rejectBurst),
 	}
 	w.dec = w.newDecoder(nil)
+	// Each item's record starts with room for the listed features (at least
+	// 32 columns), not for the cap: a queue of 4096 items at the default cap
+	// of 256 would hold 8 MB. An item grows once when it first carries a
+	// wider record (the decoder reallocates X), so the steady state still
+	// allocates nothing.
 	for range m.Queue {
-		w.free <- &item{rec: record.Record{X: make([]float64, 0, dim)}}
+		w.free <- &item{rec: record.Record{X: make([]float64, 0, min(dim, max(32, len(m.Features))))}}
 	}
 	w.mm.QueueDepthFunc(func() int { return len(w.queue) })
 	w.scoring = newScoring(w)
@@ -153,6 +161,7 @@ func (w *worker) decode(data []byte, r *record.Record) error {
 	if err := w.dec.Decode(data, r); err != nil {
 		return err
 	}
+	w.watchSlots()
 	if skew := w.cfg.TimeSkew.Std(); skew > 0 && r.HasT {
 		// In milliseconds: a far-future t would overflow a Duration.
 		if ahead := r.T - time.Now().UnixMilli(); ahead > skew.Milliseconds() {

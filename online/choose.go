@@ -137,6 +137,22 @@ func (c *Chooser) Current() int {
 	return c.current
 }
 
+// Shift re-indexes the choices after the ladder's members moved (Ladder.Extend):
+// the member at index i is now at i+by on a ladder of size members. A
+// current choice that falls off the ladder is clamped to its nearest end, a
+// pending one is dropped.
+func (c *Chooser) Shift(by, size int) {
+	if !c.started {
+		return
+	}
+	c.current = max(0, min(size-1, c.current+by))
+	if c.pending >= 0 {
+		if c.pending += by; c.pending < 0 || c.pending >= size {
+			c.pending = -1
+		}
+	}
+}
+
 // Reset forgets the current and pending choices; the next Update adopts its
 // choice at once.
 func (c *Chooser) Reset() {

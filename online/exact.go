@@ -274,24 +274,24 @@ func (e *exact) penalty() float64 {
 	return e.lam * (e.alpha*l1 + (1-e.alpha)/2*l2)
 }
 
-// gramBlock is the number of records gram stages at a time.
-const gramBlock = 256
+// exactBlock is the number of records exact.gram stages at a time.
+const exactBlock = 256
 
 // gram returns the quadratic model's Hessian on Z = [1, x̃_A] (row-major
 // k×k, both triangles filled, k = |A|+1), ZᵀQZ/W, and its gradient at the
 // current point, Zᵀρ/W: one pass over the window, O(n·k²). The records
-// are staged in blocks of gramBlock as columns (Z's columns and Q·Z's), so
+// are staged in blocks of exactBlock as columns (Z's columns and Q·Z's), so
 // that each entry of the Hessian is one long dot product per block.
 func (e *exact) gram() (h, c []float64) {
 	e.passes++
 	ts := e.s.ts
 	k := len(e.act) + 1
 	h, c = make([]float64, k*k), make([]float64, k)
-	z := make([]float64, k*gramBlock)  // column u of the block at z[u·B:]
-	qz := make([]float64, k*gramBlock) // the same, times q
+	z := make([]float64, k*exactBlock)  // column u of the block at z[u·B:]
+	qz := make([]float64, k*exactBlock) // the same, times q
 	order := ts.order()
-	for lo := 0; lo < len(order); lo += gramBlock {
-		blk := order[lo:min(lo+gramBlock, len(order))]
+	for lo := 0; lo < len(order); lo += exactBlock {
+		blk := order[lo:min(lo+exactBlock, len(order))]
 		nb := len(blk)
 		for r, sl := range blk {
 			x := e.row(sl)
@@ -299,13 +299,13 @@ func (e *exact) gram() (h, c []float64) {
 			z[r], qz[r] = 1, q
 			for u, j := range e.act {
 				v := (x[j] - e.mu[j]) * e.inv[j]
-				z[(u+1)*gramBlock+r], qz[(u+1)*gramBlock+r] = v, q*v
+				z[(u+1)*exactBlock+r], qz[(u+1)*exactBlock+r] = v, q*v
 			}
 		}
 		for u := range k {
-			zu := qz[u*gramBlock : u*gramBlock+nb]
+			zu := qz[u*exactBlock : u*exactBlock+nb]
 			for v := u; v < k; v++ {
-				h[u*k+v] += dot(zu, z[v*gramBlock:v*gramBlock+nb])
+				h[u*k+v] += dot(zu, z[v*exactBlock:v*exactBlock+nb])
 			}
 		}
 	}

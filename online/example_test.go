@@ -76,3 +76,28 @@ func ExampleLadder_Optimum() {
 	// raw: 3.0 -2.0, support 2 of 5
 	// support at λ_max: 0
 }
+
+// A ridge ladder's grid is anchored on the effective degrees of freedom of
+// the window: member 0 at df 0.5, the last member at rank − 0.5. When the
+// held-out minimum sits at the smallest λ, Extend moves the grid down.
+func ExampleLadder_Grid() {
+	ridge := online.Ridge()
+	l, err := online.NewLadder(&online.Options{Features: 5, Window: 1000, Penalty: &ridge, Seed: 1})
+	if err != nil {
+		panic(err)
+	}
+	for _, r := range stream(1000) {
+		if err := l.Add(r); err != nil {
+			panic(err)
+		}
+	}
+	l.Converge(1e-3, 1) // anchors the grid on the whole window
+	g := l.Grid()
+	fmt.Printf("%s anchor: df %.1f to %.1f (rank %d), λ %.2g to %.2g\n", g.Anchor, g.DF[0], g.DF[1], g.Rank, g.Top, g.Bottom)
+	moved := l.Extend(l.Size()-1, l.Size()-1) // minimum and choice at the smallest λ
+	g = l.Grid()
+	fmt.Printf("moved %d members down: extended %d of at most %d\n", moved, g.Extended, g.MaxExtended)
+	// Output:
+	// df anchor: df 0.5 to 4.5 (rank 5), λ 9 to 0.11
+	// moved 3 members down: extended 3 of at most 34
+}

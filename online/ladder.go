@@ -20,7 +20,7 @@ type Record struct {
 type Options struct {
 	Loss     Loss          // default Squared{}
 	Penalty  *Penalty      // default lasso (Mix 1)
-	Features int           // d, required >= 1
+	Features int           // d, required >= 1: the width at the start
 	Window   int           // max records in the train window; default 10000
 	Span     time.Duration // 0 = none; else records with T < newest.T − Span are evicted
 	Size     int           // K ladder members; default 12
@@ -30,6 +30,16 @@ type Options struct {
 	Seed     uint64        // PRNG seed (math/rand/v2 PCG); same seed+records => bit-identical
 	Learner  string        // "saga" (default) or "decay" (FTRL-Proximal, no buffer)
 	HalfLife float64       // decay learner forgetting half-life in records; default 10000
+
+	// MaxFeatures is the width Grow may reach; default Features (a fixed
+	// width).
+	MaxFeatures int
+
+	// Unpenalized fits λ = 0 (Size forced to 1, no re-anchoring); Lambda
+	// must be 0. The fit exists only where the loss has a unique minimum
+	// on the window (no more features than records for the squared loss,
+	// no separating hyperplane for the logistic loss).
+	Unpenalized bool
 }
 
 // Errors returned by NewLadder and Add. Add wraps them with the offending
@@ -83,6 +93,9 @@ type Ladder struct {
 	fill    []float64 // lrn.fill()
 	dom     Domain    // opt.Loss.Domain()
 	xbuf    []float64 // the record being added, missing values imputed
+	fresh   []bool    // column j has had no value yet (width.go)
+	nfresh  int       // fresh columns
+	grid    gridState // grid.go: ratio, extension, ridge spectrum
 }
 
 // member is one λ of the ladder, whichever learner trains it.
@@ -100,7 +113,7 @@ type member interface {
 // which calls shift and setLambdas. The interface is wide because it is
 // the whole seam between the grid and an optimizer, and the two learners
 // differ in nearly every method; a record costs two calls through it (add,
-// run). Every method but members, kkt and converge is on the per-record
+// run). Every method but members, kkt, converge and grow is on the per-record
 // path or serves it, and must not allocate.
 type learner interface {
 	// members returns the members, member i for λ_i.
@@ -136,6 +149,12 @@ type learner interface {
 	// the ladder's grid); a learner without a window returns NaN and false.
 	kkt(i int) float64
 	converge(l *Ladder, tol float64, maxEpochs int) bool
+	// grow widens the learner to n features (Ladder.Grow), reset clears
+	// column j (Ladder.ResetFeature) and seed fills fresh column j with its
+	// first value v before the record that carries it is added (width.go).
+	grow(n int)
+	reset(j int)
+	seed(j int, v float64)
 }
 
 // NewLadder returns an empty ladder configured by o.
@@ -147,6 +166,11 @@ func NewLadder(o *Options) (*Ladder, error) {
 	l := &Ladder{
 		opt: opt, d: opt.Features, alpha0: max(opt.Penalty.Mix, lambdaMixFloor),
 		lambdas: make([]float64, opt.Size), xbuf: make([]float64, opt.Features),
+		fresh: make([]bool, opt.Features), nfresh: opt.Features,
+		grid: newGridState(&opt),
+	}
+	for j := range l.fresh {
+		l.fresh[j] = true
 	}
 	switch opt.Learner {
 	case "decay":
@@ -155,7 +179,7 @@ func NewLadder(o *Options) (*Ladder, error) {
 		l.lrn = newSAGA(&opt, opt.Features)
 	}
 	l.members, l.fill, l.dom = l.lrn.members(), l.lrn.fill(), opt.Loss.Domain()
-	if opt.Lambda > 0 {
+	if l.fixed() {
 		l.lambdas[0] = opt.Lambda
 		l.applyLambdas()
 	}
@@ -182,6 +206,8 @@ func resolve(o *Options) (Options, error) {
 	switch {
 	case opt.Features < 1:
 		return bad("features %d < 1", opt.Features)
+	case opt.MaxFeatures != 0 && opt.MaxFeatures < opt.Features:
+		return bad("max features %d < features %d", opt.MaxFeatures, opt.Features)
 	case !(pen.Mix >= 0 && pen.Mix <= 1):
 		return bad("penalty mix %v outside [0, 1]", pen.Mix)
 	case opt.Window < 0 || opt.Size < 0 || opt.Steps < 0 || opt.Span < 0:
@@ -190,6 +216,8 @@ func resolve(o *Options) (Options, error) {
 		return bad("floor %v outside [0, 1)", opt.Floor)
 	case !(opt.Lambda >= 0) || math.IsInf(opt.Lambda, 0):
 		return bad("lambda %v", opt.Lambda)
+	case opt.Unpenalized && opt.Lambda != 0:
+		return bad("unpenalized with lambda %v", opt.Lambda)
 	case !(opt.HalfLife >= 0) || math.IsInf(opt.HalfLife, 0):
 		return bad("half-life %v", opt.HalfLife)
 	case opt.Learner != "" && opt.Learner != "saga" && opt.Learner != "decay":
@@ -201,6 +229,7 @@ func resolve(o *Options) (Options, error) {
 		}
 	}
 	def(&opt.Window, 10000)
+	def(&opt.MaxFeatures, opt.Features)
 	def(&opt.Size, 12)
 	def(&opt.Steps, 2)
 	if opt.Floor == 0 {
@@ -212,7 +241,7 @@ func resolve(o *Options) (Options, error) {
 	if opt.Learner == "" {
 		opt.Learner = "saga"
 	}
-	if opt.Lambda > 0 {
+	if opt.Lambda > 0 || opt.Unpenalized {
 		opt.Size = 1
 	}
 	return opt, nil
@@ -232,6 +261,9 @@ func (l *Ladder) Add(r Record) error {
 	x := r.X
 	if l.fill != nil {
 		x = l.xbuf
+	}
+	if l.nfresh > 0 {
+		l.seedFresh(r.X)
 	}
 	w := r.W
 	if w == 0 {
@@ -306,6 +338,7 @@ func (l *Ladder) Idle(steps int) {
 // accumulated state so that it weighs at most n records.
 func (l *Ladder) Shrink(n int) {
 	if l.lrn.shrink(n) {
+		l.grid.respec = true
 		l.reanchor(l.lrn.lambdaMax(l.alpha0))
 	}
 }
@@ -320,7 +353,7 @@ func (l *Ladder) Seen() uint64 { return l.seen }
 // Size returns K, the number of members.
 func (l *Ladder) Size() int { return len(l.members) }
 
-// Features returns d.
+// Features returns d, the current width (see Grow).
 func (l *Ladder) Features() int { return l.d }
 
 // Lambda returns member i's λ: i = 0 is the largest (λ_max), i = K−1 the
@@ -372,33 +405,44 @@ func (l *Ladder) Eta(i int, x []float64) float64 {
 func (l *Ladder) scale() (mu, sd, inv []float64) { return l.lrn.scale() }
 
 // reanchor records λ_max of the current data and, unless λ is fixed, moves
-// the grid λ_i = λ_max·(1 + 10⁻⁹)·ε^(i/(K−1)) onto it. When λ_max moved by half a grid
-// step or more, each SAGA member is first replaced by a warm copy of the old
-// member nearest its new λ (pathwise warm starts, Friedman, Hastie &
-// Tibshirani 2010, §2.5). The rule: every refresh of the scale (every
-// refreshEvery = 32 records, at Idle, Shrink and Converge) re-anchors.
+// the grid onto its anchor (grid.go): for a penalty with an L1 part
+// λ_i = λ_max·(1 + 10⁻⁹)·ε^((i+e)/(K−1)), e the extension (Extend); for
+// ridge the degrees-of-freedom anchor (ridgeAnchor). When the top moved by
+// half a grid step or more, each SAGA member is first replaced by a warm
+// copy of the old member nearest its new λ (pathwise warm starts, Friedman,
+// Hastie & Tibshirani 2010, §2.5). The rule: every refresh of the scale
+// (every refreshEvery = 32 records, at Idle, Shrink and Converge)
+// re-anchors; the ridge spectrum behind the df anchor is recomputed on its
+// own schedule (ridgeAnchor).
 func (l *Ladder) reanchor(lmax float64) {
 	l.lmax = lmax
-	if l.opt.Lambda > 0 || lmax == l.anchor {
+	if l.fixed() {
 		return
 	}
-	old := l.anchor
-	l.anchor = lmax
+	top, ratio := l.anchorOf(lmax)
+	ext := min(l.grid.ext, l.maxExtendFor(ratio))
+	if top == l.anchor && ratio == l.grid.ratio && ext == l.grid.ext {
+		return
+	}
+	old, oldRatio, oldExt := l.anchor, l.grid.ratio, l.grid.ext
+	l.anchor, l.grid.ratio, l.grid.ext = top, ratio, ext
+	if l.ridgeGrid() {
+		top = l.top() // l.anchor is the df top; λ_max only anchors an L1 part
+	} else {
+		old *= 1 + topMargin
+		top = l.top()
+	}
 	K := len(l.lambdas)
-	if K > 1 && old > 0 && lmax > 0 {
-		step := math.Log(l.opt.Floor) / float64(K-1)
-		if k := int(math.Round(math.Log(lmax/old) / step)); k != 0 {
+	if K > 1 && old > 0 && top > 0 && oldRatio > 0 && oldRatio < 1 {
+		step := math.Log(oldRatio) / float64(K-1)
+		// Old member i sat at ln λ = ln old + (i+oldExt)·step; new member i
+		// is nearest to old member i+k.
+		pos := math.Log(top*math.Pow(ratio, float64(ext)/float64(K-1))/old) / step
+		if k := int(math.Round(pos)) - oldExt; k != 0 {
 			l.lrn.shift(max(-K, min(K, k)))
 		}
 	}
-	top := lmax * (1 + topMargin)
-	for i := range l.lambdas {
-		l.lambdas[i] = top
-		if K > 1 {
-			l.lambdas[i] = top * math.Pow(l.opt.Floor, float64(i)/float64(K-1))
-		}
-	}
-	l.applyLambdas()
+	l.place()
 }
 
 // applyLambdas hands the grid to the members.

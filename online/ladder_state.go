@@ -37,7 +37,8 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	o := &l.opt
 	putString(e, name)
 	e.PutFloat64(o.Penalty.Mix)
-	e.PutUvarint(uint64(o.Features))
+	e.PutUvarint(uint64(l.d))
+	e.PutUvarint(uint64(o.MaxFeatures))
 	e.PutUvarint(uint64(o.Window))
 	e.PutVarint(int64(o.Span))
 	e.PutUvarint(uint64(o.Size))
@@ -47,10 +48,23 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 	e.PutUvarint(o.Seed)
 	putString(e, o.Learner)
 	e.PutFloat64(o.HalfLife)
+	e.PutBool(o.Unpenalized)
 	e.PutUvarint(l.seen)
 	e.PutFloat64(l.lmax)
 	e.PutFloat64(l.anchor)
 	e.PutFloat64s(l.lambdas)
+	for _, f := range l.fresh {
+		e.PutBool(f)
+	}
+	g := &l.grid
+	e.PutFloat64(g.ratio)
+	e.PutUvarint(uint64(g.ext))
+	e.PutFloat64(g.df[0])
+	e.PutFloat64(g.df[1])
+	e.PutUvarint(uint64(g.rank))
+	e.PutUvarint(g.specAt)
+	e.PutUvarint(uint64(g.specLen))
+	e.PutBool(g.respec)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		if err := lrn.encode(e); err != nil {
@@ -68,11 +82,15 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // wrapping ErrState; no input makes it panic, and it allocates only the
 // buffers of the ladder that b describes.
 //
-// The format, version 2, written with window.Encoder: the version byte 2
-// and the type byte 'L'; the options (loss name, penalty mix, features,
-// window, span in nanoseconds, size, floor, fixed λ, steps, seed, learner
-// name, half-life); the records seen, λ_max, the anchor of the grid and
-// the grid; then the learner's state (sagaLearner.encode,
+// The format, version 4, written with window.Encoder: the version byte 4
+// and the type byte 'L'; the options (loss name, penalty mix, features
+// (the current width, see Grow), max features, window, span in
+// nanoseconds, size, floor, fixed λ, steps, seed, learner name,
+// half-life, unpenalized); the records seen, λ_max, the anchor of the grid and the
+// grid; one bool per feature, set for a fresh column (see Grow); the grid's placement (the ratio of its anchored
+// bottom to its top, the extension, the two degrees of freedom and the
+// rank of a ridge anchor, the records seen and the window length at the
+// last spectrum, and whether a spectrum is due); then the learner's state (sagaLearner.encode,
 // decayLearner.encode). Integers are varints, float64 their little-endian
 // IEEE 754 bits, strings, byte strings and float64 slices carry a varint
 // length.
@@ -87,13 +105,20 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 	if err != nil {
 		return nil, fmt.Errorf("%w: %w", ErrState, err)
 	}
-	if l.opt.Window != opt.Window || l.opt.Size != opt.Size || l.opt.Steps != opt.Steps ||
+	if l.opt.Window != opt.Window || l.opt.Size != opt.Size || l.opt.Steps != opt.Steps || l.opt.MaxFeatures != opt.MaxFeatures ||
 		l.opt.Floor != opt.Floor || l.opt.HalfLife != opt.HalfLife {
 		return nil, fmt.Errorf("%w: options not in resolved form", ErrState)
 	}
 	l.seen = d.Uvarint()
 	l.lmax, l.anchor = d.Float64(), d.Float64()
 	d.Float64sInto(l.lambdas)
+	l.nfresh = 0
+	for j := range l.fresh {
+		if l.fresh[j] = d.Bool(); l.fresh[j] {
+			l.nfresh++
+		}
+	}
+	decodeGrid(d, l)
 	switch lrn := l.lrn.(type) {
 	case *sagaLearner:
 		lrn.decode(d, l.xbuf)
@@ -104,6 +129,26 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 		return nil, err
 	}
 	return l, nil
+}
+
+// decodeGrid reads the grid's placement into l (see UnmarshalLadder) and
+// checks that it fits the ladder.
+func decodeGrid(d *window.Decoder, l *Ladder) {
+	g := &l.grid
+	g.ratio = d.Float64()
+	ext := d.Count("extension", maxStateSize*64)
+	g.df[0], g.df[1] = d.Float64(), d.Float64()
+	rank := d.Count("rank", l.d)
+	g.specAt = d.Uvarint()
+	g.specLen = d.Count("spectrum window", maxStateCap)
+	g.respec = d.Bool()
+	if d.Err() != nil {
+		return
+	}
+	if !(g.ratio > 0 && g.ratio <= 1) {
+		d.Failf("grid ratio %v outside (0, 1]", g.ratio)
+	}
+	g.ext, g.rank = ext, rank
 }
 
 // UnmarshalBinary replaces l, which may be the zero Ladder, by the ladder
@@ -126,6 +171,7 @@ func decodeOptions(d *window.Decoder) Options {
 	mix := d.Float64()
 	var o Options
 	o.Features = d.Count("features", maxStateFeatures)
+	o.MaxFeatures = d.Count("max features", maxStateFeatures)
 	o.Window = d.Count("window", maxStateCap)
 	o.Span = time.Duration(d.Varint())
 	o.Size = d.Count("size", maxStateSize)
@@ -134,6 +180,7 @@ func decodeOptions(d *window.Decoder) Options {
 	o.Seed = d.Uvarint()
 	o.Learner = str(d, 16, "learner")
 	o.HalfLife = d.Float64()
+	o.Unpenalized = d.Bool()
 	if d.Err() != nil {
 		return o
 	}
@@ -143,8 +190,8 @@ func decodeOptions(d *window.Decoder) Options {
 		return o
 	}
 	o.Loss, o.Penalty = loss, &Penalty{Mix: mix}
-	if o.Features < 1 || o.Window < 1 || o.Size < 1 || o.Steps < 1 || o.Learner == "" {
-		d.Failf("features %d, window %d, size %d, steps %d, learner %q", o.Features, o.Window, o.Size, o.Steps, o.Learner)
+	if o.Features < 1 || o.MaxFeatures < o.Features || o.Window < 1 || o.Size < 1 || o.Steps < 1 || o.Learner == "" {
+		d.Failf("features %d (at most %d), window %d, size %d, steps %d, learner %q", o.Features, o.MaxFeatures, o.Window, o.Size, o.Steps, o.Learner)
 		return o
 	}
 	// In int64: the product can exceed a 32-bit int.
@@ -154,6 +201,9 @@ func decodeOptions(d *window.Decoder) Options {
 		words, perMember = k64*(4*d64+8)+12*d64, 4*o.Features
 	} else {
 		words += int64(o.Window)*(d64+k64+sagaSlotWords) + 12*d64
+		if mix < lambdaMixFloor && o.Lambda == 0 && !o.Unpenalized {
+			words += d64*d64 + (gramBlock+64)*d64 // the ridge spectrum's scratch (grid.go)
+		}
 	}
 	if words > int64(stateWordLimit) {
 		d.Failf("buffers of %d words above %d", words, stateWordLimit)

@@ -89,7 +89,10 @@ func (s *sagaLearner) violation(i int, mu, inv []float64) float64 {
 // search). The polish is used only here; the streaming steps are SAGA.
 // Afterwards the polished members' gradient tables are rebuilt at their new
 // models. For the decay learner (no window) Converge returns false.
-func (l *Ladder) Converge(tol float64, maxEpochs int) bool { return l.lrn.converge(l, tol, maxEpochs) }
+func (l *Ladder) Converge(tol float64, maxEpochs int) bool {
+	l.grid.respec = true // a ridge grid is re-anchored on the whole window
+	return l.lrn.converge(l, tol, maxEpochs)
+}
 
 // converge is Ladder.Converge for the SAGA learner; l is the ladder whose
 // grid it re-anchors after the resync.

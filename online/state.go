@@ -17,12 +17,12 @@ var ErrState = errors.New("online: bad state")
 
 // stateVersion is the first byte of every encoding made by MarshalBinary
 // in this package; the second byte names the type (stateLadder, ...).
-// Version 2 is written with window.Encoder, every float64 slice with its
-// length; version 1, a private codec that wrote fixed-length slices and
-// fixed 8-byte seeds and times, is no longer read (no checkpoint of it
-// was ever kept). A change to the saved fields or their order takes a new
-// version.
-const stateVersion = 2
+// Version 4 is written with window.Encoder, every float64 slice with its
+// length. It added a ladder's maximum width and its fresh columns (a
+// ladder that grows, width.go), its Unpenalized option and the placement
+// of its grid (grid.go). Versions 1 to 3 are no longer read. A change to
+// the saved fields or their order takes a new version.
+const stateVersion = 4
 
 // Type bytes of the encodings.
 const (
@@ -179,7 +179,7 @@ func (h *Holdout) MarshalBinary() ([]byte, error) {
 }
 
 // UnmarshalBinary replaces h (which may be the zero Holdout) by the state
-// that MarshalBinary saved. The format, version 2, is: the version byte 2,
+// that MarshalBinary saved. The format, version 4, is: the version byte 4,
 // the type byte 'H', then as unsigned varints the features d, the capacity,
 // the slot of the oldest record and the number of records n, the loss name
 // ("" for none) with a varint length, and n records oldest first, each its
@@ -246,8 +246,8 @@ func (c *Chooser) MarshalBinary() ([]byte, error) {
 }
 
 // UnmarshalBinary replaces c by the state that MarshalBinary saved, so
-// that the same scores then give the same choices. The format, version 2,
-// is: the version byte 2, the type byte 'C', the rule as a signed varint,
+// that the same scores then give the same choices. The format, version 4,
+// is: the version byte 4, the type byte 'C', the rule as a signed varint,
 // started as a byte 0 or 1, and the current and pending choices as signed
 // varints. An unknown rule or a choice below −1 is refused. Any defect
 // returns an error wrapping ErrState and leaves c unchanged.

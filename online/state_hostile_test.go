@@ -5,6 +5,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -200,7 +201,25 @@ func fuzzSeeds(t testing.TB) map[string][]byte {
 	}
 	c := Chooser{Rule: RuleOneSE}
 	c.Update([]Score{{Lambda: 1, Loss: 1}, {Lambda: 0.5, Loss: 0.5}})
+	grown := stateCase{opt: Options{Features: 2, MaxFeatures: 5, Window: 4, Size: 2, Seed: 6}, nan: true}
+	g, err := NewLadder(&grown.opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, r := range grown.records(9) {
+		if i == 4 {
+			g.Grow(4)
+			g.ResetFeature(1)
+		}
+		if i >= 4 {
+			r.X = append(r.X, float64(i), math.NaN())
+		}
+		if err := g.Add(r); err != nil {
+			t.Fatal(err)
+		}
+	}
 	return map[string][]byte{
+		"saga_grown":        must(g.MarshalBinary()),
 		"saga_wrapped":      smallLadder(t, "saga", 0),
 		"saga_fixed_lambda": smallLadder(t, "saga", 0.1),
 		"saga_span":         must(l.MarshalBinary()),

@@ -26,7 +26,7 @@ func stateCases() []stateCase {
 	ridge := Ridge()
 	base := func(o Options) Options {
 		o.Features, o.Window, o.Seed = 6, 120, 7
-		if o.Size == 0 && o.Lambda == 0 {
+		if o.Size == 0 && o.Lambda == 0 && !o.Unpenalized {
 			o.Size = 12
 		}
 		return o
@@ -46,6 +46,11 @@ func stateCases() []stateCase {
 		{name: "saga/logistic/K12/converge", opt: base(Options{Loss: Logistic{}}), logistic: true,
 			prep: func(l *Ladder) { l.Converge(1e-6, 30) }},
 		{name: "saga/squared/K1/converge", opt: base(Options{Lambda: 0.05}), prep: func(l *Ladder) { l.Converge(1e-8, 30) }},
+		{name: "saga/squared/ridge/K12/extended", opt: base(Options{Penalty: &ridge}),
+			prep: func(l *Ladder) { l.Extend(11, 11); l.Extend(11, 11) }},
+		{name: "saga/squared/lasso/K12/extended/converge", opt: base(Options{}),
+			prep: func(l *Ladder) { l.Extend(11, 5); l.Converge(1e-8, 30) }},
+		{name: "saga/squared/unpenalized", opt: base(Options{Unpenalized: true})},
 		{name: "decay/squared/lasso/K12", opt: base(Options{Learner: "decay", HalfLife: 200})},
 		{name: "decay/logistic/enet/K1/nan", opt: base(Options{Learner: "decay", Loss: Logistic{}, Penalty: &en, Lambda: 0.01}),
 			logistic: true, nan: true},
@@ -111,6 +116,9 @@ func sameLadder(t *testing.T, at string, a, b *Ladder, h *Holdout) {
 	}
 	if !sameBits([]float64{a.LambdaMax()}, []float64{b.LambdaMax()}) {
 		t.Fatalf("%s: λ_max %v != %v", at, a.LambdaMax(), b.LambdaMax())
+	}
+	if ga, gb := a.Grid(), b.Grid(); ga != gb {
+		t.Fatalf("%s: grid %+v != %+v", at, ga, gb)
 	}
 	for i := range a.Size() {
 		ma, mb := a.Model(i), b.Model(i)

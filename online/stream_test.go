@@ -224,8 +224,16 @@ func TestConstantFeature(t *testing.T) {
 // refreshes and resyncs, for both learners (testing.AllocsPerRun).
 func TestAddAllocs(t *testing.T) {
 	p := makeProblem(17, 64, 10, 3, false, false)
-	for _, learner := range []string{"saga", "decay"} {
-		l, _ := NewLadder(&Options{Features: 10, Window: 50, Learner: learner, Span: time.Minute})
+	ridge := Ridge()
+	for _, tc := range []struct {
+		learner string
+		pen     *Penalty
+	}{{"saga", nil}, {"decay", nil}, {"saga", &ridge}, {"decay", &ridge}} {
+		learner := tc.learner
+		if tc.pen != nil {
+			learner += "/ridge" // the df anchor's spectrum runs on the record path
+		}
+		l, _ := NewLadder(&Options{Features: 10, Window: 50, Learner: tc.learner, Penalty: tc.pen, Span: time.Minute})
 		i := 0
 		add := func() {
 			r := p.record(i % 64)

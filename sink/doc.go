@@ -14,9 +14,11 @@
 //
 //	lariat.model.<name>   model JSON (ModelDoc) on every published version
 //	lariat.alert.<name>   alert JSON (Alert)
-//	lariat.reject.<name>  the rejected record's original bytes, unchanged, with
-//	                      headers Lariat-Model, Lariat-Reason, Lariat-Detail,
-//	                      Lariat-Subject (and Lariat-Truncated if cut)
+//	lariat.reject.<name>  the rejected record's original bytes, with headers
+//	                      Lariat-Model, Lariat-Reason, Lariat-Detail,
+//	                      Lariat-Subject; a body longer than
+//	                      PublisherOptions.MaxRejectBytes (default 64 KiB) is
+//	                      cut and Lariat-Truncated carries its length
 //
 // The latest model JSON of every model is also kept in the JetStream
 // key-value bucket "lariat_models" under the model's name.

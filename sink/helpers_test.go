@@ -78,8 +78,10 @@ func testDoc(t testing.TB, name, loss string, version uint64) *ModelDoc {
 		Scores: testScores(loss), Holdout: 250, Applied: 6250, Rejected: 7,
 		Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
 	}
+	in.Grid = &online.Grid{Anchor: online.AnchorDF, Top: 12, Bottom: 0.01, DF: [2]float64{0.5, 2.5}, Rank: 3, Extended: 3, MaxExtended: 18}
 	if loss == "logistic" {
 		in.Threshold = &Threshold{Value: 0.8, Mode: "fpr", Target: 0.02}
+		in.Grid = &online.Grid{Anchor: online.AnchorLambdaMax, Top: 0.4, Bottom: 0.0004, MaxExtended: 22}
 	}
 	doc, err := NewModelDoc(in)
 	if err != nil {

@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode/utf8"
 
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
@@ -26,7 +27,7 @@ import (
 //	GET     /v1/models/{name}/ladder      {model, version, lambda_index, ladder}  404, 503
 //	GET     /v1/models/{name}/threshold   {model, version, threshold, roc}        404 (unknown or not logistic), 503
 //	PUT     /v1/models/{name}/threshold   202 {model, mode, target}    400, 401, 403 (no admin token), 404, 413, 501
-//	POST    /v1/models/{name}/predict     Prediction                   400, 404, 413, 501 (no Predictor), 503
+//	POST    /v1/models/{name}/predict     Prediction                   400 (also: no feature of the model), 404, 413, 501 (no Predictor), 503
 //	GET     /v1/alerts?model=             {"alerts": [Alert…]}         404 (unknown model)
 //	GET     /healthz                      {"status": "ok"}
 //	GET     /readyz                       {"status": "ready"}          503 {"status": "not ready", "error": reason}
@@ -37,6 +38,35 @@ import (
 
 // DefaultMaxBodyBytes is the default request body limit.
 const DefaultMaxBodyBytes = 1 << 20
+
+// MaxEcho is the most bytes of one request value (a model name, a path, a
+// method, a field) that an error message quotes.
+const MaxEcho = 64
+
+// maxErrorBytes bounds a whole error message; a longer one is cut (a
+// last line of defence: every site quotes request values with QuoteInput).
+const maxErrorBytes = 1024
+
+// QuoteInput returns s Go-quoted for an error message or a log line, cut to
+// its first MaxEcho bytes (never inside a UTF-8 sequence) and followed by
+// its full length when cut, so that no request value is echoed at length.
+func QuoteInput(s string) string {
+	if len(s) <= MaxEcho {
+		return strconv.Quote(s)
+	}
+	return strconv.Quote(cutUTF8(s, MaxEcho)) + "… (" + strconv.Itoa(len(s)) + " bytes)"
+}
+
+// cutUTF8 returns s cut to at most n bytes, not inside a UTF-8 sequence.
+func cutUTF8(s string, n int) string {
+	if len(s) <= n {
+		return s
+	}
+	for n > 0 && !utf8.RuneStart(s[n]) {
+		n--
+	}
+	return s[:n]
+}
 
 var (
 	// ErrUnknownModel marks an error about a model the daemon does not
@@ -89,6 +119,14 @@ type Prediction struct {
 	// coef·x (x imputed with the window mean if missing); Eta is the
 	// intercept plus their sum.
 	Contributions map[string]float64 `json:"contributions"`
+	// Unknown lists the record's feature names that the model does not
+	// have; they were ignored. In the record's order (Predict, given a
+	// map, sorts them). Empty when none.
+	Unknown []string `json:"unknown"`
+	// Missing lists the model's features the record gave no value (absent
+	// or null), in the model's order; each was imputed with its window
+	// mean. Empty when none.
+	Missing []string `json:"missing"`
 }
 
 // HandlerOptions configures NewHandler. Store is required, and Predictor is
@@ -159,7 +197,7 @@ func NewHandler(o HandlerOptions) http.Handler {
 		mux.Handle("/metrics", methods{http.MethodGet: promhttp.HandlerFor(o.Gatherer, promhttp.HandlerOpts{}).ServeHTTP})
 	}
 	mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
-		writeError(w, http.StatusNotFound, "no such endpoint: "+r.URL.Path)
+		writeError(w, http.StatusNotFound, "no such endpoint: "+QuoteInput(r.URL.Path))
 	})
 	return mux
 }
@@ -198,7 +236,7 @@ func (m methods) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 		}
 		slices.Sort(allow)
 		w.Header().Set("Allow", strings.Join(allow, ", "))
-		writeError(w, http.StatusMethodNotAllowed, "method "+r.Method+" not allowed (allowed: "+strings.Join(allow, ", ")+")")
+		writeError(w, http.StatusMethodNotAllowed, "method "+QuoteInput(r.Method)+" not allowed (allowed: "+strings.Join(allow, ", ")+")")
 		return
 	}
 	f(w, r)
@@ -224,8 +262,11 @@ func writeRaw(w http.ResponseWriter, status int, contentType string, b []byte) {
 	_, _ = w.Write(b)
 }
 
-// writeError writes {"error": msg}.
+// writeError writes {"error": msg}, msg cut to maxErrorBytes.
 func writeError(w http.ResponseWriter, status int, msg string) {
+	if len(msg) > maxErrorBytes {
+		msg = cutUTF8(msg, maxErrorBytes) + "…"
+	}
 	b, _ := json.Marshal(struct {
 		Error string `json:"error"`
 	}{msg})
@@ -239,11 +280,11 @@ func (h *handler) published(w http.ResponseWriter, r *http.Request) (*storedDoc,
 	sd, known := h.o.Store.stored(name)
 	switch {
 	case !known:
-		writeError(w, http.StatusNotFound, fmt.Sprintf("unknown model %q", name))
+		writeError(w, http.StatusNotFound, "unknown model "+QuoteInput(name))
 		return nil, false
 	case sd == nil:
 		w.Header().Set("Retry-After", "5")
-		writeError(w, http.StatusServiceUnavailable, fmt.Sprintf("model %q has not published a version yet", name))
+		writeError(w, http.StatusServiceUnavailable, "model "+QuoteInput(name)+" has not published a version yet")
 		return nil, false
 	}
 	return sd, true
@@ -348,7 +389,8 @@ func (h *handler) ladder(w http.ResponseWriter, r *http.Request) {
 		Version     uint64        `json:"version"`
 		LambdaIndex int           `json:"lambda_index"`
 		Ladder      []LadderEntry `json:"ladder"`
-	}{d.Model, d.Version, d.LambdaIndex, d.Ladder})
+		Grid        *GridSpec     `json:"grid,omitempty"`
+	}{d.Model, d.Version, d.LambdaIndex, d.Ladder, d.Grid})
 }
 
 // readBody reads the request body up to the limit, writing 413 or 400 on
@@ -386,7 +428,7 @@ func statusOf(err error) int {
 func (h *handler) predict(w http.ResponseWriter, r *http.Request) {
 	name := r.PathValue("name")
 	if _, known := h.o.Store.Model(name); !known {
-		writeError(w, http.StatusNotFound, fmt.Sprintf("unknown model %q", name))
+		writeError(w, http.StatusNotFound, "unknown model "+QuoteInput(name))
 		return
 	}
 	if h.o.Predictor == nil {
@@ -410,7 +452,7 @@ func (h *handler) alerts(w http.ResponseWriter, r *http.Request) {
 	name := r.URL.Query().Get("model")
 	if name != "" {
 		if _, known := h.o.Store.Model(name); !known {
-			writeError(w, http.StatusNotFound, fmt.Sprintf("unknown model %q", name))
+			writeError(w, http.StatusNotFound, "unknown model "+QuoteInput(name))
 			return
 		}
 	}

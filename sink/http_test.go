@@ -8,6 +8,7 @@ import (
 	"math"
 	"net/http"
 	"net/http/httptest"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -149,7 +150,10 @@ func TestHTTPEndpoints(t *testing.T) {
 		{name: "pmml not modified", method: "GET", path: "/v1/models/clf/pmml", header: map[string]string{"If-None-Match": `"5"`}, status: 304},
 		{name: "pmml unknown", method: "GET", path: "/v1/models/nope/pmml", status: 404},
 		{name: "ladder", method: "GET", path: "/v1/models/lin/ladder", status: 200,
-			want: []string{`"model":"lin"`, `"lambda_index":3`, `"index":4`, `"r2":`}},
+			want: []string{`"model":"lin"`, `"lambda_index":3`, `"index":4`, `"r2":`,
+				`"grid":{"anchor":"df","top":12,"bottom":0.01,"df":[0.5,2.5],"rank":3,"extended":3,"max_extended":18}`}},
+		{name: "ladder lasso grid", method: "GET", path: "/v1/models/clf/ladder", status: 200,
+			want: []string{`"grid":{"anchor":"lambda_max","top":0.4,"bottom":0.0004,"extended":0,"max_extended":22}`}},
 		{name: "threshold", method: "GET", path: "/v1/models/clf/threshold", status: 200,
 			want: []string{`"threshold":{"value":0.8,"mode":"fpr","target":0.02}`, `"roc":[]`}},
 		{name: "threshold of squared model", method: "GET", path: "/v1/models/lin/threshold", status: 404, want: []string{"no threshold"}},
@@ -194,6 +198,9 @@ func TestHTTPEndpoints(t *testing.T) {
 				if p.Eta != linEta || p.Probability != nil || len(p.Contributions) != 2 || p.Contributions["a"] != 0.25*11 {
 					t.Errorf("prediction %+v, want eta %v", p, linEta)
 				}
+				if !slices.Equal(p.Unknown, []string{"unknown"}) || !slices.Equal(p.Missing, []string{"b"}) {
+					t.Errorf("unknown %q, missing %q; want [unknown] and [b]", p.Unknown, p.Missing)
+				}
 			}},
 		{name: "predict logistic", method: "POST", path: "/v1/models/clf/predict", body: `{"x":{"a":100,"b":null},"y":1,"t":"2026-03-04T05:06:07Z"}`, status: 200,
 			check: func(t *testing.T, b []byte) {
@@ -232,7 +239,7 @@ func TestHTTPEndpoints(t *testing.T) {
 		{name: "readyz", method: "GET", path: "/readyz", status: 200, want: []string{`"status":"ready"`}},
 		{name: "metrics", method: "GET", path: "/metrics", status: 200, want: []string{`lariat_records_accepted_total{model="lin"} 5`}},
 		{name: "status page", method: "GET", path: "/", status: 200, hdr: map[string]string{"Content-Type": "text/html; charset=utf-8"}},
-		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: /v2/models"`}},
+		{name: "unknown path", method: "GET", path: "/v2/models", status: 404, want: []string{`"error":"no such endpoint: \"/v2/models\""`}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			var body io.Reader

@@ -33,8 +33,11 @@ type Metrics struct {
 	reconnects  prometheus.Counter
 	slowDrops   *prometheus.CounterVec
 	skipped     *prometheus.CounterVec
+	namesOver   *prometheus.CounterVec
+	slotsFreed  *prometheus.CounterVec
 	checkpoints *prometheus.CounterVec
 	unpublished *prometheus.CounterVec
+	unreposted  *prometheus.CounterVec
 	alerts      *prometheus.CounterVec
 	publishErrs *prometheus.CounterVec
 	depth       *depthCollector
@@ -75,7 +78,10 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 		}),
 		slowDrops:   counter("lariat_nats_slow_consumer_drops_total", "Messages the NATS client dropped as a slow consumer.", "model"),
 		skipped:     counter("lariat_intake_skipped_total", "Records of a model's stream that retention discarded before the model applied them.", "model"),
+		namesOver:   counter("lariat_features_dropped_total", "Channel values dropped because their new name found the feature cap reached and no slot free (the record trained on its known channels).", "model"),
+		slotsFreed:  counter("lariat_feature_slots_freed_total", "Feature slots given back by names no record carried for a whole window.", "model"),
 		unpublished: counter("lariat_model_publish_failures_total", "Times a model's new version could not be built or stored (the previous version stays served; /readyz says why).", "model"),
+		unreposted:  counter("lariat_rejects_not_republished_total", "Rejected records not republished on the reject subject (the model's republish rate was exceeded, or the publisher was not up); each is still counted in lariat_records_rejected_total.", "model"),
 		checkpoints: counter("lariat_checkpoints_total", "Checkpoints of a model's state, by result (saved, failed, restored, refused).", "model", "result"),
 		alerts:      counter("lariat_alerts_total", "Alerts raised, by kind.", "model", "kind"),
 		publishErrs: counter("lariat_publish_errors_total", "Failed publishes, by kind (model, kv, alert, reject).", "kind"),
@@ -87,7 +93,7 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 	}
 	for _, c := range []prometheus.Collector{
 		m.accepted, m.rejected, m.update, m.dropped, m.lambda, m.lambdaIndex, m.kkt, m.nonzero,
-		m.holdoutLoss, m.version, m.reconnects, m.slowDrops, m.skipped, m.checkpoints, m.unpublished, m.alerts, m.publishErrs, m.depth,
+		m.holdoutLoss, m.version, m.reconnects, m.slowDrops, m.skipped, m.namesOver, m.slotsFreed, m.checkpoints, m.unpublished, m.unreposted, m.alerts, m.publishErrs, m.depth,
 	} {
 		if err := reg.Register(c); err != nil {
 			return nil, err
@@ -123,9 +129,19 @@ type ModelMetrics struct {
 	// Skipped counts records of the model's stream that retention discarded
 	// before the model applied them (lariat_intake_skipped_total).
 	Skipped prometheus.Counter
+	// FeaturesDropped counts channel values dropped past the feature cap
+	// (lariat_features_dropped_total).
+	FeaturesDropped prometheus.Counter
+	// SlotsFreed counts feature slots given back by names unseen for a
+	// whole window (lariat_feature_slots_freed_total).
+	SlotsFreed prometheus.Counter
 	// PublishFailed counts new versions that could not be built or stored
 	// (lariat_model_publish_failures_total).
 	PublishFailed prometheus.Counter
+	// NotRepublished counts rejected records that were counted but not
+	// republished on the reject subject
+	// (lariat_rejects_not_republished_total).
+	NotRepublished prometheus.Counter
 
 	name        string
 	parent      *Metrics
@@ -167,7 +183,10 @@ func (m *Metrics) Model(name string) *ModelMetrics {
 		QueueDropped:      m.dropped.WithLabelValues(name),
 		SlowConsumerDrops: m.slowDrops.WithLabelValues(name),
 		Skipped:           m.skipped.WithLabelValues(name),
+		FeaturesDropped:   m.namesOver.WithLabelValues(name),
+		SlotsFreed:        m.slotsFreed.WithLabelValues(name),
 		PublishFailed:     m.unpublished.WithLabelValues(name),
+		NotRepublished:    m.unreposted.WithLabelValues(name),
 		name:              name,
 		parent:            m,
 		lambda:            m.lambda.WithLabelValues(name),

@@ -26,6 +26,7 @@ func TestMetricsExposition(t *testing.T) {
 	mm.UpdateSeconds.Observe(0.5)
 	mm.QueueDropped.Inc()
 	mm.SlowConsumerDrops.Add(4)
+	mm.NotRepublished.Add(2)
 	mm.Alert(KindData)
 	mm.Alert("nonsense")
 	mm.QueueDepthFunc(func() int { return 17 })
@@ -44,6 +45,12 @@ lariat_alerts_total{kind="data",model="pump"} 1
 lariat_alerts_total{kind="model",model="pump"} 0
 lariat_alerts_total{kind="performance",model="pump"} 0
 lariat_alerts_total{kind="prediction",model="pump"} 0
+# HELP lariat_feature_slots_freed_total Feature slots given back by names no record carried for a whole window.
+# TYPE lariat_feature_slots_freed_total counter
+lariat_feature_slots_freed_total{model="pump"} 0
+# HELP lariat_features_dropped_total Channel values dropped because their new name found the feature cap reached and no slot free (the record trained on its known channels).
+# TYPE lariat_features_dropped_total counter
+lariat_features_dropped_total{model="pump"} 0
 # HELP lariat_holdout_loss Mean held-out loss of the published model.
 # TYPE lariat_holdout_loss gauge
 lariat_holdout_loss{model="pump"} 0.7
@@ -93,6 +100,9 @@ lariat_records_accepted_total{model="pump"} 3
 # TYPE lariat_records_rejected_total counter
 lariat_records_rejected_total{model="pump",reason="label"} 1
 lariat_records_rejected_total{model="pump",reason="malformed"} 2
+# HELP lariat_rejects_not_republished_total Rejected records not republished on the reject subject (the model's republish rate was exceeded, or the publisher was not up); each is still counted in lariat_records_rejected_total.
+# TYPE lariat_rejects_not_republished_total counter
+lariat_rejects_not_republished_total{model="pump"} 2
 # HELP lariat_update_duration_seconds Time to apply one record to a model's ladder.
 # TYPE lariat_update_duration_seconds histogram
 lariat_update_duration_seconds_bucket{model="pump",le="1e-06"} 0

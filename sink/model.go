@@ -52,6 +52,8 @@ type ModelDoc struct {
 	// Ladder holds the held-out score of every ladder member, largest λ
 	// first; it is empty before the first retune.
 	Ladder []LadderEntry `json:"ladder"`
+	// Grid says how the ladder's λ grid is placed; nil when not given.
+	Grid *GridSpec `json:"grid,omitempty"`
 	// Records counts the records behind this version.
 	Records RecordCounts `json:"records"`
 	// Threshold is the alert threshold of a logistic model; nil otherwise.
@@ -141,6 +143,43 @@ type LadderEntry struct {
 	R2 Metric `json:"r2,omitempty"`
 }
 
+// GridSpec says how a ladder's λ grid is placed (online.Grid): where it
+// is anchored and how far it was extended below its anchored bottom.
+type GridSpec struct {
+	// Anchor is "lambda_max" (member 0 is λ_max, the smallest λ with every
+	// coefficient zero, and the grid spans down to floor·λ_max), "df"
+	// (ridge: the grid spans the λ at which the effective degrees of
+	// freedom Σ_j e_j/(e_j + λ), e_j the eigenvalues of the window's
+	// standardized Gram matrix, are DF[0] and DF[1]) or "fixed" (one λ).
+	Anchor string `json:"anchor"`
+	// Top and Bottom are the λ of the first and the last member of the
+	// anchored grid, before any extension.
+	Top Metric `json:"top"`
+	// Bottom: see Top.
+	Bottom Metric `json:"bottom"`
+	// DF holds the degrees of freedom at Top and Bottom (anchor "df").
+	DF []float64 `json:"df,omitempty"`
+	// Rank is the number of nonzero eigenvalues behind DF; 0 when the
+	// grid assumed uncorrelated features (no window, or none yet).
+	Rank int `json:"rank,omitempty"`
+	// Extended is the number of grid steps the members sit below the
+	// anchored grid, because the held-out minimum was at its smallest λ.
+	Extended int `json:"extended"`
+	// MaxExtended bounds Extended (at most six decades below Bottom; 0 for
+	// an L1 penalty while the window holds no more records than features).
+	MaxExtended int `json:"max_extended"`
+}
+
+// NewGridSpec converts a ladder's grid description.
+func NewGridSpec(g online.Grid) *GridSpec {
+	s := &GridSpec{Anchor: g.Anchor, Top: Metric(g.Top), Bottom: Metric(g.Bottom), Rank: g.Rank,
+		Extended: g.Extended, MaxExtended: g.MaxExtended}
+	if g.Anchor == online.AnchorDF {
+		s.DF = []float64{g.DF[0], g.DF[1]}
+	}
+	return s
+}
+
 // RecordCounts counts the records behind a model version.
 type RecordCounts struct {
 	// Window is the number of records in the train window.
@@ -226,6 +265,8 @@ type DocInput struct {
 	Features []string
 	// Model is the chosen ladder member; required.
 	Model *online.Model
+	// Grid is the ladder's grid; nil leaves it out of the document.
+	Grid *online.Grid
 	// Scores are the latest ladder scores; nil before the first retune.
 	// The holdout metrics are those of the score whose Index equals
 	// Model.Index.
@@ -295,6 +336,9 @@ func NewModelDoc(in *DocInput) (*ModelDoc, error) {
 			doc.Holdout = holdoutMetrics(s, logistic, in.Holdout)
 		}
 	}
+	if in.Grid != nil {
+		doc.Grid = NewGridSpec(*in.Grid)
+	}
 	if logistic && in.Threshold != nil {
 		t := *in.Threshold
 		doc.Threshold = &t
@@ -308,7 +352,7 @@ func checkModel(in *DocInput) error {
 	seen := make(map[string]bool, len(in.Features))
 	for _, name := range in.Features {
 		if name == "" || seen[name] {
-			return fmt.Errorf("%w: %q", ErrFeatureNames, name)
+			return fmt.Errorf("%w: %s", ErrFeatureNames, QuoteInput(name))
 		}
 		seen[name] = true
 	}

@@ -33,6 +33,12 @@ const (
 // MaxDetail is the largest Lariat-Detail header value; longer details are cut.
 const MaxDetail = 1024
 
+// DefaultMaxRejectBytes is PublisherOptions.MaxRejectBytes when it is 0:
+// the record decoder's default message limit, so that every record that
+// could have been accepted is republished whole and only an oversize one
+// is cut.
+const DefaultMaxRejectBytes = 64 << 10
+
 // PublisherOptions configures a Publisher; the zero value gives the defaults.
 type PublisherOptions struct {
 	// Prefix is the subject prefix; default "lariat".
@@ -48,6 +54,10 @@ type PublisherOptions struct {
 	Timeout time.Duration
 	// Metrics, if set, counts failures in lariat_publish_errors_total.
 	Metrics *Metrics
+	// MaxRejectBytes bounds the body of a republished rejected record;
+	// a longer record is cut and Lariat-Truncated carries its length.
+	// Default DefaultMaxRejectBytes.
+	MaxRejectBytes int
 }
 
 // Publisher sends models, alerts and rejected records to NATS. It does not
@@ -59,6 +69,7 @@ type Publisher struct {
 	prefix   string
 	timeout  time.Duration
 	metrics  *Metrics
+	maxBody  int
 	failures atomic.Uint64
 }
 
@@ -71,7 +82,10 @@ func NewPublisher(ctx context.Context, nc *nats.Conn, o *PublisherOptions) (*Pub
 	if o == nil {
 		o = &PublisherOptions{}
 	}
-	p := &Publisher{nc: nc, prefix: o.Prefix, timeout: o.Timeout, metrics: o.Metrics}
+	p := &Publisher{nc: nc, prefix: o.Prefix, timeout: o.Timeout, metrics: o.Metrics, maxBody: o.MaxRejectBytes}
+	if p.maxBody <= 0 {
+		p.maxBody = DefaultMaxRejectBytes
+	}
 	if p.prefix == "" {
 		p.prefix = "lariat"
 	}
@@ -223,9 +237,10 @@ type Reject struct {
 
 // PublishReject republishes a rejected record on <prefix>.reject.<model>:
 // the body is the original bytes unchanged, and the headers Lariat-Model,
-// Lariat-Reason, Lariat-Detail and Lariat-Subject say why and from where. If
-// the original plus headers would exceed the server's max payload, the body
-// is cut and Lariat-Truncated carries the original length.
+// Lariat-Reason, Lariat-Detail and Lariat-Subject say why and from where. A
+// body longer than PublisherOptions.MaxRejectBytes, or one that with the
+// headers would exceed the server's max payload, is cut to the limit and
+// Lariat-Truncated carries the original length.
 func (p *Publisher) PublishReject(r *Reject) error {
 	if !validName(r.Model) {
 		p.fail(PublishKindReject)
@@ -237,7 +252,11 @@ func (p *Publisher) PublishReject(r *Reject) error {
 	msg.Header.Set(HeaderDetail, headerValue(r.Detail, MaxDetail))
 	msg.Header.Set(HeaderSubject, headerValue(r.Subject, 512))
 	msg.Data = r.Data
-	if limit := p.nc.MaxPayload() - headerSize(msg.Header) - 64; limit > 0 && int64(len(r.Data)) > limit {
+	limit := int64(p.maxBody)
+	if room := p.nc.MaxPayload() - headerSize(msg.Header) - 64; room > 0 {
+		limit = min(limit, room)
+	}
+	if int64(len(r.Data)) > limit {
 		msg.Header.Set(HeaderTruncated, strconv.Itoa(len(r.Data)))
 		msg.Data = r.Data[:limit]
 	}

@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"strconv"
 	"strings"
 	"testing"
@@ -117,10 +118,35 @@ func TestPublisher(t *testing.T) {
 			t.Fatal(err)
 		}
 		m := nextMsg(t, sub)
-		if n, _ := strconv.Atoi(m.Header.Get(HeaderTruncated)); n != len(orig) || len(m.Data) >= len(orig) {
-			t.Errorf("truncated header %q, body %d bytes of %d", m.Header.Get(HeaderTruncated), len(m.Data), len(orig))
+		if n, _ := strconv.Atoi(m.Header.Get(HeaderTruncated)); n != len(orig) || len(m.Data) != DefaultMaxRejectBytes {
+			t.Errorf("truncated header %q, body %d bytes of %d, want %d", m.Header.Get(HeaderTruncated), len(m.Data), len(orig), DefaultMaxRejectBytes)
 		}
 	})
+
+	// The body limit of rejects: at the limit whole, one byte over cut.
+	small, err := NewPublisher(ctx, nc, &PublisherOptions{Prefix: "plant", NoKV: true, MaxRejectBytes: 100})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		size       int
+		body, orig string // orig: the Lariat-Truncated header
+	}{
+		{99, strings.Repeat("r", 99), ""},
+		{100, strings.Repeat("r", 100), ""},
+		{101, strings.Repeat("r", 100), "101"},
+		{5000, strings.Repeat("r", 100), "5000"},
+	} {
+		t.Run(fmt.Sprintf("reject of %d bytes, limit 100", tc.size), func(t *testing.T) {
+			if err := small.PublishReject(&Reject{Model: "pump-7", Reason: "malformed", Data: bytes.Repeat([]byte("r"), tc.size)}); err != nil {
+				t.Fatal(err)
+			}
+			m := nextMsg(t, sub)
+			if string(m.Data) != tc.body || m.Header.Get(HeaderTruncated) != tc.orig {
+				t.Errorf("body of %d bytes, Lariat-Truncated %q; want %d and %q", len(m.Data), m.Header.Get(HeaderTruncated), len(tc.body), tc.orig)
+			}
+		})
+	}
 
 	if n := p.Failures(); n != 0 {
 		t.Errorf("Failures = %d after successful publishes", n)

@@ -9,6 +9,7 @@ import (
 	"fmt"
 	"io"
 	"net/http"
+	"strconv"
 	"strings"
 )
 
@@ -20,7 +21,7 @@ func (h *handler) threshold(w http.ResponseWriter, r *http.Request) {
 	}
 	d := sd.doc
 	if !d.Logistic() {
-		writeError(w, http.StatusNotFound, fmt.Sprintf("model %q uses the %s loss: it has no threshold", d.Model, d.Loss))
+		writeError(w, http.StatusNotFound, fmt.Sprintf("model %s uses the %s loss: it has no threshold", QuoteInput(d.Model), d.Loss))
 		return
 	}
 	roc := h.o.Store.ROC(d.Model)
@@ -73,7 +74,7 @@ func parseThreshold(b []byte) (mode string, target float64, err error) {
 	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&req); err != nil {
-		return "", 0, fmt.Errorf("body must be {\"mode\": \"fixed|fpr|precision\", \"target\": number}: %v", err)
+		return "", 0, fmt.Errorf("body must be {\"mode\": \"fixed|fpr|precision\", \"target\": number}: %s", jsonError(err))
 	}
 	if _, err := dec.Token(); err != io.EOF {
 		return "", 0, errors.New("body must hold exactly one JSON object")
@@ -84,7 +85,7 @@ func parseThreshold(b []byte) (mode string, target float64, err error) {
 	}
 	switch {
 	case req.Mode != "fixed" && req.Mode != "fpr" && req.Mode != "precision":
-		return "", 0, fmt.Errorf("mode %q (allowed: fixed, fpr, precision)", req.Mode)
+		return "", 0, fmt.Errorf("mode %s (allowed: fixed, fpr, precision)", QuoteInput(req.Mode))
 	case t == nil:
 		return "", 0, errors.New("target is required")
 	case req.Mode == "fixed" && !(*t > 0 && *t < 1):
@@ -93,6 +94,20 @@ func parseThreshold(b []byte) (mode string, target float64, err error) {
 		return "", 0, fmt.Errorf("target %v must be in (0, 1), as in the configuration", *t)
 	}
 	return req.Mode, *t, nil
+}
+
+// jsonError describes an encoding/json decoding error without echoing the
+// request: an unknown field is named by a short prefix (QuoteInput), any
+// other error by encoding/json's message, which quotes at most one
+// character of the input.
+func jsonError(err error) string {
+	if name, ok := strings.CutPrefix(err.Error(), "json: unknown field "); ok {
+		if u, uerr := strconv.Unquote(name); uerr == nil {
+			name = u
+		}
+		return "unknown field " + QuoteInput(name)
+	}
+	return cutUTF8(err.Error(), 2*MaxEcho)
 }
 
 // setThreshold serves PUT /v1/models/{name}/threshold.
@@ -104,10 +119,10 @@ func (h *handler) setThreshold(w http.ResponseWriter, r *http.Request) {
 	doc, known := h.o.Store.Model(name)
 	switch {
 	case !known:
-		writeError(w, http.StatusNotFound, fmt.Sprintf("unknown model %q", name))
+		writeError(w, http.StatusNotFound, "unknown model "+QuoteInput(name))
 		return
 	case doc != nil && !doc.Logistic():
-		writeError(w, http.StatusNotFound, fmt.Sprintf("model %q uses the %s loss: it has no threshold", name, doc.Loss))
+		writeError(w, http.StatusNotFound, fmt.Sprintf("model %s uses the %s loss: it has no threshold", QuoteInput(name), doc.Loss))
 		return
 	case h.o.Thresholds == nil:
 		writeError(w, http.StatusNotImplemented, "threshold changes are not supported by this server")

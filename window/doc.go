@@ -1,14 +1,15 @@
 // Package window holds the bounded recent history of a stream and the
 // detectors that watch it: a generic count-bounded ring (Ring), time-span
 // eviction on top of it (Timed), a deterministic held-out splitter
-// (Splitter), drift detectors on a scalar stream (ADWIN, PageHinkley) and
-// per-feature shift statistics against a reference snapshot
-// (ShiftReference).
+// (Splitter), drift detectors on a scalar stream (ADWIN, PageHinkley), the
+// maximum-likelihood estimate of where the mean of a sequence rose
+// (EstimateRise) and per-feature shift statistics against a reference
+// snapshot (ShiftReference).
 //
 // The package uses only the standard library and does no I/O; time is
 // passed in by the caller as Unix milliseconds. Per-record operations
 // (Ring.Push, Timed.Push, ADWIN.Add, PageHinkley.Add, Splitter.Holdout) do
-// not allocate.
+// not allocate, nor does EstimateRise.
 //
 // Every stateful type (ADWIN, PageHinkley, ShiftReference, Ring, Timed)
 // saves its whole state, options included, with MarshalBinary (and

@@ -50,21 +50,28 @@ type Options struct {
 	Loss string
 	// Penalty is "lasso" (default), "ridge" or "elastic-net".
 	Penalty string
-	// Mix is the elastic-net mix α in (0, 1); 0 means DefaultMix. It
-	// must be 0 for lasso and ridge.
-	Mix float64
-	// Lambda > 0 fits that λ. 0 chooses λ on held-out rows: every 5th row
-	// is held out, a ladder of 12 λ from λ_max down to 10⁻³λ_max is fitted
-	// on the others, the one-standard-error rule (or Rule) picks λ, and the
-	// model is refitted with it on every row.
-	Lambda float64
-	// Rule is the selection rule when Lambda is 0: "one-se" (default) or
+	// Mix is the elastic-net mix α in (0, 1); nil means DefaultMix. It
+	// must be nil for lasso and ridge.
+	Mix *float64
+	// Lambda is the λ to fit. nil chooses λ on held-out rows: every 5th row
+	// is held out, a ladder of 12 λ is fitted on the others (from λ_max
+	// down to 10⁻³λ_max for lasso and elastic net; for ridge between the λ
+	// where its effective degrees of freedom are 0.5 and rank − 0.5), moved
+	// down while the lowest held-out loss sits at its smallest λ
+	// (online.Ladder.Extend), the one-standard-error rule (or Rule) picks
+	// λ, and the model is refitted with it on every row. A value > 0 fits
+	// that λ; 0 fits the unpenalized model (least squares, or logistic
+	// regression by maximum likelihood), and is an error where that model
+	// is not unique: more features than rows, collinear features, or, for
+	// the logistic loss, classes that the features separate.
+	Lambda *float64
+	// Rule is the selection rule when Lambda is nil: "one-se" (default) or
 	// "min".
 	Rule string
 	// JSON writes the model as one JSON document instead of a table.
 	JSON bool
 	// Ladder also writes the selection ladder (λ, support size and
-	// held-out loss of every member). It needs Lambda == 0.
+	// held-out loss of every member). It needs Lambda == nil.
 	Ladder bool
 	// Tol is the KKT tolerance; 0 means DefaultTol.
 	Tol float64
@@ -118,10 +125,10 @@ func (o *Options) resolve() (fitSpec, error) {
 	if s.penalty, err = o.resolvePenalty(); err != nil {
 		return s, err
 	}
-	if !(o.Lambda >= 0) || math.IsInf(o.Lambda, 1) {
-		return s, optionError("lambda %v must be a finite number >= 0 (0 = choose on held-out rows)", o.Lambda)
+	if v := o.Lambda; v != nil && (!(*v >= 0) || math.IsInf(*v, 1)) {
+		return s, optionError("lambda %v must be a finite number >= 0 (0 = unpenalized; leave it out to choose λ on held-out rows)", *v)
 	}
-	if o.Ladder && o.Lambda > 0 {
+	if o.Ladder && o.Lambda != nil {
 		return s, optionError("--ladder shows how λ is chosen; it cannot be combined with --lambda")
 	}
 	if s.rule, err = online.ParseRule(orDefault(o.Rule, "one-se")); err != nil {
@@ -142,7 +149,7 @@ func (o *Options) resolve() (fitSpec, error) {
 func (o *Options) resolvePenalty() (online.Penalty, error) {
 	switch kind := orDefault(o.Penalty, "lasso"); kind {
 	case "lasso", "ridge":
-		if o.Mix != 0 {
+		if o.Mix != nil {
 			return online.Penalty{}, optionError("--mix applies only to elastic-net, not %s", kind)
 		}
 		if kind == "lasso" {
@@ -150,12 +157,12 @@ func (o *Options) resolvePenalty() (online.Penalty, error) {
 		}
 		return online.Ridge(), nil
 	case "elastic-net":
-		mix := o.Mix
-		if mix == 0 {
-			mix = DefaultMix
+		mix := DefaultMix
+		if o.Mix != nil {
+			mix = *o.Mix
 		}
 		if !(mix > 0 && mix < 1) {
-			return online.Penalty{}, optionError("elastic-net mix %v must be in (0, 1)", o.Mix)
+			return online.Penalty{}, optionError("elastic-net mix %v must be in (0, 1) (mix 0 is ridge, 1 lasso)", mix)
 		}
 		return online.ElasticNet(mix), nil
 	}
@@ -189,6 +196,7 @@ type fitDoc struct {
 	KKT          float64               `json:"kkt"`
 	Tol          float64               `json:"kkt_tol"`
 	Converged    bool                  `json:"converged"`
+	Unpenalized  bool                  `json:"unpenalized,omitempty"`
 	Selection    *fitSelection         `json:"selection,omitempty"`
 	Ladder       []fitRung             `json:"ladder,omitempty"`
 
@@ -207,9 +215,13 @@ type fitSelection struct {
 	SE        float64 `json:"se"`         // and the standard error
 	Lambda    float64 `json:"lambda"`     // λ of the chosen member
 	LambdaMax float64 `json:"lambda_max"` // of the training rows
-	// AtEnd is set when the smallest λ of the ladder was chosen: the
-	// held-out loss may still fall below it (give Lambda to go lower).
+	// AtEnd is set when the smallest λ of the ladder was chosen after the
+	// ladder was extended as far as it goes: the held-out loss may still
+	// fall below it (give Lambda to go lower).
 	AtEnd bool `json:"at_end,omitempty"`
+	// Grid says how the ladder's λ grid was anchored and how far it was
+	// extended below its anchored bottom.
+	Grid *sink.GridSpec `json:"grid"`
 }
 
 // fitRung is one member of the selection ladder.
@@ -239,13 +251,18 @@ func Run(w io.Writer, o Options) error {
 		return err
 	}
 	doc := &fitDoc{Input: o.Input, Label: o.Label, Skipped: t.skipped}
-	lambda := o.Lambda
-	if lambda == 0 {
-		if lambda, err = s.choose(t, o, doc); err != nil {
-			return err
-		}
+	var lambda float64
+	if o.Lambda != nil {
+		lambda = *o.Lambda
+	} else if lambda, err = s.choose(t, o, doc); err != nil {
+		return err
 	}
-	if err := s.fitOne(t, lambda, o.Seed, doc); err != nil {
+	if lambda == 0 {
+		err = s.fitUnpenalized(t, o.Seed, doc)
+	} else {
+		err = s.fitOne(t, lambda, o.Seed, doc)
+	}
+	if err != nil {
 		return err
 	}
 	if o.JSON {
@@ -262,6 +279,12 @@ func Run(w io.Writer, o Options) error {
 // hold rows (every = 0: none), no drift watch and no retune but the one
 // fit asks for.
 func (s *fitSpec) pipeline(t *table, window int, lambda float64, every, hold int, seed uint64) (*pipeline.Pipeline, error) {
+	return s.pipelineFor(t, window, lambda, every, hold, seed, false)
+}
+
+// pipelineFor is pipeline, or with unpenalized the pipeline of the λ = 0
+// fit.
+func (s *fitSpec) pipelineFor(t *table, window int, lambda float64, every, hold int, seed uint64, unpenalized bool) (*pipeline.Pipeline, error) {
 	m := config.DefaultModel()
 	m.Name, m.Loss, m.Lambda = "fit", s.loss.Name(), lambda
 	m.Penalty, m.Mix = config.PenaltyElasticNet, s.penalty.Mix
@@ -269,8 +292,9 @@ func (s *fitSpec) pipeline(t *table, window int, lambda float64, every, hold int
 	m.Window.Records = window
 	m.Holdout = config.Holdout{Every: every, Records: hold}
 	m.Retune.Every = math.MaxInt32
+	m.Retune.Rule = s.rule.String()
 	m.Drift.Performance = config.DriftOff
-	p, err := pipeline.New(pipeline.Options{Model: &m, Seed: seed})
+	p, err := pipeline.New(pipeline.Options{Model: &m, Seed: seed, Unpenalized: unpenalized})
 	if err != nil {
 		return nil, &Error{Msg: err.Error()}
 	}
@@ -347,9 +371,26 @@ func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
 	if err := s.feed(t, p); err != nil {
 		return 0, err
 	}
-	p.Converge(s.tol, s.maxEpochs)
-	p.Retune()
-	l, scores := p.Ladder(), p.Scores()
+	// Converge and score; while the lowest held-out loss sits at the
+	// smallest λ, a retune moves the grid down (online.Ladder.Extend) and
+	// the ladder is converged and scored again. The pipeline's chooser
+	// holds a new choice back for one retune (hysteresis), so a round that
+	// did not move the grid is repeated while it still could move. Converged
+	// fits make each round deterministic, and a move down is never undone
+	// by the next round, so this ends within about Grid.MaxExtended/3·2
+	// rounds; the bound is a guard.
+	l := p.Ladder()
+	for range 64 {
+		p.Converge(s.tol, s.maxEpochs)
+		if p.Retune().Extended != 0 {
+			continue
+		}
+		sc, g, k := p.Scores(), l.Grid(), l.ExtendStep()
+		if online.Choose(sc, online.RuleMin) != l.Size()-1 || g.Extended >= g.MaxExtended || online.Choose(sc, s.rule) < k {
+			break
+		}
+	}
+	scores := p.Scores()
 	pick := online.Choose(scores, s.rule)
 	if pick < 0 {
 		return s.chooseFraction(t, o.Seed, doc)
@@ -359,7 +400,10 @@ func (s *fitSpec) choose(t *table, o Options, doc *fitDoc) (float64, error) {
 		return 0, &Error{File: doc.Input, Msg: "cannot choose λ: the label does not vary; give --lambda"}
 	}
 	doc.Selection = &fitSelection{Rule: s.rule.String(), Every: every, Train: l.Len(), Holdout: p.HeldOutLen(),
-		Index: c.Index, Loss: c.Loss, SE: c.SE, Lambda: c.Lambda, LambdaMax: l.LambdaMax(), AtEnd: c.Index == l.Size()-1}
+		Index: c.Index, Loss: c.Loss, SE: c.SE, Lambda: c.Lambda, LambdaMax: l.LambdaMax(),
+		Grid: sink.NewGridSpec(l.Grid())}
+	g := l.Grid()
+	doc.Selection.AtEnd = c.Index == l.Size()-1 && g.Extended >= g.MaxExtended
 	if o.Ladder {
 		for i, sc := range scores {
 			doc.Ladder = append(doc.Ladder, fitRung{Index: sc.Index, Lambda: sc.Lambda, Nonzero: sc.Nonzero,
@@ -389,6 +433,21 @@ func (s *fitSpec) chooseFraction(t *table, seed uint64, doc *fitDoc) (float64, e
 	return lambda, nil
 }
 
+// describeGrid says in words how the ladder's grid was placed.
+func describeGrid(g *sink.GridSpec) string {
+	var b strings.Builder
+	switch g.Anchor {
+	case online.AnchorDF:
+		fmt.Fprintf(&b, "ridge degrees of freedom %g to %g (rank %d): λ %.6g to %.6g", g.DF[0], g.DF[1], g.Rank, float64(g.Top), float64(g.Bottom))
+	default:
+		fmt.Fprintf(&b, "λ_max to %.6g", float64(g.Bottom))
+	}
+	if g.Extended > 0 {
+		fmt.Fprintf(&b, ", extended %d steps down (at most %d)", g.Extended, g.MaxExtended)
+	}
+	return b.String()
+}
+
 // writeFitTable writes doc as aligned text: a header block, the nonzero
 // coefficients by decreasing |standardized|, and with --ladder the path.
 func writeFitTable(w io.Writer, d *fitDoc) error {
@@ -398,7 +457,11 @@ func writeFitTable(w io.Writer, d *fitDoc) error {
 	if len(d.Skipped) > 0 {
 		fmt.Fprintf(tw, "skipped\t%s (no numbers)\n", strings.Join(d.Skipped, ", "))
 	}
-	fmt.Fprintf(tw, "model\t%s loss, %s (α = %g), λ = %.6g, λ_max = %.6g\n", d.Loss, d.Penalty.Kind, d.Penalty.Mix, d.Penalty.Lambda, d.LambdaMax)
+	if d.Unpenalized {
+		fmt.Fprintf(tw, "model\t%s loss, unpenalized (λ = 0)\n", d.Loss)
+	} else {
+		fmt.Fprintf(tw, "model\t%s loss, %s (α = %g), λ = %.6g, λ_max = %.6g\n", d.Loss, d.Penalty.Kind, d.Penalty.Mix, d.Penalty.Lambda, d.LambdaMax)
+	}
 	if sel := d.Selection; sel != nil {
 		if sel.Rule == "fraction" {
 			fmt.Fprintf(tw, "λ chosen\t%g·λ_max (too few rows to hold any out)\n", fitFraction)
@@ -424,6 +487,9 @@ func writeFitTable(w io.Writer, d *fitDoc) error {
 	}
 	if len(d.Ladder) > 0 {
 		fmt.Fprintf(tw, "\nladder on %d training rows, λ_max = %.6g\n", d.Selection.Train, d.Selection.LambdaMax)
+		if g := d.Selection.Grid; g != nil {
+			fmt.Fprintf(tw, "grid\t%s\n", describeGrid(g))
+		}
 		fmt.Fprintln(tw, "index\tlambda\tnonzero\theld-out loss\tse\tkkt")
 		for _, r := range d.Ladder {
 			mark := ""

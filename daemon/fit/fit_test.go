@@ -62,15 +62,19 @@ func TestFitErrors(t *testing.T) {
 			`fit: unknown loss "hinge" (allowed: squared, logistic)`},
 		{"unknown penalty", "a,y\n1,2\n", Options{Label: "y", Penalty: "l1"},
 			`fit: unknown penalty "l1" (allowed: lasso, ridge, elastic-net)`},
-		{"mix on lasso", "a,y\n1,2\n", Options{Label: "y", Mix: 0.3},
+		{"mix on lasso", "a,y\n1,2\n", Options{Label: "y", Mix: new(0.3)},
 			`fit: --mix applies only to elastic-net, not lasso`},
-		{"mix out of range", "a,y\n1,2\n", Options{Label: "y", Penalty: "elastic-net", Mix: 1.5},
-			`fit: elastic-net mix 1.5 must be in (0, 1)`},
-		{"negative lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: -1},
-			`fit: lambda -1 must be a finite number >= 0 (0 = choose on held-out rows)`},
-		{"NaN lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: math.NaN()},
-			`fit: lambda NaN must be a finite number >= 0 (0 = choose on held-out rows)`},
-		{"ladder with lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: 1, Ladder: true},
+		{"mix out of range", "a,y\n1,2\n", Options{Label: "y", Penalty: "elastic-net", Mix: new(1.5)},
+			`fit: elastic-net mix 1.5 must be in (0, 1) (mix 0 is ridge, 1 lasso)`},
+		{"mix 0", "a,y\n1,2\n", Options{Label: "y", Penalty: "elastic-net", Mix: new(0.0)},
+			`fit: elastic-net mix 0 must be in (0, 1) (mix 0 is ridge, 1 lasso)`},
+		{"mix on ridge", "a,y\n1,2\n", Options{Label: "y", Penalty: "ridge", Mix: new(0.0)},
+			`fit: --mix applies only to elastic-net, not ridge`},
+		{"negative lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: new(-1.0)},
+			`fit: lambda -1 must be a finite number >= 0 (0 = unpenalized; leave it out to choose λ on held-out rows)`},
+		{"NaN lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: new(math.NaN())},
+			`fit: lambda NaN must be a finite number >= 0 (0 = unpenalized; leave it out to choose λ on held-out rows)`},
+		{"ladder with lambda", "a,y\n1,2\n", Options{Label: "y", Lambda: new(1.0), Ladder: true},
 			`fit: --ladder shows how λ is chosen; it cannot be combined with --lambda`},
 		{"unknown rule", "a,y\n1,2\n", Options{Label: "y", Rule: "best"},
 			`fit: unknown rule "best" (allowed: one-se, min)`},
@@ -154,10 +158,11 @@ func TestFitReference(t *testing.T) {
 	}
 	tests := []struct {
 		file, label, loss, penalty string
-		mix, alpha, fraction       float64
+		mix                        *float64
+		alpha, fraction            float64
 	}{
-		{"diabetes.csv", "progression", "squared", "lasso", 0, 1, 0.01},
-		{"wdbc.csv", "malignant", "logistic", "elastic-net", 0.5, 0.5, 0.1},
+		{"diabetes.csv", "progression", "squared", "lasso", nil, 1, 0.01},
+		{"wdbc.csv", "malignant", "logistic", "elastic-net", new(0.5), 0.5, 0.1},
 	}
 	for _, tt := range tests {
 		dataset := strings.TrimSuffix(tt.file, ".csv")
@@ -173,7 +178,7 @@ func TestFitReference(t *testing.T) {
 			}
 			c := ref.Cases[i]
 			d := fitJSON(t, Options{Input: "../../testdata/" + tt.file, Label: tt.label, Loss: tt.loss,
-				Penalty: tt.penalty, Mix: tt.mix, Lambda: c.Lambda})
+				Penalty: tt.penalty, Mix: tt.mix, Lambda: &c.Lambda})
 			if !d.Converged || d.KKT > d.Tol {
 				t.Errorf("not converged: KKT %g, tol %g", d.KKT, d.Tol)
 			}
@@ -210,7 +215,7 @@ func TestFitReference(t *testing.T) {
 func TestFitInput(t *testing.T) {
 	p := writeCSV(t, "\ufeffid, a ,b,y\n"+
 		"u1,1,NA,false\nu2,2,0.5,true\nu3,3,,0\nu4,4,1.5,1\nu5,1,0.2,0\nu6,5,1,1\n")
-	d := fitJSON(t, Options{Input: p, Label: "y", Loss: "logistic", Penalty: "ridge", Lambda: 0.1})
+	d := fitJSON(t, Options{Input: p, Label: "y", Loss: "logistic", Penalty: "ridge", Lambda: new(0.1)})
 	if strings.Join(d.Features, ",") != "a,b" || strings.Join(d.Skipped, ",") != "id" {
 		t.Errorf("features %q skipped %q; want [a b] [id]", d.Features, d.Skipped)
 	}
@@ -274,7 +279,7 @@ func ExampleRun() {
 	err := Run(os.Stdout, Options{
 		Input:  "../../testdata/diabetes.csv",
 		Label:  "progression",
-		Lambda: 4.5,
+		Lambda: new(4.5),
 	})
 	if err != nil {
 		panic(err)

@@ -67,20 +67,30 @@ func (g *alertGate) allow(kind sink.AlertKind, m *moment, st *watchStats) bool {
 // featureName returns the name of column j, or "#j" when the model has not
 // published that name yet.
 func featureName(names []string, j int) string {
-	if j < len(names) {
+	if j < len(names) && names[j] != "" { // "": a free slot
 		return names[j]
 	}
 	return fmt.Sprintf("#%d", j)
 }
 
-// perfMessage describes a performance drift.
-func perfMessage(d *lossDetector, c lossChange) string {
+// perfMessage describes a performance drift; after is the number of
+// records since the estimated change point (−1 without adaptation, 0 when
+// no change point was found).
+func perfMessage(d *lossDetector, c lossChange, after int) string {
+	var msg string
 	if d.adwin != nil {
-		return fmt.Sprintf("ADWIN (δ %g): mean bounded loss rose from %.4f to %.4f (by %.4f); %d values kept after the cut",
-			c.threshold, c.before, c.after, c.stat, c.kept)
+		msg = fmt.Sprintf("ADWIN (δ %g): mean bounded loss rose from %.4f to %.4f (by %.4f)",
+			c.threshold, c.before, c.after, c.stat)
+	} else {
+		msg = fmt.Sprintf("Page-Hinkley statistic %.3f > λ %.3f on the bounded loss", c.stat, c.threshold)
 	}
-	return fmt.Sprintf("Page-Hinkley statistic %.3f > λ %.3f on the bounded loss; change estimated %d values ago",
-		c.stat, c.threshold, c.kept)
+	switch {
+	case after > 0:
+		msg += fmt.Sprintf("; change estimated %d records ago, the window keeps the records since", after)
+	case after == 0:
+		msg += "; no change point found in the loss trail, the window is kept"
+	}
+	return msg
 }
 
 // dataMessage names the shifted features (worst PSI first) and describes

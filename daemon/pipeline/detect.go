@@ -13,16 +13,12 @@ import (
 type lossDetector struct {
 	adwin *window.ADWIN
 	ph    *window.PageHinkley
-	// sinceZero counts the values since the Page-Hinkley statistic was last
-	// 0: the CUSUM's change-point estimate when it signals.
-	sinceZero int
 }
 
 // lossChange describes a detected change of the mean bounded loss.
 type lossChange struct {
 	up            bool    // the mean went up (a drift, not a recovery)
 	before, after float64 // mean before and after the change (ADWIN only)
-	kept          int     // values judged post-change
 	stat          float64 // ADWIN: after − before; Page-Hinkley: its statistic
 	threshold     float64 // ADWIN: its confidence δ; Page-Hinkley: λ
 	width         int     // detector window before the change
@@ -63,7 +59,6 @@ func (d *lossDetector) add(u float64) (c lossChange, fired bool) {
 		up:        m1 > before,
 		before:    before,
 		after:     m1,
-		kept:      n1,
 		stat:      m1 - before,
 		threshold: a.Delta(),
 		width:     n0 + 1,
@@ -78,16 +73,9 @@ func (d *lossDetector) addPH(u float64) (lossChange, bool) {
 	}
 	width := p.Count() + 1
 	if !p.Add(u) {
-		if p.Statistic() == 0 {
-			d.sinceZero = 0
-		} else {
-			d.sinceZero++
-		}
 		return lossChange{}, false
 	}
-	kept := d.sinceZero + 1
-	d.sinceZero = 0
-	return lossChange{up: true, kept: kept, stat: p.Statistic(), threshold: p.Threshold(), width: width}, true
+	return lossChange{up: true, stat: p.Statistic(), threshold: p.Threshold(), width: width}, true
 }
 
 // reset restarts the detector.
@@ -98,7 +86,6 @@ func (d *lossDetector) reset() {
 	if d.ph != nil {
 		d.ph.Reset()
 	}
-	d.sinceZero = 0
 }
 
 // width returns the detector's current window (ADWIN width, Page-Hinkley

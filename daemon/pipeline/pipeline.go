@@ -40,6 +40,10 @@ type Options struct {
 	// members scored at a retune (online.Ladder.Optimum); nil gives its
 	// defaults (KKT tolerance online.DefaultKKT, 30 rounds).
 	Exact *online.ExactOptions
+	// Unpenalized fits λ = 0, one learner and no ladder (lariat fit
+	// --lambda 0; a configuration cannot ask for it: its lambda 0 means
+	// "choose λ"). The model's Lambda must be 0.
+	Unpenalized bool
 }
 
 // Pipeline is everything one model knows: the ladder, the held-out ring and
@@ -61,12 +65,18 @@ type Pipeline struct {
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout
 	sinceRetune int
-	scores      []online.Score
+	// adopt is set by a drift adaptation: while the train window grows
+	// back, every retune adopts its choice of λ* at once (the chooser's
+	// hysteresis would protect a choice made on a smaller window, or on
+	// pre-change records, which no longer count).
+	adopt  bool
+	scores []online.Score
 
 	at    moment
 	watch *watch
 	tuner *tuner // nil for a squared-loss model
 
+	freed    uint64 // columns reset because their slot changed hands (width.go)
 	version  uint64
 	last     *sink.ModelDoc
 	lastPub  time.Time
@@ -134,19 +144,28 @@ type Step struct {
 	Retuned bool
 	// Moved is set when the retune moved λ*.
 	Moved bool
+	// Extended is the number of members the retune moved the ladder's grid
+	// down by, because the held-out minimum sat at its smallest λ (< 0: back
+	// up; online.Ladder.Extend); the new members are scored at the next
+	// retune.
+	Extended int
 	// ROC is the chosen member's new ROC table on the held-out ring
 	// (logistic models, after a retune); nil otherwise.
 	ROC []online.ROCPoint
-	// Adapted is set when a confirmed performance drift shrank the train
-	// window and the held-out ring to their post-change records.
+	// Adapted is set when a drift adaptation cut the train window and the
+	// held-out ring to the records after the estimated change point: at
+	// the performance alert, or when the 50th train record after that
+	// point arrived (see the drift watch in watch.go).
 	Adapted bool
 	// Alerts are the drift alerts the record raised (already past their
 	// cooldown).
 	Alerts []sink.Alert
 }
 
-// Width returns the number of columns of model m's ladder and records: its
-// feature cap, or its fixed feature list if that is longer.
+// Width returns the most columns model m's ladder and records can have: its
+// feature cap, or its fixed feature list if that is longer. The ladder
+// starts as wide as the fixed list and grows with the names learned
+// (width.go).
 func Width(m *config.Model) int { return max(m.MaxFeatures, len(m.Features)) }
 
 // New returns the pipeline of o.Model, empty.
@@ -175,19 +194,22 @@ func New(o Options) (*Pipeline, error) {
 		h.Write([]byte(m.Name))
 		seed = h.Sum64()
 	}
+	start := max(1, len(m.Features))
 	lad, err := online.NewLadder(&online.Options{
-		Loss:     loss,
-		Penalty:  &online.Penalty{Mix: m.PenaltyMix()},
-		Features: dim,
-		Window:   m.Window.Records,
-		Span:     m.Window.Span.Std(),
-		Size:     m.Ladder.Size,
-		Floor:    m.Ladder.Floor,
-		Lambda:   m.Lambda,
-		Steps:    m.Learner.Steps,
-		Seed:     seed,
-		Learner:  m.Learner.Kind,
-		HalfLife: m.Learner.HalfLife,
+		Loss:        loss,
+		Penalty:     &online.Penalty{Mix: m.PenaltyMix()},
+		Features:    start,
+		MaxFeatures: dim,
+		Window:      m.Window.Records,
+		Span:        m.Window.Span.Std(),
+		Size:        m.Ladder.Size,
+		Floor:       m.Ladder.Floor,
+		Lambda:      m.Lambda,
+		Unpenalized: o.Unpenalized,
+		Steps:       m.Learner.Steps,
+		Seed:        seed,
+		Learner:     m.Learner.Kind,
+		HalfLife:    m.Learner.HalfLife,
 	})
 	if err != nil {
 		return nil, fmt.Errorf("pipeline: model %s: %w", m.Name, err)
@@ -213,9 +235,9 @@ func New(o Options) (*Pipeline, error) {
 	if m.HoldoutOff() {
 		p.split.Every = -1 // window.Splitter: < 2 (and not 0) disables the split
 	} else {
-		p.hold = online.NewHoldout(dim, m.Holdout.Records)
+		p.hold = online.NewHoldout(start, m.Holdout.Records)
 	}
-	p.watch = newWatch(m, dim, trainWindow{p}, &p.at)
+	p.watch = newWatch(m, start, trainWindow{p}, &p.at)
 	p.tuner = newTuner(m, o.Threshold)
 	return p, nil
 }
@@ -223,7 +245,8 @@ func New(o Options) (*Pipeline, error) {
 // Name returns the model's name.
 func (p *Pipeline) Name() string { return p.name }
 
-// Width returns the number of columns of the pipeline's records.
+// Width returns the most columns the pipeline's records can have (see the
+// function Width); Ladder().Features() is the current width.
 func (p *Pipeline) Width() int { return p.dim }
 
 // Apply applies one decoded record: the held-out ring takes every k-th
@@ -231,20 +254,23 @@ func (p *Pipeline) Width() int { return p.dim }
 // test-then-train loss on it has fed the drift watch; every retune.every
 // records the ladder is rescored, λ* chosen and the threshold tuned. names
 // is the decoder's feature order when rec was decoded; rec.X is extended to
-// Width() columns with NaN (missing) for the names not seen yet, in its own
-// capacity when it has room. now is the wall-clock
+// the ladder's width with NaN (missing), in its own capacity when it has
+// room; a name in a slot that changed hands since the last record resets
+// that column first (width.go). now is the wall-clock
 // time that stands in for the record's own time when it has none (alert
 // cooldowns). A record of the wrong width or one the learner refuses leaves
 // the model untouched and gives a *record.Error with the reject reason.
 func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*Step, error) {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
-	p.at.names = names
-	if len(rec.X) > p.dim {
+	if len(rec.X) > p.dim || len(names) > p.dim {
 		return st, &record.Error{Reason: record.ReasonDimension,
-			Detail: fmt.Sprintf("record has %d columns, the model %d", len(rec.X), p.dim)}
+			Detail: fmt.Sprintf("record has %d columns, the model at most %d", max(len(rec.X), len(names)), p.dim)}
 	}
-	for len(rec.X) < p.dim { // names not learned yet are missing
+	if err := p.layout(rec, names); err != nil {
+		return st, err
+	}
+	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
 		rec.X = append(rec.X, math.NaN())
 	}
 	r := rec.Learn()
@@ -266,8 +292,12 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		p.held++
 	}
 	st.HeldOut = heldOut
+	// The names move only with an applied record: a refused one that
+	// brought a new name leaves the state as it was.
+	p.at.names = names
 	p.at.recT, p.at.now, p.at.seq = r.T, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
+	p.watch.rereference()
 	p.collect()
 	if p.sinceRetune++; p.sinceRetune >= p.cfg.Retune.Every {
 		p.retune()
@@ -282,6 +312,7 @@ func (p *Pipeline) collect() {
 	p.watch.alerts = p.watch.alerts[:0]
 	if p.watch.adapted {
 		st.Adapted, p.watch.adapted = true, false
+		p.adopt = true
 	}
 }
 
@@ -329,16 +360,32 @@ func (p *Pipeline) retune() {
 	}
 	p.fitMembers()
 	p.scores = p.ladder.ScoreModels(p.hold, p.fits, p.scores[:0])
-	idx, changed := p.chooser.Update(p.scores)
+	idx, changed := p.choose()
 	p.step.Retuned, p.step.Moved = true, changed
+	if k := p.ladder.Extend(online.Choose(p.scores, online.RuleMin), idx); k != 0 {
+		p.shiftScores(k)
+		idx = p.chooser.Current()
+		p.step.Extended = k
+	}
 	if idx >= 0 && p.watch.warm {
-		p.watch.retuned(p.fits[idx].Standardized, p.ladder.Lambda(idx), p.gridStep())
+		m := p.fitted(idx)
+		p.watch.retuned(m.Standardized, p.ladder.Lambda(idx), p.gridStep())
 		p.collect()
 	}
 	if p.tuner != nil {
 		p.tuner.tune(p, idx)
 		p.step.ROC = p.tuner.roc
 	}
+}
+
+// fitted returns member i's exact fit from the last retune while it is
+// still that member's (the same λ and width: a grid extension or a wider
+// model since makes it stale), else the streaming member.
+func (p *Pipeline) fitted(i int) online.Model {
+	if i < len(p.fits) && p.fits[i].Lambda == p.ladder.Lambda(i) && len(p.fits[i].Standardized) == p.ladder.Features() {
+		return p.fits[i]
+	}
+	return p.ladder.Model(i)
 }
 
 // contention reports which ladder members decide the choice of λ on the
@@ -423,6 +470,48 @@ func (p *Pipeline) optimum(i int, now time.Time, fresh bool) online.Optimum {
 	return f.opt
 }
 
+// shiftScores re-indexes the chooser and the last scores after the grid
+// moved by k members (member i is now the old member i+k): a score keeps
+// its member, and a member that has not been scored yet has NaN metrics
+// until the next retune.
+func (p *Pipeline) shiftScores(k int) {
+	n := p.ladder.Size()
+	p.chooser.Shift(-k, n)
+	old := slices.Clone(p.scores)
+	for i := range p.scores {
+		j := i + k
+		if j >= 0 && j < len(old) {
+			p.scores[i] = old[j]
+		} else {
+			nan := math.NaN()
+			p.scores[i] = online.Score{Loss: nan, SE: nan, AUC: nan, Brier: nan, LogLoss: nan, RMSE: nan, MAE: nan, R2: nan}
+		}
+		p.scores[i].Index, p.scores[i].Lambda, p.scores[i].Nonzero = i, p.ladder.Lambda(i), p.ladder.Nonzero(i)
+	}
+}
+
+// choose lets the chooser pick λ* from the last scores. After a drift
+// adaptation, until the train window has filled again (the drift watch's
+// "filled": window.records train records, or n_s with a time span or the
+// decay learner), each pick that the scores give is adopted without the
+// hysteresis.
+func (p *Pipeline) choose() (int, bool) {
+	if p.adopt && p.ladder.Len() >= p.watch.fillAt {
+		p.adopt = false
+	}
+	if !p.adopt {
+		return p.chooser.Update(p.scores)
+	}
+	kept, prev := p.chooser, p.chooser.Current()
+	p.chooser.Reset()
+	idx, _ := p.chooser.Update(p.scores)
+	if idx < 0 {
+		p.chooser = kept
+		return prev, false
+	}
+	return idx, idx != prev
+}
+
 // gridStep returns the ladder's step in ln λ, ln(λ_0/λ_{K−1})/(K−1), or 0
 // for a single-member ladder.
 func (p *Pipeline) gridStep() float64 {
@@ -494,7 +583,7 @@ func (p *Pipeline) Publish(now time.Time, rejected uint64, force bool) (*Snapsho
 		return nil, err
 	}
 	heartbeat := p.cfg.Publish.Heartbeat.Std()
-	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) &&
+	if !force && !sink.Changed(p.last, s.Doc, p.cfg.Publish.Tolerance) && !renamed(p.last, s.Doc) &&
 		(heartbeat <= 0 || now.Sub(p.lastPub) < heartbeat) {
 		return nil, nil
 	}
@@ -527,6 +616,8 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64, fresh bool) (*
 	opt := p.optimum(cur, now, fresh)
 	m := opt.Model
 	trim(&m, len(names))
+	names = compact(&m, names)
+	grid := p.ladder.Grid()
 	var th *sink.Threshold
 	if p.tuner != nil {
 		th = p.tuner.threshold()
@@ -536,6 +627,7 @@ func (p *Pipeline) build(now time.Time, version, rejected uint64, fresh bool) (*
 		Version:   version,
 		Features:  names,
 		Model:     &m,
+		Grid:      &grid,
 		Scores:    p.ladderNow(),
 		Holdout:   p.HeldOutLen(),
 		Applied:   p.seq,
@@ -559,10 +651,9 @@ func (p *Pipeline) addPath(s *Snapshot) {
 	s.PathLambdas, s.Path = make([]float64, k), make([][]float64, k)
 	for i := range k {
 		mi := p.ladder.Model(i)
-		if len(p.fits) == k {
-			mi = p.fits[i] // the exact fits of the last retune
-		}
-		s.PathLambdas[i], s.Path[i] = p.ladder.Lambda(i), mi.Standardized[:min(len(mi.Standardized), len(s.Names))]
+		trim(&mi, len(p.at.names))
+		compact(&mi, p.at.names)
+		s.PathLambdas[i], s.Path[i] = mi.Lambda, mi.Standardized
 	}
 }
 
@@ -694,10 +785,11 @@ func (p *Pipeline) HeldOutScores(member int, probs, labels []float64) ([]float64
 	if p.hold == nil || p.hold.Len() == 0 {
 		return probs[:0], labels[:0]
 	}
-	if member < len(p.fits) {
-		return p.ladder.ModelPredictions(&p.fits[member], p.hold, probs), p.hold.Labels(labels)
+	m := p.fitted(member)
+	if len(m.Standardized) != p.hold.Features() {
+		return p.ladder.HoldoutPredictions(member, p.hold, probs), p.hold.Labels(labels)
 	}
-	return p.ladder.HoldoutPredictions(member, p.hold, probs), p.hold.Labels(labels)
+	return p.ladder.ModelPredictions(&m, p.hold, probs), p.hold.Labels(labels)
 }
 
 var _ heldOutScorer = (*Pipeline)(nil)

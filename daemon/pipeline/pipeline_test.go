@@ -32,8 +32,11 @@ func (s *sparseStream) next(x []float64) float64 {
 // the same window.Splitter: the pipeline must hold exactly the records the
 // split routes to each side, and every ladder member must be bit for bit
 // the bare ladder's (the pipeline adds policy, never a change to the
-// learner's input). Source: the routing rule of README.md, "Choosing λ on
-// held-out data" (every k-th record held out), no external source.
+// learner's input; its one change to the ladder, moving the grid down at
+// a retune whose held-out minimum sits at the smallest λ, is mirrored here
+// with the same chooser and online.Ladder.Extend). Source: the routing
+// rule of README.md, "Choosing λ on held-out data" (every k-th record held
+// out), no external source.
 func TestPipelineRoutesLikeLadder(t *testing.T) {
 	m := driftModel("route", config.LossSquared, featureNames(8), 1500)
 	h := newHarness(t, m)
@@ -52,6 +55,11 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 	s := &sparseStream{rng: rand.New(rand.NewPCG(3, 4))}
 	x := make([]float64, 8)
 	const n = 4000
+	rule, err := online.ParseRule(m.Retune.Rule)
+	if err != nil {
+		t.Fatal(err)
+	}
+	chooser, moved := online.Chooser{Rule: rule}, 0
 	for i := range n {
 		y := s.next(x)
 		h.feed(x, y)
@@ -64,7 +72,22 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
+		if (i+1)%m.Retune.Every == 0 {
+			// The pipeline scores the members' exact fits (Ladder.OptimumPath
+			// for the squared loss), so the mirror does too.
+			var fits []online.Model
+			for _, o := range bare.OptimumPath(nil, nil) {
+				fits = append(fits, o.Model)
+			}
+			scores := bare.ScoreModels(hold, fits, nil)
+			idx, _ := chooser.Update(scores)
+			if k := bare.Extend(online.Choose(scores, online.RuleMin), idx); k != 0 {
+				chooser.Shift(-k, bare.Size())
+				moved++
+			}
+		}
 	}
+	t.Logf("grid moved %d times", moved)
 	applied, held := h.p.Counts()
 	if applied != n || held != n/5 || h.p.HeldOutLen() != hold.Len() {
 		t.Fatalf("applied %d held out %d (ring %d), want %d and %d (ring %d)", applied, held, h.p.HeldOutLen(), n, n/5, hold.Len())
@@ -251,7 +274,8 @@ func TestPipelineApplyAllocs(t *testing.T) {
 // pipeline with the daemon's default model settings (window 10000, K = 12,
 // 2 steps per record, holdout every 5th, retune every 500, drift watch on)
 // at d = 16 and 64, against the bare ladder's Add on the same records (the
-// baseline, in the same run): the ratio is the price of the policy.
+// baseline, in the same run): the ratio is the price of the policy; and
+// with drift.adapt off (no loss trail of the change-point estimate).
 func BenchmarkPipelineApply(b *testing.B) {
 	for _, d := range []int{16, 64} {
 		m := config.DefaultModel()
@@ -264,22 +288,14 @@ func BenchmarkPipelineApply(b *testing.B) {
 			xs[i] = make([]float64, d)
 			ys[i] = s.next(xs[i])
 		}
-		b.Run("pipeline/d="+strconv.Itoa(d), func(b *testing.B) {
-			h := newHarness(b, m)
-			for i := range 12000 {
-				h.feed(xs[i&4095], ys[i&4095])
-			}
-			rec := record.Record{W: 1}
-			b.ReportAllocs()
-			i := 0
-			for b.Loop() {
-				rec.X, rec.Y = xs[i&4095], ys[i&4095]
-				if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
-					b.Fatal(err)
-				}
-				i++
-			}
-		})
+		off := m
+		off.Drift.Adapt = false // no loss trail: its cost per record is the difference
+		for _, v := range []struct {
+			name string
+			m    config.Model
+		}{{"pipeline", m}, {"pipeline-adapt-off", off}} {
+			benchPipeline(b, v.name+"/d="+strconv.Itoa(d), v.m, xs, ys)
+		}
 		b.Run("ladder/d="+strconv.Itoa(d), func(b *testing.B) {
 			l, err := online.NewLadder(&online.Options{Features: d, Window: m.Window.Records, Seed: 1})
 			if err != nil {
@@ -298,4 +314,25 @@ func BenchmarkPipelineApply(b *testing.B) {
 			}
 		})
 	}
+}
+
+// benchPipeline measures Pipeline.Apply per record for model m after a
+// warm-up of 12,000 records, cycling through xs and ys.
+func benchPipeline(b *testing.B, name string, m config.Model, xs [][]float64, ys []float64) {
+	b.Run(name, func(b *testing.B) {
+		h := newHarness(b, m)
+		for i := range 12000 {
+			h.feed(xs[i&4095], ys[i&4095])
+		}
+		rec := record.Record{W: 1}
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			rec.X, rec.Y = xs[i&4095], ys[i&4095]
+			if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
+				b.Fatal(err)
+			}
+			i++
+		}
+	})
 }

@@ -35,7 +35,7 @@ type Scorer struct {
 	cfg    *config.Model
 	dim    int
 	dec    *record.Decoder
-	known  int // len(names) the decoder was built for
+	known  []string // the names the decoder was built for
 	rec    record.Record
 	bucket tokenBucket
 	seq    uint64
@@ -57,9 +57,10 @@ func NewScorer(m *config.Model) *Scorer {
 // suppressed reports an alert held back by the rate limit. A record that
 // cannot be decoded gives the decoder's *record.Error.
 func (s *Scorer) Score(snap *Snapshot, data []byte, now time.Time) (a *sink.Alert, suppressed bool, err error) {
-	if len(snap.Names) != s.known || s.dec == nil {
+	if s.dec == nil || !sameNames(snap.Names, s.known) {
+		// A slot that changed hands keeps the length: compare the names.
 		s.dec = s.decoder(snap.Names)
-		s.known = len(snap.Names)
+		s.known = snap.Names
 	}
 	if err := s.dec.Decode(data, &s.rec); err != nil {
 		return nil, false, err
@@ -78,6 +79,14 @@ func (s *Scorer) Score(snap *Snapshot, data []byte, now time.Time) (a *sink.Aler
 
 // Scored returns the number of records scored.
 func (s *Scorer) Scored() uint64 { return s.seq }
+
+// sameNames reports whether a and b are the same names in the same order.
+func sameNames(a, b []string) bool {
+	if len(a) == len(b) && (len(a) == 0 || &a[0] == &b[0]) {
+		return true
+	}
+	return slices.Equal(a, b)
+}
 
 // decoder builds an unlabeled decoder with the model's feature order: the
 // configured list, then the names the model learned.

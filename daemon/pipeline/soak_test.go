@@ -11,7 +11,7 @@ import (
 
 // TestDriftFalseAlarmsSoak measures the false-alarm rates of
 // TestDriftFalseAlarms over 1M stationary records per run and more seeds
-// (go test -tags soak -run TestDriftFalseAlarmsSoak ./daemon/, a few
+// (go test -tags soak -run TestDriftFalseAlarmsSoak ./daemon/pipeline/, a few
 // minutes). It asserts the same per-100k bounds on the totals.
 func TestDriftFalseAlarmsSoak(t *testing.T) {
 	const n = 1000000

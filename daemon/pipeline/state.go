@@ -12,8 +12,10 @@ import (
 	"lariat/window"
 )
 
-// stateFormat is the version of the layout MarshalBinary writes.
-const stateFormat = 1
+// stateFormat is the version of the layout MarshalBinary writes. Format 3
+// added the current width (a model grows with the names it learns) and the
+// count of reset columns.
+const stateFormat = 3
 
 // fingerprint hashes the configuration a pipeline's state depends on: a
 // checkpoint made under another learning configuration is refused on
@@ -31,15 +33,18 @@ func fingerprint(m *config.Model) uint64 {
 // MarshalBinary returns the pipeline's whole state: the ladder (learner
 // state, window, scaler, random generator), the held-out ring, the chooser
 // with its hysteresis, the counters, the feature names, the drift watch
-// (detector, data reference and sample, support streaks, cooldowns), the
-// threshold tuner, the version, the last published document and the stream
-// position. Restore brings it back bit for bit.
+// (detector, loss trail and waiting cut, data reference and sample,
+// support streaks, cooldowns), the threshold tuner, the version, the last
+// published document and the stream position. Restore brings it back bit
+// for bit.
 func (p *Pipeline) MarshalBinary() ([]byte, error) {
 	e := newEnc()
 	e.uvarint(stateFormat)
 	e.str(p.name)
 	e.uvarint(fingerprint(p.cfg))
 	e.int(p.dim)
+	e.int(p.ladder.Features())
+	e.uvarint(p.freed)
 	if err := p.marshalModel(e); err != nil {
 		return nil, err
 	}
@@ -77,6 +82,7 @@ func (p *Pipeline) marshalCounters(e enc) {
 	e.uvarint(p.seq)
 	e.uvarint(p.held)
 	e.int(p.sinceRetune)
+	e.bool(p.adopt)
 	e.uvarint(uint64(len(p.scores)))
 	for _, s := range p.scores {
 		e.int(s.Index)
@@ -139,7 +145,16 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if dim := d.int(); !d.failed() && dim != p.dim {
 		return nil, fmt.Errorf("%w: %d columns, the model has %d", ErrState, dim, p.dim)
 	}
-	if err := p.restoreModel(d); err != nil {
+	width := d.int()
+	p.freed = d.uvarint()
+	if !d.failed() && (width < 1 || width > p.dim) {
+		return nil, fmt.Errorf("%w: width %d, the model has at most %d columns", ErrState, width, p.dim)
+	}
+	if d.failed() {
+		return nil, d.err()
+	}
+	p.watch.resize(width)
+	if err := p.restoreModel(d, width); err != nil {
 		return nil, err
 	}
 	p.restoreCounters(d)
@@ -163,7 +178,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	return p, nil
 }
 
-func (p *Pipeline) restoreModel(d dec) error {
+func (p *Pipeline) restoreModel(d dec, width int) error {
 	lb := d.bytes()
 	if d.failed() {
 		return d.err()
@@ -172,8 +187,9 @@ func (p *Pipeline) restoreModel(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: ladder: %v", ErrState, err)
 	}
-	if lad.Features() != p.dim || lad.Size() != p.ladder.Size() {
-		return fmt.Errorf("%w: ladder of %d×%d, the model needs %d×%d", ErrState, lad.Size(), lad.Features(), p.ladder.Size(), p.dim)
+	if lad.Features() != width || lad.MaxFeatures() != p.dim || lad.Size() != p.ladder.Size() {
+		return fmt.Errorf("%w: ladder of %d×%d (at most %d wide), the model needs %d×%d (at most %d)", ErrState,
+			lad.Size(), lad.Features(), lad.MaxFeatures(), p.ladder.Size(), width, p.dim)
 	}
 	p.ladder = lad
 	if has := d.bool(); has != (p.hold != nil) {
@@ -188,8 +204,8 @@ func (p *Pipeline) restoreModel(d dec) error {
 		if err := h.UnmarshalBinary(hb); err != nil {
 			return fmt.Errorf("%w: held-out ring: %v", ErrState, err)
 		}
-		if h.Features() != p.dim {
-			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), p.dim)
+		if h.Features() != width {
+			return fmt.Errorf("%w: held-out ring of %d columns, the model has %d", ErrState, h.Features(), width)
 		}
 		p.hold = h
 	}
@@ -206,6 +222,7 @@ func (p *Pipeline) restoreModel(d dec) error {
 func (p *Pipeline) restoreCounters(d dec) {
 	p.seq, p.held = d.uvarint(), d.uvarint()
 	p.sinceRetune = d.int()
+	p.adopt = d.bool()
 	n := d.count(11)
 	p.scores = make([]online.Score, n)
 	for i := range p.scores {
@@ -317,8 +334,16 @@ func (wt *watch) marshalDetector(e enc) error {
 		return err
 	}
 	e.bytes(b)
-	e.int(wt.det.sinceZero)
-	return nil
+	e.bool(wt.trail != nil)
+	if wt.trail != nil {
+		wt.trail.encode(e)
+		c := wt.cut
+		e.bool(c.on)
+		e.int(c.post)
+		e.int(c.train)
+		e.int(c.held)
+	}
+	return e.Err()
 }
 
 // restore reads what marshal wrote into a watch built for the same model.
@@ -394,6 +419,19 @@ func (wt *watch) restoreDetector(d dec) error {
 	if err != nil {
 		return fmt.Errorf("%w: performance detector: %v", ErrState, err)
 	}
-	wt.det.sinceZero = d.int()
+	if has := d.bool(); has != (wt.trail != nil) {
+		d.fail("loss trail present %v, the model's %v", has, wt.trail != nil)
+	}
+	if d.failed() || wt.trail == nil {
+		return d.err()
+	}
+	if err := wt.trail.decode(d); err != nil {
+		return err
+	}
+	c := pendingCut{on: d.bool(), post: d.int(), train: d.int(), held: d.int()}
+	if !d.failed() && (c.post < 0 || c.train < 0 || c.held < 0 || c.train+c.held != c.post || (!c.on && c.post != 0)) {
+		d.fail("waiting cut of %d records (%d train, %d held out)", c.post, c.train, c.held)
+	}
+	wt.cut = c
 	return d.err()
 }

@@ -220,3 +220,77 @@ func BenchmarkPipelineState(b *testing.B) {
 		}
 	})
 }
+
+// TestStateWaitingCut saves a pipeline while a drift adaptation waits for
+// its 50 train records after the estimated change point (the linear
+// stream of TestWatchPerformanceAlert, whose cut waits), restores it, and
+// feeds both the same continuation: the cut must happen at the same record
+// with the same window sizes, and every later ladder, choice and state
+// must be bit-identical. A damaged waiting cut (train + held-out counts
+// that do not add up) is refused with ErrState.
+func TestStateWaitingCut(t *testing.T) {
+	m := driftModel("wait", config.LossSquared, featureNames(3), 2000)
+	a := newHarness(t, m)
+	s := &switchStream{rng: rand.New(rand.NewPCG(6, 6)), k: 0}
+	x := make([]float64, 3)
+	for range 4000 {
+		a.feed(x, s.next(x))
+	}
+	s.k = 1
+	for i := 0; !a.watch().cut.on; i++ {
+		if i == 600 {
+			t.Fatal("no waiting cut within 600 records of the change")
+		}
+		a.feed(x, s.next(x))
+	}
+	state, err := a.p.MarshalBinary()
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := newHarness(t, m)
+	if b.p, err = Restore(Options{Model: a.p.cfg}, state); err != nil {
+		t.Fatal(err)
+	}
+	if again, _ := b.p.MarshalBinary(); !bytes.Equal(again, state) {
+		t.Fatal("re-saved state differs")
+	}
+	saved := a.watch().cut
+	t.Logf("saved with a cut waiting: %+v", saved)
+	cutA, cutB := -1, -1
+	for i := range 1500 {
+		y := s.next(x)
+		a.feed(x, y)
+		b.feed(x, y)
+		if a.p.step.Adapted && cutA < 0 {
+			cutA = i
+		}
+		if b.p.step.Adapted && cutB < 0 {
+			cutB = i
+			if a.p.ladder.Len() != b.p.ladder.Len() || a.p.HeldOutLen() != b.p.HeldOutLen() {
+				t.Errorf("windows after the cut %d/%d and %d/%d", a.p.ladder.Len(), a.p.HeldOutLen(), b.p.ladder.Len(), b.p.HeldOutLen())
+			}
+		}
+	}
+	if cutA < 0 || cutA != cutB {
+		t.Errorf("cut at record %d of the original, %d of the restored", cutA, cutB)
+	}
+	if ladderBits(a.p.ladder) != ladderBits(b.p.ladder) || a.p.Current() != b.p.Current() {
+		t.Error("ladders or choices differ after the continuation")
+	}
+	sa, _ := a.p.MarshalBinary()
+	sb, _ := b.p.MarshalBinary()
+	if !bytes.Equal(sa, sb) {
+		t.Error("final states differ")
+	}
+	// The waiting cut ends the watch's state (on, post, train, held: small
+	// counts, one zig-zag byte each), followed by the one byte that says
+	// the squared-loss model has no threshold tuner.
+	bad := bytes.Clone(state)
+	if bad[len(bad)-2] != byte(2*saved.held) {
+		t.Fatalf("state layout: byte %d before the end, want the held-out count %d", bad[len(bad)-2], saved.held)
+	}
+	bad[len(bad)-2] += 2 // held + 1: train + held no longer equals post
+	if _, err := Restore(Options{Model: a.p.cfg}, bad); !errors.Is(err, ErrState) {
+		t.Errorf("a waiting cut whose counts do not add up: %v", err)
+	}
+}

@@ -10,8 +10,9 @@ import (
 
 // The drift watch's fixed rules (see watch for the whole of them).
 const (
-	// adaptFloor is the fewest train (and held-out) records a drift
-	// adaptation keeps, so the window never shrinks to a handful of records.
+	// adaptFloor is the fewest train records a drift adaptation keeps, so
+	// the window never shrinks to a handful of records: a cut whose
+	// estimated change is more recent waits for that many (see watch).
 	adaptFloor = 50
 	// shiftSampleMax and shiftSampleMin bound n_s, the size of the
 	// data-drift reference and comparison samples: window.records/4 within
@@ -75,18 +76,28 @@ const (
 // max(0.005, 10% of the level before) (significant but immaterial; see
 // minRise).
 //
-// Adaptation (drift.adapt). After a confirmed performance drift the train
-// window keeps only the records the detector judged post-change (ADWIN: the
-// values it kept after the cut; Page-Hinkley: the values since its
-// statistic was last 0, the change-point estimate of the CUSUM), counted in
-// train records as kept·(k−1)/k for a holdout of every k-th record and
-// floored at 50: Ladder.Shrink(n). The held-out ring keeps its newest
-// max(50, kept/k) records the same way, so λ and the threshold are chosen on
-// post-change records. The window then grows again with new records up to
-// window.records. The data reference is re-taken once n_s train records
-// have arrived after the adaptation (after a last comparison against the
-// old reference); for the squared loss the target scale is re-estimated and
-// the detector restarted at that moment.
+// Adaptation (drift.adapt). The watch keeps the bounded loss of the
+// newest records the model holds, each marked train or held out (the loss
+// trail: as many records as the train window and the held-out ring span,
+// at most 1<<17; it starts at warm-up and, for the squared loss, starts
+// afresh with the detector whenever the target scale is re-estimated).
+// After a confirmed performance drift the change point is estimated on it
+// (window.EstimateRise: the split that maximizes n0·n1/n·(μ̂1 − μ̂0)² with
+// a higher newer mean, the maximum-likelihood change point of Hinkley
+// 1970), and the train window and the held-out ring keep exactly the
+// records after it: Ladder.Shrink(train records after it) and
+// Holdout.KeepNewest(held-out records after it), so λ and the threshold are
+// chosen on post-change records. Floor: the cut never leaves fewer than 50
+// train records; when fewer than 50 have arrived since the estimated
+// change, the cut waits until 50 have (the records in between are
+// post-change too), then keeps those and the held-out records among them.
+// At the alert ADWIN restarts (Page-Hinkley restarts by itself after a
+// signal), so the values of the model that missed the change do not raise
+// a second alert while the adapted model recovers. The window then grows
+// again with new records up to window.records. The data reference is
+// re-taken once n_s train records have arrived after the cut (after a last
+// comparison against the old reference); for the squared loss the target
+// scale is re-estimated and the detector restarted at that moment.
 //
 // Data drift. A ring of the newest n_s train records (n_s = window.records/4
 // within [500, 1000]) is compared every retune.every train records, once
@@ -125,6 +136,12 @@ type watch struct {
 
 	det  *lossDetector // nil when drift.performance is off
 	warm bool
+	// trail is the loss trail of the change-point estimate; nil unless
+	// drift.adapt and a performance detector are on.
+	trail *lossTrail
+	// cut is the adaptation waiting for adaptFloor train records after
+	// its estimated change point.
+	cut pendingCut
 	// yScale is s_y of the squared-loss detector input.
 	yScale float64
 
@@ -149,6 +166,14 @@ type watch struct {
 	alerts []sink.Alert
 	// adapted is set when the current call shrank the window.
 	adapted bool
+}
+
+// pendingCut is an adaptation whose estimated change point has fewer than
+// adaptFloor train records after it: the records since the change point
+// (post), and of those, the train and held-out ones.
+type pendingCut struct {
+	on                bool
+	post, train, held int
 }
 
 // watchedWindow is what the drift watch needs from the model it watches:
@@ -201,6 +226,13 @@ func newWatch(m *config.Model, dim int, win watchedWindow, at *moment) *watch {
 		wt.fillAt = n
 	}
 	wt.det = newLossDetector(dc)
+	if dc.Adapt && wt.det != nil {
+		k := window.Splitter{Every: m.Holdout.Every}.Period()
+		if m.HoldoutOff() {
+			k = 0
+		}
+		wt.trail = newLossTrail(trailCap(m, k))
+	}
 	return wt
 }
 
@@ -225,7 +257,12 @@ func (wt *watch) observe(x []float64, y, loss float64, heldOut bool) {
 	if wt.det == nil {
 		return
 	}
-	c, fired := wt.det.add(wt.bounded(loss))
+	u := wt.bounded(loss)
+	if wt.trail != nil {
+		wt.trail.push(u, heldOut)
+		wt.cut.count(heldOut)
+	}
+	c, fired := wt.det.add(u)
 	switch {
 	case !fired:
 	case c.up && (wt.det.ph != nil || c.stat >= max(minRise, minRiseRel*c.before)):
@@ -235,6 +272,7 @@ func (wt *watch) observe(x []float64, y, loss float64, heldOut bool) {
 	default:
 		wt.stats.recoveries++
 	}
+	wt.makeCut()
 }
 
 // retuned checks the support and λ* of the chosen member: standardized
@@ -265,6 +303,9 @@ func (wt *watch) takeReference() {
 		if wt.det != nil {
 			wt.det.reset()
 		}
+		if wt.trail != nil {
+			wt.trail.keepNewest(0) // its values are on the old scale
+		}
 	}
 }
 
@@ -278,36 +319,60 @@ func (wt *watch) bounded(loss float64) float64 {
 	return min(1, 2*loss/(c*c)) // ℓ = r²/2
 }
 
-// performanceDrift raises a performance alert and adapts the window.
+// performanceDrift raises a performance alert and, with drift.adapt,
+// estimates the change point and adapts the window to it.
 func (wt *watch) performanceDrift(c lossChange) {
 	sev := sink.SeverityWarning
 	if c.after >= 2*c.before && wt.det.adwin != nil {
 		sev = sink.SeverityCritical
 	}
-	if wt.gate.allow(sink.KindPerformance, wt.at, &wt.stats) {
-		wt.emit(sink.KindPerformance, sev, c.stat, c.threshold, c.width, nil, perfMessage(wt.det, c))
+	rise := window.Rise{After: -1}
+	if wt.trail != nil {
+		rise = window.EstimateRise(wt.trail.ring)
+		wt.det.reset()
 	}
-	if wt.cfg.Adapt {
-		wt.adapt(c.kept)
+	if wt.gate.allow(sink.KindPerformance, wt.at, &wt.stats) {
+		wt.emit(sink.KindPerformance, sev, c.stat, c.threshold, c.width, nil, perfMessage(wt.det, c, rise.After))
+	}
+	if wt.trail != nil && rise.After > 0 {
+		train, held := wt.trail.split(rise.After)
+		wt.cut = pendingCut{on: true, post: rise.After, train: train, held: held}
 	}
 }
 
-// adapt shrinks the train window and the held-out ring to the records
-// judged post-change (see watch).
-func (wt *watch) adapt(kept int) {
-	k := wt.win.HoldoutPeriod()
-	train, held := kept, 0
-	if k >= 2 {
-		train = int(math.Round(float64(kept) * float64(k-1) / float64(k)))
-		held = max(adaptFloor, int(math.Round(float64(kept)/float64(k))))
+// count adds the record just observed to a waiting cut.
+func (pc *pendingCut) count(heldOut bool) {
+	if !pc.on {
+		return
 	}
-	train = max(adaptFloor, train)
+	pc.post++
+	if heldOut {
+		pc.held++
+	} else {
+		pc.train++
+	}
+}
+
+// makeCut adapts the window once a waiting cut has adaptFloor train
+// records after its change point.
+func (wt *watch) makeCut() {
+	if pc := wt.cut; pc.on && pc.train >= adaptFloor {
+		wt.cut = pendingCut{}
+		wt.adapt(pc.post, pc.train, pc.held)
+	}
+}
+
+// adapt keeps only the records after the estimated change point: post
+// records, of which train went to the train window and held to the
+// held-out ring (see watch).
+func (wt *watch) adapt(post, train, held int) {
 	if train < wt.win.TrainLen() {
 		wt.win.KeepNewestTrain(train)
 	}
-	if held > 0 && held < wt.win.HeldOutLen() {
+	if wt.win.HoldoutPeriod() >= 2 && held < wt.win.HeldOutLen() {
 		wt.win.KeepNewestHeldOut(held)
 	}
+	wt.trail.keepNewest(post)
 	wt.stats.adaptations++
 	wt.adapted = true
 	wt.retake = true

@@ -51,6 +51,21 @@ type Decoder struct {
 	bad  *Error              // first structural error (duplicate, both "x" and "v") of the record
 	err  *Error              // first other semantic error of the record
 	over map[string]struct{} // names not learned in this record, for duplicate detection
+
+	// Slots (slots.go): the decode count a slot's name was last carried
+	// at, the decodes after which an unseen learned name frees its slot (0:
+	// never), the free slots, whether a returned Names slice shares the
+	// names array (so a change to an existing slot copies it first), the
+	// slots this record reused (rollback), and the counts.
+	last      []uint64
+	count     uint64
+	freeAfter uint64
+	nfree     int
+	shared    bool
+	reused    []int
+	drops     uint64 // names this record dropped past the cap
+	dropped   uint64
+	freed     uint64
 }
 
 // NewDecoder returns a Decoder. It panics if o.Validate() fails.
@@ -69,6 +84,7 @@ func NewDecoder(o *DecoderOptions) *Decoder {
 		reject:    o.Missing == MissingReject,
 		unlabeled: o.Unlabeled,
 		index:     make(map[string]int),
+		freeAfter: uint64(o.FreeAfter),
 	}
 	if d.max == 0 {
 		d.max = DefaultMaxFeatures
@@ -78,20 +94,30 @@ func NewDecoder(o *DecoderOptions) *Decoder {
 	}
 	for _, list := range [][]string{o.Features, o.Learned} {
 		for _, name := range list {
-			d.index[name] = len(d.names)
+			if name == "" {
+				d.nfree++
+			} else {
+				d.index[name] = len(d.names)
+			}
 			d.names = append(d.names, name)
 			d.seen = append(d.seen, 0)
-			d.plain = append(d.plain, isPlain(name))
+			d.last = append(d.last, 0)
+			d.plain = append(d.plain, name != "" && isPlain(name))
 		}
 	}
 	return d
 }
 
 // Names returns the feature order: the fixed Features, then Learned, then
-// names in order of first appearance. The slice is shared and read-only;
-// later Decode calls append to the order but never change the elements of a
-// slice already returned.
-func (d *Decoder) Names() []string { return d.names[:len(d.names):len(d.names)] }
+// names in order of first appearance, each in its slot; "" marks a free
+// slot (see DecoderOptions.FreeAfter), which a later name may take. The
+// slice is shared and read-only; later Decode calls never change the
+// elements of a slice already returned (a slot that changes hands does so
+// in a copy).
+func (d *Decoder) Names() []string {
+	d.shared = true
+	return d.names[:len(d.names):len(d.names)]
+}
 
 // Features returns the number of features, len(Names()).
 func (d *Decoder) Features() int { return len(d.names) }
@@ -126,6 +152,7 @@ func (d *Decoder) Decode(msg []byte, r *Record) error {
 		d.rollback()
 		return err // never a nil *Error in a non-nil interface
 	}
+	d.commit()
 	return nil
 }
 
@@ -134,6 +161,7 @@ func (d *Decoder) begin(msg []byte, r *Record) {
 	d.s.b, d.s.i, d.s.err = msg, 0, nil
 	d.bad, d.err = nil, nil
 	d.mark = len(d.names)
+	d.reused, d.drops = d.reused[:0], 0
 	d.guess = 0
 	d.gen++
 	if d.gen == 0 { // wrapped: old stamps could collide
@@ -160,7 +188,13 @@ func (d *Decoder) rollback() {
 	clear(d.names[d.mark:]) // drop references for the collector
 	d.names = d.names[:d.mark]
 	d.seen = d.seen[:d.mark]
+	d.last = d.last[:d.mark]
 	d.plain = d.plain[:d.mark]
+	for _, j := range d.reused { // the array was copied before reuse: no snapshot holds it
+		delete(d.index, d.names[j])
+		d.names[j], d.plain[j] = "", false
+		d.nfree++
+	}
 	if len(d.over) > 64 {
 		d.over = nil // do not keep a large map for a hostile record
 	}

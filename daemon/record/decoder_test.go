@@ -120,7 +120,7 @@ var decodeCases = []struct {
 	{name: "logistic 0.5", o: logistic, msg: `{"y":0.5,"x":{}}`, reason: ReasonLabel},
 	{name: "no y", msg: `{"x":{"a":1}}`, reason: ReasonLabel},
 	{name: "null y", msg: `{"y":null,"x":{"a":1}}`, reason: ReasonLabel},
-	{name: "past the cap", o: capOne, msg: `{"y":1,"x":{"a":1,"b":2}}`, reason: ReasonTooManyFeatures},
+	{name: "past the cap, reject", o: &DecoderOptions{MaxFeatures: 1, Missing: MissingReject}, msg: `{"y":1,"x":{"a":1,"b":2}}`, reason: ReasonTooManyFeatures},
 	{name: "neither x nor v", msg: `{"y":1}`, reason: ReasonMissingFeature},
 	{name: "x null", msg: `{"y":1,"x":null}`, reason: ReasonMissingFeature},
 	{name: "reject: channel absent", o: strict, msg: `{"y":1,"x":{"a":1}}`, reason: ReasonMissingFeature},
@@ -229,8 +229,7 @@ func TestLearning(t *testing.T) {
 	}
 	step(`{"y":1,"x":{"b":1,"l":2}}`, "", "f", "l", "b")
 	before := d.Names()
-	step(`{"y":1,"x":{"c":1,"d":2}}`, ReasonTooManyFeatures, "f", "l", "b")
-	step(`{"y":"bad","x":{"c":1}}`, ReasonType, "f", "l", "b")
+	step(`{"y":"bad","x":{"c":1,"d":2}}`, ReasonType, "f", "l", "b")
 	step(`{"y":1,"x":{"c":1,"c":1}}`, ReasonMalformed, "f", "l", "b")
 	step(`{"y":1,"x":{"c":1}}`, "", "f", "l", "b", "c")
 	if !slices.Equal(before, []string{"f", "l", "b"}) {
@@ -239,7 +238,12 @@ func TestLearning(t *testing.T) {
 	if !sameFloat(r.X[0], nan) || !sameFloat(r.X[1], nan) || !sameFloat(r.X[2], nan) || r.X[3] != 1 {
 		t.Errorf("X = %v, want [NaN NaN NaN 1]", r.X)
 	}
-	step(`{"y":1,"x":{"e":1}}`, ReasonTooManyFeatures, "f", "l", "b", "c")
+	// Past the cap a new name is dropped and counted; the record keeps the
+	// channels it has.
+	step(`{"y":1,"x":{"e":1,"c":7}}`, "", "f", "l", "b", "c")
+	if d.Dropped() != 1 || r.X[3] != 7 {
+		t.Errorf("dropped %d, X = %v", d.Dropped(), r.X)
+	}
 	// Past the cap, duplicates of unlearned names are still duplicates.
 	step(`{"y":1,"x":{"e":1,"e":2}}`, ReasonMalformed, "f", "l", "b", "c")
 	step(`{"y":1,"x":{"c":5,"b":4,"l":3,"f":2}}`, "", "f", "l", "b", "c")
@@ -319,6 +323,9 @@ func TestValidate(t *testing.T) {
 		{"over the cap", &DecoderOptions{Features: []string{"a", "b"}, MaxFeatures: 1}, false},
 		{"over the default cap", &DecoderOptions{Features: make([]string, 257)}, false},
 		{"negative", &DecoderOptions{MaxBytes: -1}, false},
+		{"negative free after", &DecoderOptions{FreeAfter: -1}, false},
+		{"free slots in learned", &DecoderOptions{Learned: []string{"", "a", ""}, MaxFeatures: 3}, true},
+		{"free slots past the cap", &DecoderOptions{Learned: []string{"", "a", ""}, MaxFeatures: 2}, false},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			if tc.name == "over the default cap" {

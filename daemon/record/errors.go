@@ -13,7 +13,7 @@ const (
 	ReasonType            = "type"              // a field holds a JSON value of the wrong type
 	ReasonNotFinite       = "not_finite"        // a number overflows float64 (e.g. 1e400)
 	ReasonLabel           = "label"             // "y" is missing, or not 0/1/true/false for a logistic model
-	ReasonTooManyFeatures = "too_many_features" // a new channel name past DecoderOptions.MaxFeatures
+	ReasonTooManyFeatures = "too_many_features" // a new channel name past DecoderOptions.MaxFeatures under the missing policy "reject" (otherwise the name is dropped and counted)
 	ReasonMissingFeature  = "missing_feature"   // neither "x" nor "v", or a missing channel under the reject policy
 	ReasonDimension       = "dimension"         // "v" has the wrong length, or there is no fixed feature list
 	ReasonWeight          = "weight"            // "w" is 0 or negative (a weight must be positive; absent means 1)

@@ -167,6 +167,7 @@ func (d *Decoder) named(r *Record) bool {
 				d.duplicate(s.b[at+1 : s.i-1])
 			}
 			d.seen[j] = d.gen
+			d.last[j] = d.count + 1
 		} else {
 			if s.peek() != '"' {
 				return s.fail("looking for a channel name")
@@ -224,7 +225,7 @@ func isPlain(name string) bool {
 // the cap allows; -1 if the value is to be skipped.
 func (d *Decoder) lookup(name []byte, r *Record) int {
 	j := d.guess
-	if j >= len(d.names) || d.names[j] != string(name) {
+	if j >= len(d.names) || d.names[j] != string(name) || len(name) == 0 { // "" is a free slot, never a name
 		var ok bool
 		if j, ok = d.index[string(name)]; !ok {
 			return d.learn(name, r)
@@ -235,6 +236,7 @@ func (d *Decoder) lookup(name []byte, r *Record) int {
 		d.duplicate(name)
 	}
 	d.seen[j] = d.gen
+	d.last[j] = d.count + 1
 	return j
 }
 
@@ -276,19 +278,26 @@ func (d *Decoder) learn(name []byte, r *Record) int {
 		d.refused(name)
 		return -1
 	}
+	if d.err == nil && d.nfree > 0 {
+		return d.reuse(name)
+	}
 	if d.err == nil && len(d.names) < d.max {
 		j := len(d.names)
 		n := string(name)
 		d.names = append(d.names, n)
 		d.index[n] = j
 		d.seen = append(d.seen, d.gen)
+		d.last = append(d.last, d.count+1)
 		d.plain = append(d.plain, isPlain(n))
 		d.guess = j + 1
 		r.X = append(r.X, math.NaN())
 		return j
 	}
-	if d.err == nil {
+	if d.err == nil && d.reject {
 		d.semantic(ReasonTooManyFeatures, "new channel %s past the cap of %d features", quote(name), d.max)
+	}
+	if _, dup := d.over[string(name)]; d.err == nil && !dup {
+		d.drops++ // the cap is reached: the value is dropped, the record kept
 	}
 	d.refused(name)
 	return -1

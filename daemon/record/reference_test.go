@@ -165,9 +165,9 @@ func (d *refDecoder) decode(msg []byte) (Record, map[string]bool) {
 					j = len(d.names)
 					d.names = append(d.names, m.key)
 					rec.X = append(rec.X, math.NaN())
-				} else if j < 0 {
+				} else if j < 0 && d.o.Missing == MissingReject {
 					bad[ReasonTooManyFeatures] = true
-				}
+				} // else: past the cap, the value is dropped
 				if f, ok := value(m.raw); ok && j >= 0 {
 					rec.X[j] = f
 				}

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"errors"
+	"fmt"
 	"time"
 
 	"github.com/spf13/cobra"
@@ -27,15 +29,40 @@ detected. It runs until Ctrl-C, or for --duration.`,
 				return err
 			}
 			o.Out, o.Logger, o.Version = cmd.OutOrStdout(), log, version
+			if err := demoFlags(cmd, &o); err != nil {
+				return err
+			}
 			return runDemo(cmd.Context(), o)
 		},
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.Data, "data", "", "data directory: streams and checkpoints, kept across runs so a restarted demo continues where it stopped (default ./lariat-demo-data; remove it for a fresh start)")
 	f.DurationVar(&o.Duration, "duration", 0, "stop after this long (default: run until Ctrl-C)")
-	f.DurationVar(&o.FaultAfter, "fault-after", 3*time.Minute, "when the simulated bearing fault begins (negative: never)")
+	f.DurationVar(&o.FaultAfter, "fault-after", 3*time.Minute, "when the simulated bearing fault begins (0: from the start; negative: never)")
 	f.DurationVar(&o.Every, "every", 5*time.Second, "print a line per model this often")
 	f.Float64Var(&o.Rate, "rate", 200, "records per second published by the plant")
-	f.Uint64Var(&o.Seed, "seed", 1, "seed of the simulated plant")
+	f.Uint64Var(&o.Seed, "seed", 1, "seed of the simulated plant (>= 1)")
 	return cmd
+}
+
+// demoFlags reads a flag given as 0 as 0, never as "not given": demoOptions
+// and the plant take 0 for their defaults, so an explicit 0 is refused
+// where it has no meaning, and --fault-after 0 starts the fault with the
+// first record.
+func demoFlags(cmd *cobra.Command, o *demoOptions) error {
+	set := cmd.Flags().Changed
+	switch {
+	case set("duration") && o.Duration <= 0:
+		return fmt.Errorf("demo: --duration %v: give a positive duration, or leave it out to run until Ctrl-C", o.Duration)
+	case set("every") && o.Every <= 0:
+		return fmt.Errorf("demo: --every %v: the narration period must be positive", o.Every)
+	case set("rate") && !(o.Rate > 0):
+		return fmt.Errorf("demo: --rate %v: the plant's records per second must be positive", o.Rate)
+	case set("seed") && o.Seed == 0:
+		return errors.New("demo: --seed 0: the plant's seed must be >= 1")
+	}
+	if set("fault-after") && o.FaultAfter == 0 {
+		o.FaultAfter = time.Nanosecond // the plant's 0 would mean its default, 3 minutes
+	}
+	return nil
 }

@@ -87,7 +87,7 @@ the way.`,
 	f.StringVar(&rf.loss, "loss", d.Loss, "loss: squared | logistic")
 	f.StringVar(&rf.penalty, "penalty", d.Penalty, "penalty: lasso | ridge | elastic-net")
 	f.Float64Var(&rf.mix, "mix", 0, "elastic-net mix α in (0, 1) (elastic-net only)")
-	f.Float64Var(&rf.lambda, "lambda", 0, "fixed λ > 0 (default: a ladder, λ chosen on held-out records)")
+	f.Float64Var(&rf.lambda, "lambda", 0, "fixed λ > 0 (default: a ladder, λ chosen on held-out records; 0 is refused)")
 	f.StringVar(&rf.rule, "rule", d.Retune.Rule, "λ selection rule: one-se | min")
 	f.Uint64Var(&rf.seed, "seed", 0, "learner seed (default: derived from the model name, as the daemon does)")
 	f.IntVar(&rf.window, "window", d.Window.Records, "train window in records")
@@ -144,6 +144,12 @@ func (rf *replayFlags) resolveModel(cmd *cobra.Command) (*config.Model, error) {
 		return nil, errors.New("replay: --model needs a configuration (-c)")
 	}
 	set := cmd.Flags().Changed
+	if set("lambda") && rf.lambda == 0 {
+		// A configuration's lambda 0 means "choose λ"; a flag's 0 is never
+		// taken for "not given", and the pipeline has no unpenalized fit.
+		return nil, errors.New("replay: --lambda 0: the streaming pipeline fits no unpenalized model (lariat fit --lambda 0 does); " +
+			"leave --lambda out to choose λ on held-out records")
+	}
 	setS := func(flag string, dst *string, v string) {
 		if set(flag) {
 			*dst = v

@@ -89,6 +89,7 @@ func TestReplayErrors(t *testing.T) {
 		{"missing file", []string{filepath.Join(t.TempDir(), "none.jsonl")}, "no such file"},
 		{"bad cell", []string{bad, "--label", "y"}, bad + `:3: column "y": missing label`},
 		{"label on json", []string{"../../../testdata/demo-stream.jsonl", "--label", "y"}, "CSV input only"},
+		{"lambda 0", []string{"../../../testdata/demo-stream.jsonl", "--lambda", "0"}, "--lambda 0: the streaming pipeline fits no unpenalized model"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, _, err := run(t, append([]string{"replay"}, tc.args...)...)
