@@ -337,7 +337,7 @@ func learnerReason(err error) string {
 func (p *Pipeline) Retune() *Step {
 	st := &p.step
 	*st = Step{Alerts: st.Alerts[:0]}
-	p.retune()
+	p.retuneWith(true)
 	return st
 }
 
@@ -353,13 +353,36 @@ func (p *Pipeline) Converge(tol float64, maxEpochs int) bool {
 // λ* (with hysteresis), then lets the drift watch check the chosen model
 // and the tuner re-tune the threshold. A fixed-λ model or an empty holdout
 // skips it.
-func (p *Pipeline) retune() {
+func (p *Pipeline) retune() { p.retuneWith(p.exactDue()) }
+
+// exactDue reports whether the retune now due fits the ladder members
+// exactly before scoring them: at every retune while the first window
+// fills (the first choices of λ), then once per window length of records
+// (window.records; the retunes in between, every retune.every records,
+// score the streaming members). An exact fit of every member reads the
+// whole window (O(n·d²) for the squared loss), so at every retune it would
+// cost many times the streaming step per record. The rule depends only on
+// the records applied, so a restored pipeline decides as the uninterrupted
+// one.
+func (p *Pipeline) exactDue() bool {
+	n, since := uint64(max(p.cfg.Window.Records, 1)), uint64(p.sinceRetune)
+	return p.seq <= n || since > p.seq || p.seq/n != (p.seq-since)/n
+}
+
+// retuneWith is retune, with the members fitted exactly first when exact
+// is set (support honesty) and scored as they stream otherwise.
+func (p *Pipeline) retuneWith(exact bool) {
 	p.sinceRetune = 0
 	if p.hold == nil || p.hold.Len() == 0 || p.ladder.Len() == 0 {
 		return
 	}
-	p.fitMembers()
-	p.scores = p.ladder.ScoreModels(p.hold, p.fits, p.scores[:0])
+	if exact {
+		p.fitMembers()
+		p.scores = p.ladder.ScoreModels(p.hold, p.fits, p.scores[:0])
+	} else {
+		p.fits = p.fits[:0] // fitted: the streaming members
+		p.scores = p.ladder.Score(p.hold, p.scores[:0])
+	}
 	idx, changed := p.choose()
 	p.step.Retuned, p.step.Moved = true, changed
 	if k := p.ladder.Extend(online.Choose(p.scores, online.RuleMin), idx); k != 0 {
