@@ -61,6 +61,22 @@ func ExampleLadder_Model() {
 	// support: 2 of 5
 }
 
+func ExampleLadder_Optimum() {
+	l, _ := online.NewLadder(&online.Options{Features: 5, Window: 500, Seed: 1})
+	for _, r := range stream(2000) {
+		_ = l.Add(r) // 2 streaming steps per record: the members are approximate
+	}
+	opt := l.Optimum(8, nil, nil) // member 8's exact optimum on the window; the ladder is unchanged
+	fmt.Println("converged:", opt.Converged, "KKT below 1e-6:", opt.KKT <= online.DefaultKKT)
+	fmt.Printf("raw: %.1f %.1f, support %d of %d\n", opt.Model.Coef[0], opt.Model.Coef[2], opt.Model.Nonzero(), len(opt.Model.Coef))
+	path := l.OptimumPath(nil, nil) // every member, from the window's Gram matrix
+	fmt.Println("support at λ_max:", path[0].Model.Nonzero())
+	// Output:
+	// converged: true KKT below 1e-6: true
+	// raw: 3.0 -2.0, support 2 of 5
+	// support at λ_max: 0
+}
+
 // A ridge ladder's grid is anchored on the effective degrees of freedom of
 // the window: member 0 at df 0.5, the last member at rank − 0.5. When the
 // held-out minimum sits at the smallest λ, Extend moves the grid down.

@@ -49,50 +49,88 @@ func (l *Ladder) Score(h *Holdout, dst []Score) []Score {
 	}
 	dst = dst[:0]
 	loss := l.Loss()
-	dom := loss.Domain()
-	binary := dom == ZeroOne
-	lab := h.labelStats(dom)
+	lab := h.labelStats(loss.Domain())
 	if lab.w == 0 {
 		return dst
 	}
 	for i := range l.Size() {
 		s := Score{Index: i, Lambda: l.Lambda(i), Nonzero: l.Nonzero(i)}
-		var sum, sq, abs, brier float64
-		h.rank = h.rank[:0]
-		p := h.predictor(l, i)
-		for k := range h.n {
-			sl := h.slot(k)
-			y, w := h.y[sl], h.w[sl]
-			if !dom.Contains(y) {
-				h.vals[k] = math.NaN()
-				continue
-			}
-			eta := p.eta(h.record(sl))
-			v := loss.Value(y, eta)
-			h.vals[k] = v
-			sum += w * v
-			if binary {
-				p := loss.Mean(eta)
-				brier += w * (p - y) * (p - y)
-				h.rank = append(h.rank, ranked{s: eta, y: y, w: w})
-			} else {
-				r := y - loss.Mean(eta)
-				sq += w * r * r
-				abs += w * math.Abs(r)
-			}
-		}
-		s.Loss = sum / lab.w
-		s.SE = h.stdErr(s.Loss, lab)
-		if binary {
-			s.LogLoss, s.Brier = s.Loss, brier/lab.w
-			s.AUC = rankAUC(h.rank)
-		} else {
-			s.RMSE, s.MAE = math.Sqrt(sq/lab.w), abs/lab.w
-			s.R2 = rSquared(sq, lab.sst)
-		}
-		dst = append(dst, s)
+		dst = append(dst, h.score(loss, lab, h.predictor(l, i), s))
 	}
 	return dst
+}
+
+// ScoreModels is Score for the given models instead of the ladder's
+// members (for example each member's Optimum): models[i] is scored as
+// member i, with its own λ, support and scale. It panics if h's feature
+// count differs from the ladder's or a model's from h's.
+func (l *Ladder) ScoreModels(h *Holdout, models []Model, dst []Score) []Score {
+	if h.d != l.Features() {
+		panic(fmt.Sprintf("online: ScoreModels: holdout has %d features, ladder %d", h.d, l.Features()))
+	}
+	dst = dst[:0]
+	loss := l.Loss()
+	lab := h.labelStats(loss.Domain())
+	if lab.w == 0 {
+		return dst
+	}
+	for i := range models {
+		m := &models[i]
+		s := Score{Index: i, Lambda: m.Lambda, Nonzero: m.Nonzero()}
+		dst = append(dst, h.score(loss, lab, h.modelPredictor(m), s))
+	}
+	return dst
+}
+
+// ModelPredictions is HoldoutPredictions for model m (for example a
+// member's Optimum). It panics if m's feature count differs from h's.
+func (l *Ladder) ModelPredictions(m *Model, h *Holdout, dst []float64) []float64 {
+	loss := l.Loss()
+	dst = slices.Grow(dst[:0], h.n)[:h.n]
+	p := h.modelPredictor(m)
+	for k := range h.n {
+		dst[k] = loss.Mean(p.eta(h.record(h.slot(k))))
+	}
+	return dst
+}
+
+// score fills s's metrics from predictor p on the held-out records.
+func (h *Holdout) score(loss Loss, lab labelSummary, p predictor, s Score) Score {
+	dom := loss.Domain()
+	binary := dom == ZeroOne
+	var sum, sq, abs, brier float64
+	h.rank = h.rank[:0]
+	for k := range h.n {
+		sl := h.slot(k)
+		y, w := h.y[sl], h.w[sl]
+		if !dom.Contains(y) {
+			h.vals[k] = math.NaN()
+			continue
+		}
+		eta := p.eta(h.record(sl))
+		v := loss.Value(y, eta)
+		h.vals[k] = v
+		sum += w * v
+		if binary {
+			p := loss.Mean(eta)
+			brier += w * (p - y) * (p - y)
+			h.rank = append(h.rank, ranked{s: eta, y: y, w: w})
+		} else {
+			r := y - loss.Mean(eta)
+			sq += w * r * r
+			abs += w * math.Abs(r)
+		}
+	}
+	s.Loss = sum / lab.w
+	s.SE = h.stdErr(s.Loss, lab)
+	if binary {
+		s.LogLoss, s.Brier = s.Loss, brier/lab.w
+		s.AUC = rankAUC(h.rank)
+	} else {
+		s.RMSE, s.MAE = math.Sqrt(sq/lab.w), abs/lab.w
+		s.R2 = rSquared(sq, lab.sst)
+	}
+	return s
 }
 
 // foldLimit bounds max |μ_j|/s_j over a member's support for the folded
@@ -109,6 +147,7 @@ const foldLimit = 1e2
 type predictor struct {
 	l      *Ladder
 	i      int       // member index
+	m      *Model    // the model when not a member (modelPredictor)
 	raw    bool      // b and c are the folded raw-unit intercept and coefficients
 	b      float64   // b' when raw, else the standardized intercept
 	c      []float64 // θ_j/s_j (0 where s_j is 0)
@@ -140,11 +179,42 @@ func (h *Holdout) predictor(l *Ladder, i int) predictor {
 	return p
 }
 
+// modelPredictor is predictor for model m: its scale and coefficients
+// instead of a member's.
+func (h *Holdout) modelPredictor(m *Model) predictor {
+	if len(m.Standardized) != h.d {
+		panic(fmt.Sprintf("online: model has %d features, the holdout %d", len(m.Standardized), h.d))
+	}
+	inv := make([]float64, h.d)
+	for j, sd := range m.Std {
+		if sd > 0 {
+			inv[j] = 1 / sd
+		}
+	}
+	b, th := m.StdIntercept, m.Standardized
+	p := predictor{m: m, b: b, c: h.coef[:len(th)], th: th, mu: m.Mean, iv: inv}
+	var cond float64
+	for j, t := range th {
+		c := t * inv[j]
+		p.c[j] = c
+		b -= c * m.Mean[j]
+		if c != 0 {
+			cond = max(cond, math.Abs(m.Mean[j])*inv[j])
+		}
+	}
+	if cond <= foldLimit {
+		p.raw, p.b = true, b
+	}
+	return p
+}
+
 // eta returns the linear predictor on the raw record x. A record with a
 // missing value (missing set) takes Ladder.Eta, which counts the value at
 // the feature's mean.
 func (p *predictor) eta(x []float64, missing bool) float64 {
 	switch {
+	case missing && p.m != nil:
+		return p.m.Eta(x)
 	case missing:
 		return p.l.Eta(p.i, x)
 	case p.raw:

@@ -1,6 +1,7 @@
 package sink
 
 import (
+	"math"
 	"sync"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -25,6 +26,7 @@ type Metrics struct {
 	dropped     *prometheus.CounterVec
 	lambda      *prometheus.GaugeVec
 	lambdaIndex *prometheus.GaugeVec
+	kkt         *prometheus.GaugeVec
 	nonzero     *prometheus.GaugeVec
 	holdoutLoss *prometheus.GaugeVec
 	version     *prometheus.GaugeVec
@@ -67,6 +69,7 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 		dropped:     counter("lariat_queue_dropped_total", "Records dropped because the model's queue was full.", "model"),
 		lambda:      gauge("lariat_lambda", "Penalty strength λ of the published model."),
 		lambdaIndex: gauge("lariat_lambda_index", "Ladder index of the published model's λ (0 = largest)."),
+		kkt:         gauge("lariat_model_kkt", "KKT residual of the published model on its train window, standardized scale (NaN if not measured)."),
 		nonzero:     gauge("lariat_nonzero_coefficients", "Nonzero coefficients of the published model."),
 		holdoutLoss: gauge("lariat_holdout_loss", "Mean held-out loss of the published model."),
 		version:     gauge("lariat_model_version", "Version number of the published model."),
@@ -89,7 +92,7 @@ func NewMetrics(reg prometheus.Registerer) (*Metrics, error) {
 		models: make(map[string]*ModelMetrics),
 	}
 	for _, c := range []prometheus.Collector{
-		m.accepted, m.rejected, m.update, m.dropped, m.lambda, m.lambdaIndex, m.nonzero,
+		m.accepted, m.rejected, m.update, m.dropped, m.lambda, m.lambdaIndex, m.kkt, m.nonzero,
 		m.holdoutLoss, m.version, m.reconnects, m.slowDrops, m.skipped, m.namesOver, m.slotsFreed, m.checkpoints, m.unpublished, m.unreposted, m.alerts, m.publishErrs, m.depth,
 	} {
 		if err := reg.Register(c); err != nil {
@@ -146,6 +149,7 @@ type ModelMetrics struct {
 	alerts      [len(alertKinds)]prometheus.Counter
 	lambda      prometheus.Gauge
 	lambdaIndex prometheus.Gauge
+	kkt         prometheus.Gauge
 	nonzero     prometheus.Gauge
 	holdoutLoss prometheus.Gauge
 	version     prometheus.Gauge
@@ -187,6 +191,7 @@ func (m *Metrics) Model(name string) *ModelMetrics {
 		parent:            m,
 		lambda:            m.lambda.WithLabelValues(name),
 		lambdaIndex:       m.lambdaIndex.WithLabelValues(name),
+		kkt:               m.kkt.WithLabelValues(name),
 		nonzero:           m.nonzero.WithLabelValues(name),
 		holdoutLoss:       m.holdoutLoss.WithLabelValues(name),
 		version:           m.version.WithLabelValues(name),
@@ -219,11 +224,16 @@ func (mm *ModelMetrics) Alert(kind AlertKind) {
 }
 
 // Published sets the gauges of a newly published model version: λ, its
-// ladder index, the number of nonzero coefficients, the held-out loss (NaN
+// ladder index, its KKT residual (NaN if not measured), the number of
+// nonzero coefficients, the held-out loss (NaN
 // if undefined) and the version.
 func (mm *ModelMetrics) Published(doc *ModelDoc) {
 	mm.lambda.Set(doc.Penalty.Lambda)
 	mm.lambdaIndex.Set(float64(doc.LambdaIndex))
+	mm.kkt.Set(math.NaN())
+	if doc.KKT != nil {
+		mm.kkt.Set(*doc.KKT)
+	}
 	mm.nonzero.Set(float64(doc.Nonzero()))
 	mm.holdoutLoss.Set(float64(doc.Holdout.Loss))
 	mm.version.Set(float64(doc.Version))

@@ -30,7 +30,10 @@ func TestMetricsExposition(t *testing.T) {
 	mm.Alert(KindData)
 	mm.Alert("nonsense")
 	mm.QueueDepthFunc(func() int { return 17 })
-	mm.Published(testDoc(t, "pump", "logistic", 12))
+	doc := testDoc(t, "pump", "logistic", 12)
+	kkt := 2e-7 // the published model's KKT residual goes out as a gauge
+	doc.KKT, doc.KKTTolerance = &kkt, 1e-6
+	mm.Published(doc)
 	m.Reconnected()
 	m.PublishError(PublishKindKV)
 
@@ -60,6 +63,9 @@ lariat_lambda{model="pump"} 0.05
 # HELP lariat_lambda_index Ladder index of the published model's λ (0 = largest).
 # TYPE lariat_lambda_index gauge
 lariat_lambda_index{model="pump"} 3
+# HELP lariat_model_kkt KKT residual of the published model on its train window, standardized scale (NaN if not measured).
+# TYPE lariat_model_kkt gauge
+lariat_model_kkt{model="pump"} 2e-07
 # HELP lariat_model_publish_failures_total Times a model's new version could not be built or stored (the previous version stays served; /readyz says why).
 # TYPE lariat_model_publish_failures_total counter
 lariat_model_publish_failures_total{model="pump"} 0

@@ -58,9 +58,20 @@ type ModelDoc struct {
 	Records RecordCounts `json:"records"`
 	// Threshold is the alert threshold of a logistic model; nil otherwise.
 	Threshold *Threshold `json:"threshold,omitempty"`
+	// KKT is the largest violation of the optimality (KKT) conditions of
+	// the model on its train window, on the standardized scale: the model
+	// is the window's exact optimum when it is at most KKTTolerance. Nil
+	// when not measured (the decay learner has no window).
+	KKT *float64 `json:"kkt,omitempty"`
+	// KKTTolerance is the tolerance the model was fitted to; 0 with KKT nil.
+	KKTTolerance float64 `json:"kkt_tolerance,omitempty"`
 	// Updated is the publication time (UTC, RFC 3339).
 	Updated time.Time `json:"updated"`
 }
+
+// Exact reports whether the document carries a KKT residual within its
+// tolerance: the model is the exact optimum on its window.
+func (d *ModelDoc) Exact() bool { return d.KKT != nil && *d.KKT <= d.KKTTolerance }
 
 // PenaltySpec describes the penalty λ(α‖θ‖₁ + (1−α)/2‖θ‖²).
 type PenaltySpec struct {
@@ -270,6 +281,10 @@ type DocInput struct {
 	Threshold *Threshold
 	// Updated is the publication time; stored in UTC.
 	Updated time.Time
+	// KKT is the model's KKT residual on its window and KKTTol the
+	// tolerance it was fitted to; both are left out of the document when
+	// KKTTol is 0 or KKT is NaN or infinite (not measured).
+	KKT, KKTTol float64
 }
 
 // NewModelDoc builds the document of one model version. It returns an error
@@ -309,6 +324,10 @@ func NewModelDoc(in *DocInput) (*ModelDoc, error) {
 			doc.Standardized[name] = t
 		}
 		doc.Scale[name] = Scale{Mean: m.Mean[j], Std: m.Std[j]}
+	}
+	if in.KKTTol > 0 && finite(in.KKT) {
+		kkt := in.KKT
+		doc.KKT, doc.KKTTolerance = &kkt, in.KKTTol
 	}
 	logistic := doc.Logistic()
 	for _, s := range in.Scores {

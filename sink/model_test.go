@@ -258,6 +258,7 @@ func ExampleNewModelDoc() {
 		Name: "kiln", Version: 3, Features: []string{"temp_c", "fan_amps"}, Model: m,
 		Scores:  []online.Score{{Index: 4, Lambda: 0.1, Nonzero: 1, Loss: 0.5, SE: 0.05, RMSE: 1, MAE: 0.8, R2: 0.9}},
 		Holdout: 120, Applied: 920, Updated: time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC),
+		KKT: 3.1e-13, KKTTol: 1e-6, // the model is the window's optimum to 1e-6
 	})
 	if err != nil {
 		fmt.Println(err)
@@ -325,6 +326,8 @@ func ExampleNewModelDoc() {
 	//     "applied": 920,
 	//     "rejected": 0
 	//   },
+	//   "kkt": 3.1e-13,
+	//   "kkt_tolerance": 0.000001,
 	//   "updated": "2026-03-04T05:06:07Z"
 	// }
 }

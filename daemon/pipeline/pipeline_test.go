@@ -73,7 +73,21 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 			t.Fatal(err)
 		}
 		if (i+1)%m.Retune.Every == 0 {
-			scores := bare.Score(hold, nil)
+			// The pipeline scores the members' exact fits (Ladder.OptimumPath
+			// for the squared loss) at every retune of the first window and
+			// then once per window length of records (exactDue), and the
+			// streaming members in between, so the mirror does too.
+			seq, since, wn := i+1, m.Retune.Every, m.Window.Records
+			var scores []online.Score
+			if seq <= wn || seq/wn != (seq-since)/wn {
+				var fits []online.Model
+				for _, o := range bare.OptimumPath(nil, nil) {
+					fits = append(fits, o.Model)
+				}
+				scores = bare.ScoreModels(hold, fits, nil)
+			} else {
+				scores = bare.Score(hold, nil)
+			}
 			idx, _ := chooser.Update(scores)
 			if k := bare.Extend(online.Choose(scores, online.RuleMin), idx); k != 0 {
 				chooser.Shift(-k, bare.Size())

@@ -1,0 +1,133 @@
+package online
+
+import (
+	"fmt"
+	"math"
+	"testing"
+	"time"
+)
+
+// BenchmarkExactPath compares, in one run on the same records (K = 12, 8
+// informative features of d, benchPool; window n), the costs and the
+// distance from the window's optimum of:
+//
+//   - stream: today's learner, 2 SAGA steps per record (Ladder.Add); the
+//     model read is the streaming member.
+//   - pub: one exact fit (Ladder.Optimum from the member, KKT 1e-6) of the
+//     published member per publication, a publication every 500 records;
+//     the published model then stays out until the next publication.
+//   - retune: exact fits of all K members every 500 records
+//     (Ladder.OptimumPath: from the window's Gram matrix for the squared
+//     loss, one Optimum per member for the logistic, where the pipeline
+//     fits at most 5, the members that decide the choice: an upper bound).
+//   - refit: what a user would do instead: the whole path refitted every
+//     500 records by the project's batch solver (Ladder.Optimum from zero
+//     at the largest λ, then warm down the path, Friedman, Hastie &
+//     Tibshirani 2010 §2.5).
+//
+// It reports ns per record of each (pub, retune and refit amortized over
+// the 500 records), and the mean relative distance ‖θ − θ*‖/‖θ*‖ of
+// member 8 from the window's current optimum θ* (Optimum to KKT 1e-10),
+// sampled every 100 records, for the streaming member, the last
+// published fit and the last refit (both up to 500 records old).
+func BenchmarkExactPath(b *testing.B) {
+	for _, c := range []struct {
+		loss Loss
+		d, n int
+	}{
+		{Squared{}, 16, 10000}, {Squared{}, 64, 10000}, {Squared{}, 128, 10000},
+		{Squared{}, 16, 1000}, {Squared{}, 16, 100000},
+		{Logistic{}, 16, 1000}, {Logistic{}, 16, 100000},
+	} {
+		b.Run(fmt.Sprintf("%s/d%d/n%d", c.loss.Name(), c.d, c.n), func(b *testing.B) { benchExact(b, c.loss, c.d, c.n) })
+	}
+}
+
+func benchExact(b *testing.B, loss Loss, d, n int) {
+	const k, every, member = 12, 500, 8
+	pool := benchPool(n+8192, d)
+	if loss.Name() == "logistic" { // the same generator with logistic labels
+		p := makeProblem(11, n+8192, d, min(d, 8), true, false)
+		for i := range pool {
+			pool[i] = p.record(i)
+		}
+	}
+	l, err := NewLadder(&Options{Loss: loss, Features: d, Size: k, Window: n, Seed: 1})
+	if err != nil {
+		b.Fatal(err)
+	}
+	for i := range n {
+		_ = l.Add(pool[i%len(pool)])
+	}
+	var pub Model
+	refit := make([]Model, k)
+	publish := func() { pub = l.Optimum(member, nil, nil).Model }
+	var path []Optimum
+	retune := func() { path = l.OptimumPath(nil, path) }
+	refitPath := func() {
+		var warm *Model
+		for i := range k {
+			if warm == nil {
+				z := l.Model(i)
+				clear(z.Standardized)
+				z.StdIntercept = 0
+				warm = &z
+			}
+			refit[i] = l.Optimum(i, warm, nil).Model
+			warm = &refit[i]
+		}
+	}
+	var tStream, tPub, tRetune, tRefit time.Duration
+	var dStream, dPub, dRefit float64
+	samples := 0
+	timed := func(f func()) time.Duration { t0 := time.Now(); f(); return time.Since(t0) }
+	publish()
+	refitPath()
+	b.ResetTimer()
+	i := n
+	for done := 0; done < b.N; done++ {
+		r := pool[i%len(pool)]
+		i++
+		tStream += timed(func() { _ = l.Add(r) })
+		if done%every == every-1 {
+			tPub += timed(publish)
+			tRetune += timed(retune)
+			tRefit += timed(refitPath)
+		}
+		if done%100 == 50 {
+			b.StopTimer()
+			ref := l.Optimum(member, nil, &ExactOptions{Tol: 1e-10, Rounds: 100}).Model
+			dStream += relDist(l.Model(member).Standardized, ref.Standardized)
+			dPub += relDist(pub.Standardized, ref.Standardized)
+			dRefit += relDist(refit[member].Standardized, ref.Standardized)
+			samples++
+			b.StartTimer()
+		}
+	}
+	ns := func(t time.Duration) float64 { return float64(t.Nanoseconds()) / float64(b.N) }
+	b.ReportMetric(ns(tStream), "stream-ns/rec")
+	b.ReportMetric(ns(tPub), "pub-ns/rec")
+	b.ReportMetric(ns(tRetune), "retune-ns/rec")
+	b.ReportMetric(ns(tRefit), "refit-ns/rec")
+	b.ReportMetric(ns(tRefit)/(ns(tStream)+ns(tPub)), "refit/(stream+pub)")
+	b.ReportMetric((ns(tStream)+ns(tPub)+ns(tRetune))/ns(tStream), "all/stream")
+	if samples > 0 {
+		s := float64(samples)
+		b.ReportMetric(dStream/s, "dist-stream")
+		b.ReportMetric(dPub/s, "dist-pub")
+		b.ReportMetric(dRefit/s, "dist-refit")
+	}
+}
+
+// relDist returns ‖a − b‖/‖b‖ (‖a − b‖ when b is 0).
+func relDist(a, b []float64) float64 {
+	var num, den float64
+	for j := range a {
+		num += (a[j] - b[j]) * (a[j] - b[j])
+		den += b[j] * b[j]
+	}
+	if den == 0 {
+		return math.Sqrt(num)
+	}
+	return math.Sqrt(num / den)
+}
