@@ -34,5 +34,5 @@ func Example() {
 	// applied 6000 retunes 30
 	// 3010 performance
 	// 3200 model
-	// final version 4018 λ index 3
+	// final version 4038 λ index 1
 }
