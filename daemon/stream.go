@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"log/slog"
 	"strings"
 	"sync"
 	"time"
@@ -68,57 +69,14 @@ func (s *streamIntake) start(ctx context.Context) error {
 }
 
 func (s *streamIntake) startOne(ctx context.Context, w *worker) error {
-	in := s.d.cfg.Intake
-	name := streamName(s.d.cfg, w.cfg)
-	st, err := s.js.CreateOrUpdateStream(ctx, jetstream.StreamConfig{
-		Name:        name,
-		Description: "lariat: labeled records of model " + w.name,
-		Subjects:    []string{w.cfg.Subject},
-		Retention:   jetstream.LimitsPolicy,
-		Discard:     jetstream.DiscardOld,
-		MaxAge:      in.MaxAge.Std(),
-		MaxBytes:    in.MaxBytes,
-		Storage:     jetstream.FileStorage,
-	})
+	it, next, stored, name, err := s.open(ctx, w.cfg, "model", "checkpoint", w.startPos, w.log, w.skipped, min(w.cfg.Queue, 1024))
 	if err != nil {
-		return fmt.Errorf("stream %s: %w", name, err)
-	}
-	info, err := st.Info(ctx)
-	if err != nil {
-		return fmt.Errorf("stream %s: %w", name, err)
-	}
-	next := w.startPos + 1
-	if last := info.State.LastSeq; last < w.startPos {
-		// The stream holds fewer records than the checkpoint applied: it
-		// was deleted or the server's store was replaced. Its sequences
-		// started again, so the position means nothing in it: read it
-		// from the start.
-		w.log.Warn("the model's stream is behind its checkpoint (deleted or replaced since); reading it from its first record",
-			"stream", name, "stream_last", last, "checkpoint_position", w.startPos)
-		next = 1
-	}
-	if first := info.State.FirstSeq; info.State.Msgs > 0 && first > next {
-		// Retention discarded records this model never applied.
-		w.skipped(first-next, fmt.Sprintf("stream %s starts at %d, the model's checkpoint needs %d", name, first, next))
-		next = first
-	}
-	cc := jetstream.OrderedConsumerConfig{
-		FilterSubjects: []string{w.cfg.Subject},
-		DeliverPolicy:  jetstream.DeliverByStartSequencePolicy,
-		OptStartSeq:    next,
-	}
-	cons, err := st.OrderedConsumer(ctx, cc)
-	if err != nil {
-		return fmt.Errorf("reader of stream %s: %w", name, err)
-	}
-	it, err := cons.Messages(jetstream.PullMaxMessages(min(w.cfg.Queue, 1024)))
-	if err != nil {
-		return fmt.Errorf("reader of stream %s: %w", name, err)
+		return err
 	}
 	s.mu.Lock()
 	s.readers = append(s.readers, it)
 	s.mu.Unlock()
-	w.log.Info("reading the model's stream", "stream", name, "from", next, "stored", info.State.Msgs)
+	w.log.Info("reading the model's stream", "stream", name, "from", next, "stored", stored)
 	s.wg.Go(func() { s.read(w, it, next-1) })
 	return nil
 }
@@ -186,4 +144,58 @@ func describeStreams(c *config.Config) string {
 		names[i] = streamName(c, &c.Models[i])
 	}
 	return strings.Join(names, ", ")
+}
+
+// open creates or updates the stream of the model entry m (a model, or a
+// template with every instance key; kind names which in descriptions and
+// logs) and starts an ordered reader of it after pos, the last sequence
+// the entry's saved state (mark: its checkpoint or index) applied. A
+// stream behind pos (deleted, or the server's store replaced, since: its
+// sequences started again) is read from its start with a warning; records
+// retention discarded before they were applied are reported to skipped.
+// It returns the reader, the first sequence it reads, the records the
+// stream holds and the stream's name.
+func (s *streamIntake) open(ctx context.Context, m *config.Model, kind, mark string, pos uint64, log *slog.Logger,
+	skipped func(n uint64, why string), pull int) (it jetstream.MessagesContext, next, stored uint64, name string, err error) {
+	in := s.d.cfg.Intake
+	name = streamName(s.d.cfg, m)
+	st, err := s.js.CreateOrUpdateStream(ctx, jetstream.StreamConfig{
+		Name:        name,
+		Description: "lariat: labeled records of " + kind + " " + m.Name,
+		Subjects:    []string{m.Subject},
+		Retention:   jetstream.LimitsPolicy,
+		Discard:     jetstream.DiscardOld,
+		MaxAge:      in.MaxAge.Std(),
+		MaxBytes:    in.MaxBytes,
+		Storage:     jetstream.FileStorage,
+	})
+	if err != nil {
+		return nil, 0, 0, name, fmt.Errorf("stream %s: %w", name, err)
+	}
+	info, err := st.Info(ctx)
+	if err != nil {
+		return nil, 0, 0, name, fmt.Errorf("stream %s: %w", name, err)
+	}
+	next = pos + 1
+	if last := info.State.LastSeq; last < pos {
+		log.Warn("the "+kind+"'s stream is behind its "+mark+" (deleted or replaced since); reading it from its first record",
+			"stream", name, "stream_last", last, mark+"_position", pos)
+		next = 1
+	}
+	if first := info.State.FirstSeq; info.State.Msgs > 0 && first > next {
+		skipped(first-next, fmt.Sprintf("stream %s starts at %d, the %s's %s needs %d", name, first, kind, mark, next))
+		next = first
+	}
+	cons, err := st.OrderedConsumer(ctx, jetstream.OrderedConsumerConfig{
+		FilterSubjects: []string{m.Subject},
+		DeliverPolicy:  jetstream.DeliverByStartSequencePolicy,
+		OptStartSeq:    next,
+	})
+	if err != nil {
+		return nil, 0, 0, name, fmt.Errorf("reader of stream %s: %w", name, err)
+	}
+	if it, err = cons.Messages(jetstream.PullMaxMessages(pull)); err != nil {
+		return nil, 0, 0, name, fmt.Errorf("reader of stream %s: %w", name, err)
+	}
+	return it, next, info.State.Msgs, name, nil
 }

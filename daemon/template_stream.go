@@ -13,51 +13,14 @@ import (
 // capturing its subject, and starts one reader over every key from the
 // first sequence after the template index's floor.
 func (s *streamIntake) startTemplate(ctx context.Context, t *template) error {
-	in := s.d.cfg.Intake
-	name := streamName(s.d.cfg, t.cfg)
-	st, err := s.js.CreateOrUpdateStream(ctx, jetstream.StreamConfig{
-		Name:        name,
-		Description: "lariat: labeled records of template " + t.name + ", every instance key",
-		Subjects:    []string{t.cfg.Subject},
-		Retention:   jetstream.LimitsPolicy,
-		Discard:     jetstream.DiscardOld,
-		MaxAge:      in.MaxAge.Std(),
-		MaxBytes:    in.MaxBytes,
-		Storage:     jetstream.FileStorage,
-	})
+	it, next, stored, name, err := s.open(ctx, t.cfg, "template", "index", t.floor, t.log, t.skipped, 1024)
 	if err != nil {
-		return fmt.Errorf("stream %s: %w", name, err)
-	}
-	info, err := st.Info(ctx)
-	if err != nil {
-		return fmt.Errorf("stream %s: %w", name, err)
-	}
-	next := t.floor + 1
-	if last := info.State.LastSeq; last < t.floor {
-		t.log.Warn("the template's stream is behind its index (deleted or replaced since); reading it from its first record",
-			"stream", name, "stream_last", last, "floor", t.floor)
-		next = 1
-	}
-	if first := info.State.FirstSeq; info.State.Msgs > 0 && first > next {
-		t.skipped(first-next, fmt.Sprintf("stream %s starts at %d, the template's index needs %d", name, first, next))
-		next = first
-	}
-	cons, err := st.OrderedConsumer(ctx, jetstream.OrderedConsumerConfig{
-		FilterSubjects: []string{t.cfg.Subject},
-		DeliverPolicy:  jetstream.DeliverByStartSequencePolicy,
-		OptStartSeq:    next,
-	})
-	if err != nil {
-		return fmt.Errorf("reader of stream %s: %w", name, err)
-	}
-	it, err := cons.Messages(jetstream.PullMaxMessages(1024))
-	if err != nil {
-		return fmt.Errorf("reader of stream %s: %w", name, err)
+		return err
 	}
 	s.mu.Lock()
 	s.readers = append(s.readers, it)
 	s.mu.Unlock()
-	t.log.Info("reading the template's stream", "stream", name, "from", next, "stored", info.State.Msgs, "instances", len(t.inst))
+	t.log.Info("reading the template's stream", "stream", name, "from", next, "stored", stored, "instances", len(t.inst))
 	s.wg.Go(func() { s.readTemplate(t, it, next-1) })
 	return nil
 }
