@@ -437,7 +437,7 @@ func (p *Pipeline) fitted(i int) online.Model {
 // lowest loss (whose loss and SE set the one-SE limit) and the current
 // choice (kept by hysteresis). The streaming members' blur moves a
 // held-out loss by an amount of second order in their distance from the
-// optimum (0.26 % median measured in issue 9), so the members outside,
+// optimum (0.26 % median, measured on a stationary stream at the defaults), so the members outside,
 // clearly worse or clearly not the pick, keep their streaming scores.
 func contention(scores []online.Score, rule online.Rule, cur int, in []bool) []bool {
 	in = append(in[:0], make([]bool, len(scores))...)
