@@ -73,18 +73,22 @@ func (s *streamIntake) startOne(ctx context.Context, w *worker) error {
 	if err != nil {
 		return err
 	}
-	s.mu.Lock()
-	s.readers = append(s.readers, it)
-	s.mu.Unlock()
 	w.log.Info("reading the model's stream", "stream", name, "from", next, "stored", stored)
-	s.wg.Go(func() { s.read(w, it, next-1) })
+	s.wg.Go(func() {
+		s.consume(it, next-1, w.log, w.skipped, func(subject string, data []byte, seq uint64) bool {
+			return w.intakeSeq(subject, data, seq, s.stop)
+		})
+	})
 	return nil
 }
 
-// read hands every message of it to w in order until the intake stops. A
-// jump in the stream sequence (retention discarded records while the model
-// was behind) is counted as skipped.
-func (s *streamIntake) read(w *worker, it jetstream.MessagesContext, last uint64) {
+// consume hands every message of it to deliver, in stream order, until
+// the intake stops or deliver returns false. A message delivered again
+// after a consumer reset is passed over; a jump in the stream sequence
+// (retention discarded records while the reader was behind) is reported
+// to skipped. last is the sequence before the first one to deliver.
+func (s *streamIntake) consume(it jetstream.MessagesContext, last uint64, log *slog.Logger,
+	skipped func(n uint64, why string), deliver func(subject string, data []byte, seq uint64) bool) {
 	for {
 		m, err := it.Next()
 		if err != nil {
@@ -100,7 +104,7 @@ func (s *streamIntake) read(w *worker, it jetstream.MessagesContext, last uint64
 		}
 		meta, err := m.Metadata()
 		if err != nil {
-			w.log.Error("stream message without metadata; skipped", "err", err)
+			log.Error("stream message without metadata; skipped", "err", err)
 			continue
 		}
 		seq := meta.Sequence.Stream
@@ -108,10 +112,10 @@ func (s *streamIntake) read(w *worker, it jetstream.MessagesContext, last uint64
 			continue // delivered again after a consumer reset
 		}
 		if seq > last+1 && last > 0 {
-			w.skipped(seq-last-1, fmt.Sprintf("the stream jumped from %d to %d (retention discarded records before they were read)", last, seq))
+			skipped(seq-last-1, fmt.Sprintf("the stream jumped from %d to %d (retention discarded records before they were read)", last, seq))
 		}
 		last = seq
-		if !w.intakeSeq(m.Subject(), m.Data(), seq, s.stop) {
+		if !deliver(m.Subject(), m.Data(), seq) {
 			return
 		}
 	}
@@ -153,8 +157,8 @@ func describeStreams(c *config.Config) string {
 // stream behind pos (deleted, or the server's store replaced, since: its
 // sequences started again) is read from its start with a warning; records
 // retention discarded before they were applied are reported to skipped.
-// It returns the reader, the first sequence it reads, the records the
-// stream holds and the stream's name.
+// The reader is registered for drain. It returns the reader, the first
+// sequence it reads, the records the stream holds and the stream's name.
 func (s *streamIntake) open(ctx context.Context, m *config.Model, kind, mark string, pos uint64, log *slog.Logger,
 	skipped func(n uint64, why string), pull int) (it jetstream.MessagesContext, next, stored uint64, name string, err error) {
 	in := s.d.cfg.Intake
@@ -197,5 +201,8 @@ func (s *streamIntake) open(ctx context.Context, m *config.Model, kind, mark str
 	if it, err = cons.Messages(jetstream.PullMaxMessages(pull)); err != nil {
 		return nil, 0, 0, name, fmt.Errorf("reader of stream %s: %w", name, err)
 	}
+	s.mu.Lock()
+	s.readers = append(s.readers, it)
+	s.mu.Unlock()
 	return it, next, info.State.Msgs, name, nil
 }
