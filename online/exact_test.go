@@ -20,21 +20,7 @@ import (
 // independently by Ladder.KKT on the fixed-λ ladder set to the result.
 func TestOptimumProperty(t *testing.T) {
 	rapid.Check(t, func(t *rapid.T) {
-		n := rapid.IntRange(30, 120).Draw(t, "n")
-		d := rapid.IntRange(1, 10).Draw(t, "d")
-		logistic := rapid.Bool().Draw(t, "logistic")
-		mix := rapid.SampledFrom([]float64{1, 0.5, 0.1}).Draw(t, "mix")
-		seed := rapid.Uint64().Draw(t, "seed")
-		p := makeProblem(seed, n, d, 3, logistic, true)
-		o := &Options{Features: d, Window: n, Size: 4, Floor: 0.05, Penalty: &Penalty{Mix: mix}, Seed: seed}
-		if logistic {
-			o.Loss = Logistic{}
-		}
-		l, err := NewLadder(o)
-		if err != nil {
-			t.Fatal(err)
-		}
-		feed(t, l, p, 0, n)
+		l, o, p, n := drawLadder(t, 30, 120, 10, 0.05)
 		state, _ := l.MarshalBinary()
 		path := l.OptimumPath(nil, nil)
 		for i := range l.Size() {
@@ -56,7 +42,7 @@ func TestOptimumProperty(t *testing.T) {
 				t.Skipf("reference did not converge (member %d)", i)
 			}
 			want := r.Model(0)
-			for j := range d {
+			for j := range o.Features {
 				a, b := opt.Model.Standardized[j], want.Standardized[j]
 				if (a == 0) != (b == 0) && math.Abs(a-b) > 1e-7 {
 					t.Fatalf("member %d feature %d: support differs: %g vs batch %g", i, j, a, b)

@@ -6,6 +6,7 @@ import (
 	"strconv"
 
 	"gonum.org/v1/gonum/mat"
+	"pgregory.net/rapid"
 )
 
 // problem is a batch of records with a known generating model.
@@ -116,3 +117,27 @@ func relErr(a, b []float64) float64 {
 }
 
 func strconvFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+// drawLadder draws a random weighted problem (pgregory.net/rapid) of n in
+// [nLo, nHi] records, d in [1, dHi] features of which 3 are informative, a
+// loss (squared or logistic) and a penalty mix (1, 0.5 or 0.1), and
+// returns a 4-member ladder with its grid down to floor·λ_max, fed the
+// whole problem, with its options, the problem and n.
+func drawLadder(t *rapid.T, nLo, nHi, dHi int, floor float64) (*Ladder, *Options, problem, int) {
+	n := rapid.IntRange(nLo, nHi).Draw(t, "n")
+	d := rapid.IntRange(1, dHi).Draw(t, "d")
+	logistic := rapid.Bool().Draw(t, "logistic")
+	mix := rapid.SampledFrom([]float64{1, 0.5, 0.1}).Draw(t, "mix")
+	seed := rapid.Uint64().Draw(t, "seed")
+	p := makeProblem(seed, n, d, 3, logistic, true)
+	o := &Options{Features: d, Window: n, Size: 4, Floor: floor, Penalty: &Penalty{Mix: mix}, Seed: seed}
+	if logistic {
+		o.Loss = Logistic{}
+	}
+	l, err := NewLadder(o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, n)
+	return l, o, p, n
+}

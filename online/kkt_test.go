@@ -20,21 +20,7 @@ import (
 // measure itself is checked independently in TestKKTDetectsNonOptimal.
 func TestKKTProperty(t *testing.T) {
 	rapid.Check(t, func(t *rapid.T) {
-		n := rapid.IntRange(8, 40).Draw(t, "n")
-		d := rapid.IntRange(1, 12).Draw(t, "d")
-		logistic := rapid.Bool().Draw(t, "logistic")
-		mix := rapid.SampledFrom([]float64{1, 0.5, 0.1}).Draw(t, "mix")
-		seed := rapid.Uint64().Draw(t, "seed")
-		p := makeProblem(seed, n, d, 3, logistic, true)
-		o := &Options{Features: d, Window: n, Size: 4, Floor: 0.01, Penalty: &Penalty{Mix: mix}, Seed: seed}
-		if logistic {
-			o.Loss = Logistic{}
-		}
-		l, err := NewLadder(o)
-		if err != nil {
-			t.Fatal(err)
-		}
-		feed(t, l, p, 0, n)
+		l, _, _, _ := drawLadder(t, 8, 40, 12, 0.01)
 		if !l.Converge(1e-7, 600) {
 			for i := range l.Size() {
 				t.Logf("member %d λ=%g KKT %g", i, l.Lambda(i), l.KKT(i))
