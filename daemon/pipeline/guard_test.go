@@ -372,7 +372,7 @@ func TestGuardRules(t *testing.T) {
 // TestGuardLearnedNames checks the guard on names learned from records: a
 // bound on a name that arrives later applies from its first value, and a
 // new channel starts cold (its first values are not judged against
-// anything).
+// anything); a rejected record that brings a new name changes nothing.
 func TestGuardLearnedNames(t *testing.T) {
 	m := config.DefaultModel()
 	m.Name, m.Subject = "learned", "test.learned"
@@ -404,6 +404,16 @@ func TestGuardLearnedNames(t *testing.T) {
 	}
 	if r := apply(`{"y":1,"x":{"a":1e12}}`); r != record.ReasonImplausible {
 		t.Errorf("warm channel: %q, want implausible", r)
+	}
+	// A rejected record that brings a new name leaves the layout too: the
+	// names, the width and the columns wait for the next record taken.
+	model, _ := modelState(t, p)
+	width := p.ladder.Features()
+	if r := apply(`{"y":1,"x":{"a":1e12,"other":1}}`); r != record.ReasonImplausible {
+		t.Errorf("warm channel beside a new name: %q, want implausible", r)
+	}
+	if after, _ := modelState(t, p); !bytes.Equal(model, after) || p.ladder.Features() != width {
+		t.Errorf("a rejected record with a new name changed the model (width %d → %d)", width, p.ladder.Features())
 	}
 	if r := apply(`{"y":1,"x":{"a":1,"new":1e12}}`); r != "" {
 		t.Errorf("a new channel's first value: %q, want accepted", r)

@@ -275,14 +275,18 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		return st, &record.Error{Reason: record.ReasonDimension,
 			Detail: fmt.Sprintf("record has %d columns, the model at most %d", max(len(rec.X), len(names)), p.dim)}
 	}
-	if err := p.layout(rec, names); err != nil {
+	due, err := p.layoutDue(rec, names)
+	if err != nil {
 		return st, err
-	}
-	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
-		rec.X = append(rec.X, math.NaN())
 	}
 	if err := p.guard.check(rec.X, rec.Y, names); err != nil {
 		return st, err
+	}
+	if due {
+		p.layout(rec, names)
+	}
+	for d := p.ladder.Features(); len(rec.X) < d; { // names not learned yet are missing
+		rec.X = append(rec.X, math.NaN())
 	}
 	r := rec.Learn()
 	recT := r.T
@@ -297,7 +301,6 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).
 	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(max(p.current(), 0), r.X))
-	var err error
 	if heldOut {
 		err = p.hold.Add(r)
 	} else {
@@ -313,9 +316,6 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 		p.held++
 	}
 	st.HeldOut = heldOut
-	// The names move only with an applied record: a refused one that
-	// brought a new name leaves the state as it was.
-	p.at.names = names
 	p.at.recT, p.at.now, p.at.seq = recT, now, p.seq
 	p.watch.observe(r.X, r.Y, loss, heldOut)
 	p.watch.rereference()

@@ -21,33 +21,40 @@ import (
 // new name) has its column reset everywhere before the record is applied:
 // its coefficients are 0 and its statistics start afresh.
 
-// layout brings the model's columns up to date with the decoder's names
-// before rec is applied. A change of layout is made only for a record the
-// learner will take (online.Ladder.Check), so that a rejected record leaves
-// the model as it was; the change then comes with the next record taken.
-func (p *Pipeline) layout(rec *record.Record, names []string) error {
+// layoutDue reports whether rec needs a change of the model's columns
+// before it is applied (a name or a column the model has not laid out, or
+// a slot that changed hands), and checks such a record as the learner will
+// (online.Ladder.Check): a change of layout is made only for a record that
+// passes every check, so that a rejected record leaves the model as it
+// was; the change then comes with the next record taken.
+func (p *Pipeline) layoutDue(rec *record.Record, names []string) (bool, error) {
 	old := p.at.names
-	need := max(len(rec.X), len(names))
 	same := len(old) == len(names) && (len(old) == 0 || unsafe.SliceData(old) == unsafe.SliceData(names))
-	if same && need <= p.ladder.Features() {
-		return nil
+	if same && max(len(rec.X), len(names)) <= p.ladder.Features() {
+		return false, nil
 	}
 	if err := p.ladder.Check(rec.Learn()); err != nil {
-		return &record.Error{Reason: learnerReason(err), Detail: err.Error()}
+		return false, &record.Error{Reason: learnerReason(err), Detail: err.Error()}
 	}
+	return true, nil
+}
+
+// layout brings the model's columns up to date with the decoder's names
+// for rec, once layoutDue said so and every check passed.
+func (p *Pipeline) layout(rec *record.Record, names []string) {
+	old := p.at.names
 	p.at.names = names
-	if need > p.ladder.Features() {
+	if need := max(len(rec.X), len(names)); need > p.ladder.Features() {
 		p.grow(need)
 	}
 	if len(old) == 0 || len(names) == 0 || unsafe.SliceData(old) == unsafe.SliceData(names) {
-		return nil // the same array: names were only appended
+		return // the same array: names were only appended
 	}
 	for j := range min(len(old), len(names)) {
 		if old[j] != names[j] && old[j] != "" {
 			p.resetColumn(j)
 		}
 	}
-	return nil
 }
 
 // grow widens the ladder, the held-out ring and the watch to hold need
