@@ -253,7 +253,7 @@ func (d *Daemon) reject(w *worker, subject, reason, detail string, data []byte) 
 		d.log.Debug("record rejected before the publisher is up", "model", name, "reason", reason, "detail", detail)
 		return
 	}
-	if !lim.allow(time.Now()) {
+	if !lim.Allow() {
 		mm.NotRepublished.Inc()
 		return
 	}

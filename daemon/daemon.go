@@ -17,6 +17,7 @@ import (
 	"github.com/nats-io/nats.go"
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
+	"golang.org/x/time/rate"
 
 	"lariat/config"
 	"lariat/sink"
@@ -54,7 +55,7 @@ type Daemon struct {
 	// rejected records (rejectlimit.go); tests change them.
 	rejectRate  float64
 	rejectBurst int
-	unrouted    *rejectLimiter // the limiter of records no model is fed by
+	unrouted    *rate.Limiter // the limiter of records no model is fed by
 
 	workers []*worker
 	byName  map[string]*worker

@@ -169,7 +169,7 @@ func TestRejectLimiter(t *testing.T) {
 	for i, s := range steps {
 		got := 0
 		for range s.n {
-			if l.allow(t0.Add(s.at)) {
+			if l.AllowN(t0.Add(s.at), 1) {
 				got++
 			}
 		}

@@ -1,9 +1,6 @@
 package daemon
 
-import (
-	"sync"
-	"time"
-)
+import "golang.org/x/time/rate"
 
 // Republishing of rejected records on <prefix>.reject.<model> is limited
 // per model by a token bucket: a trickle of rejects (below rejectRate a
@@ -20,37 +17,12 @@ const (
 	rejectBurst = 200 // republished rejects in a burst, per model
 )
 
-// rejectLimiter is a token bucket (common practice, no single source):
-// it holds up to burst tokens, refills rate tokens a second, and a
-// republication takes one. Safe for concurrent use: rejects come from the
-// subscription goroutine (decoding) and the model goroutine (the pipeline's
-// refusals).
-type rejectLimiter struct {
-	mu     sync.Mutex
-	rate   float64 // tokens a second
-	burst  float64
-	tokens float64
-	last   time.Time
-}
-
-func newRejectLimiter(rate float64, burst int) *rejectLimiter {
-	return &rejectLimiter{rate: rate, burst: float64(burst), tokens: float64(burst)}
-}
-
-// allow takes a token at now if there is one.
-func (l *rejectLimiter) allow(now time.Time) bool {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	switch {
-	case l.last.IsZero():
-		l.last = now
-	case now.After(l.last): // callers on two goroutines may pass times out of order
-		l.tokens = min(l.burst, l.tokens+now.Sub(l.last).Seconds()*l.rate)
-		l.last = now
-	}
-	if l.tokens < 1 {
-		return false
-	}
-	l.tokens--
-	return true
+// newRejectLimiter returns the token bucket of one model's republished
+// rejects: up to burst tokens, refilled at r a second, one per
+// republication (golang.org/x/time/rate: safe for concurrent use, as
+// rejects come from the subscription goroutine, decoding, and the model
+// goroutine, the pipeline's refusals; a time earlier than the last one
+// adds nothing).
+func newRejectLimiter(r float64, burst int) *rate.Limiter {
+	return rate.NewLimiter(rate.Limit(r), burst)
 }

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go"
+	"golang.org/x/time/rate"
 
 	"lariat/config"
 	"lariat/daemon/pipeline"
@@ -99,7 +100,7 @@ type worker struct {
 
 	// shared
 	rejected     atomic.Uint64
-	rejects      *rejectLimiter                    // republication of rejected records
+	rejects      *rate.Limiter                     // republication of rejected records
 	versionFloor atomic.Uint64                     // last version found in the KV bucket at start
 	snap         atomic.Pointer[pipeline.Snapshot] // latest published model, for predictions
 }
