@@ -78,6 +78,10 @@ func (l *Ladder) Optimum(i int, warm *Model, o *ExactOptions) Optimum {
 	if !(opt.Target > 0) || opt.Target > opt.Tol {
 		opt.Target = opt.Tol / 1000
 	}
+	if c, ok := l.lrn.(*covLearner); ok && c.ts.ring.Len() > 0 {
+		m, kkt := c.optimum(l, i, opt.Target)
+		return Optimum{Model: m, KKT: kkt, Converged: kkt <= opt.Tol}
+	}
 	s, ok := l.lrn.(*sagaLearner)
 	if !ok || s.ts.ring.Len() == 0 {
 		return Optimum{Model: l.Model(i), KKT: math.NaN()}
@@ -480,6 +484,19 @@ func (e *exact) activeSystem(h, c, beta, g []float64) {
 // learner it returns the members with KKT NaN.
 func (l *Ladder) OptimumPath(o *ExactOptions, dst []Optimum) []Optimum {
 	dst = dst[:0]
+	if c, ok := l.lrn.(*covLearner); ok && c.ts.ring.Len() > 0 {
+		var opt ExactOptions
+		if o != nil {
+			opt = *o
+		}
+		if !(opt.Tol > 0) {
+			opt.Tol = DefaultKKT
+		}
+		if !(opt.Target > 0) || opt.Target > opt.Tol {
+			opt.Target = opt.Tol / 1000
+		}
+		return c.path(l, &opt, dst)
+	}
 	s, ok := l.lrn.(*sagaLearner)
 	if !ok || s.ts.ring.Len() == 0 || !s.loss.Quadratic() {
 		for i := range l.Size() {

@@ -124,7 +124,7 @@ func (l *Ladder) fixed() bool { return l.opt.Lambda > 0 || l.opt.Unpenalized }
 // newGridState allocates the scratch of the ridge spectrum when needed.
 func newGridState(opt *Options) gridState {
 	g := gridState{ratio: opt.Floor}
-	if opt.Penalty.Mix < lambdaMixFloor && opt.Learner == "saga" && opt.Lambda == 0 && !opt.Unpenalized {
+	if opt.Penalty.Mix < lambdaMixFloor && opt.Learner != "decay" && opt.Lambda == 0 && !opt.Unpenalized {
 		d := opt.Features
 		g.spectrum, g.gram, g.block = make([]float64, d), make([]float64, d*d), make([]float64, gramBlock*d)
 		work := []float64{0}

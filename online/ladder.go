@@ -28,7 +28,7 @@ type Options struct {
 	Lambda   float64       // > 0: one fixed λ (Size forced to 1, no re-anchoring)
 	Steps    int           // stochastic steps per arriving record per member; default 2
 	Seed     uint64        // PRNG seed (math/rand/v2 PCG); same seed+records => bit-identical
-	Learner  string        // "saga" (default) or "decay" (FTRL-Proximal, no buffer)
+	Learner  string        // "saga" (default), "decay" (FTRL-Proximal, no buffer) or "gram" (squared loss only: exact path from the window's sufficient statistics, gram.go)
 	HalfLife float64       // decay learner forgetting half-life in records; default 10000
 
 	// MaxFeatures is the width Grow may reach; default Features (a fixed
@@ -175,6 +175,8 @@ func NewLadder(o *Options) (*Ladder, error) {
 	switch opt.Learner {
 	case "decay":
 		l.lrn = newDecay(&opt, opt.Features)
+	case "gram":
+		l.lrn = newCov(&opt, opt.Features)
 	default:
 		l.lrn = newSAGA(&opt, opt.Features)
 	}
@@ -220,8 +222,10 @@ func resolve(o *Options) (Options, error) {
 		return bad("unpenalized with lambda %v", opt.Lambda)
 	case !(opt.HalfLife >= 0) || math.IsInf(opt.HalfLife, 0):
 		return bad("half-life %v", opt.HalfLife)
-	case opt.Learner != "" && opt.Learner != "saga" && opt.Learner != "decay":
-		return bad("learner %q (allowed: saga, decay)", opt.Learner)
+	case opt.Learner != "" && opt.Learner != "saga" && opt.Learner != "decay" && opt.Learner != "gram":
+		return bad("learner %q (allowed: saga, decay, gram)", opt.Learner)
+	case opt.Learner == "gram" && !opt.Loss.Quadratic():
+		return bad("learner gram needs the squared loss, not %s (use saga or decay)", opt.Loss.Name())
 	}
 	def := func(v *int, d int) {
 		if *v == 0 {

@@ -72,6 +72,8 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 		}
 	case *decayLearner:
 		lrn.encode(e)
+	case *covLearner:
+		lrn.encode(e)
 	}
 	return e.Bytes(), nil
 }
@@ -123,6 +125,8 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 	case *sagaLearner:
 		lrn.decode(d, l.xbuf)
 	case *decayLearner:
+		lrn.decode(d)
+	case *covLearner:
 		lrn.decode(d)
 	}
 	if err := finish(d); err != nil {
@@ -201,6 +205,9 @@ func decodeOptions(d *window.Decoder) Options {
 		words, perMember = k64*(4*d64+8)+12*d64, 4*o.Features
 	} else {
 		words += int64(o.Window)*(d64+k64+sagaSlotWords) + 12*d64
+		if o.Learner == "gram" {
+			words += 3 * d64 * d64 // the sums, the Gram matrix and the solver's factor
+		}
 		if mix < lambdaMixFloor && o.Lambda == 0 && !o.Unpenalized {
 			words += d64*d64 + (gramBlock+64)*d64 // the ridge spectrum's scratch (grid.go)
 		}
@@ -217,7 +224,7 @@ func decodeOptions(d *window.Decoder) Options {
 // encode appends the SAGA learner's state: the train window, then the
 // learner's scalars and generator, then the members.
 func (s *sagaLearner) encode(e *window.Encoder) error {
-	s.ts.encode(e, s.ms)
+	s.ts.encode(e, s.ms[0].g, len(s.ms))
 	e.PutFloat64(s.gamma)
 	e.PutFloat64(s.gkey.maxW)
 	e.PutFloat64(s.gkey.bound)
@@ -258,7 +265,7 @@ func (s *sagaLearner) encode(e *window.Encoder) error {
 // decode reads what encode wrote into a learner fresh from newSAGA; xbuf
 // is the ladder's record buffer, which a pending admission refers to.
 func (s *sagaLearner) decode(d *window.Decoder, xbuf []float64) {
-	s.ts.decode(d, s.ms, s.k)
+	s.ts.decode(d, s.ms[0].g, s.k)
 	s.gamma = d.Float64()
 	s.gkey.maxW, s.gkey.bound, s.gkey.w = d.Float64(), d.Float64(), d.Float64()
 	s.gkey.n = d.Count("step key length", maxStateCap)
@@ -309,7 +316,7 @@ func (s *sagaLearner) check(d *window.Decoder) {
 // encode appends the window: the ring's head slot and length, each record
 // oldest first (label, weight, time, features and the members' gradients),
 // the exact scaler, the working scale and the pieces of the step bound.
-func (ts *trainset) encode(e *window.Encoder, ms []*sagaMember) {
+func (ts *trainset) encode(e *window.Encoder, table []float64, k int) {
 	n := ts.ring.Len()
 	head := 0
 	if n > 0 {
@@ -317,14 +324,15 @@ func (ts *trainset) encode(e *window.Encoder, ms []*sagaMember) {
 	}
 	e.PutUvarint(uint64(head))
 	e.PutUvarint(uint64(n))
-	k := len(ms)
 	for i := range n {
 		r, s := ts.ring.At(i), ts.ring.Slot(i)
 		e.PutFloat64(r.y)
 		e.PutFloat64(r.w)
 		e.PutVarint(r.t)
 		e.PutFloat64s(ts.row(s))
-		e.PutFloat64s(ms[0].g[s*k : s*k+k])
+		if k > 0 {
+			e.PutFloat64s(table[s*k : s*k+k])
+		}
 	}
 	e.PutFloat64(ts.sc.w)
 	e.PutFloat64(ts.sc.wy)
@@ -350,7 +358,7 @@ func (ts *trainset) encode(e *window.Encoder, ms []*sagaMember) {
 // back into the ring slots they held (the physical layout decides how a
 // resync groups the rows for its kernel calls), by advancing the empty
 // ring's head to the saved slot first.
-func (ts *trainset) decode(d *window.Decoder, ms []*sagaMember, k int) {
+func (ts *trainset) decode(d *window.Decoder, table []float64, k int) {
 	c := ts.ring.Cap()
 	head := d.Count("ring head", maxStateCap)
 	n := d.Count("window length", maxStateCap)
@@ -360,21 +368,22 @@ func (ts *trainset) decode(d *window.Decoder, ms []*sagaMember, k int) {
 	// A record holds at least its label and weight (8 bytes each), its time
 	// (a varint, 1 byte or more) and its features and gradients (8 bytes
 	// each after a length of 1 byte or more).
-	if !need(d, n, 8*(2+ts.d+k)+3, "window records") {
+	if !need(d, n, 8*(2+ts.d+k)+2+min(k, 1), "window records") {
 		return
 	}
 	for range head {
 		ts.ring.Push(meta{})
 		ts.ring.PopOldest()
 	}
-	table := ms[0].g
 	for range n {
 		var r meta
 		r.y, r.w, r.t = d.Float64(), d.Float64(), d.Varint()
 		ts.ring.Push(r)
 		s := ts.ring.Slot(ts.ring.Len() - 1)
 		d.Float64sInto(ts.row(s))
-		d.Float64sInto(table[s*k : s*k+k])
+		if k > 0 {
+			d.Float64sInto(table[s*k : s*k+k])
+		}
 	}
 	ts.sc.w, ts.sc.wy = d.Float64(), d.Float64()
 	d.Float64sInto(ts.sc.mean)
@@ -393,6 +402,55 @@ func (ts *trainset) decode(d *window.Decoder, ms []*sagaMember, k int) {
 	ts.dunref = d.Count("features without a reference scale", ts.d-ts.dref)
 	ts.arrivals = d.Count("arrivals", maxStateInt)
 	ts.resyncLen = d.Count("length at resync", c)
+}
+
+// encode appends the gram learner's state: the train window (records
+// without gradients, scaler and scales, as trainset.encode), the shift and
+// the sums bit for bit, the rebuild and solve bookkeeping, then the
+// members (λ, intercept, KKT at the last solve, coefficients).
+func (c *covLearner) encode(e *window.Encoder) {
+	c.ts.encode(e, nil, 0)
+	e.PutFloat64s(c.cx)
+	e.PutFloat64(c.cy)
+	e.PutFloat64(c.sw)
+	e.PutFloat64(c.sy)
+	e.PutFloat64s(c.sx)
+	e.PutFloat64s(c.sxy)
+	e.PutFloat64s(c.sxx)
+	e.PutUvarint(uint64(c.built))
+	e.PutUvarint(uint64(c.builtAt))
+	e.PutBool(c.stale)
+	e.PutBool(c.due)
+	e.PutBool(c.solved)
+	e.PutUvarint(uint64(c.sinceSolve))
+	e.PutUvarint(uint64(len(c.ms)))
+	for _, m := range c.ms {
+		e.PutFloat64(m.lambda)
+		e.PutFloat64(m.b)
+		e.PutFloat64(m.kkt)
+		e.PutFloat64s(m.theta)
+	}
+}
+
+// decode reads what encode wrote into a learner fresh from newCov.
+func (c *covLearner) decode(d *window.Decoder) {
+	c.ts.decode(d, nil, 0)
+	d.Float64sInto(c.cx)
+	c.cy, c.sw, c.sy = d.Float64(), d.Float64(), d.Float64()
+	d.Float64sInto(c.sx)
+	d.Float64sInto(c.sxy)
+	d.Float64sInto(c.sxx)
+	c.built = d.Count("arrivals since rebuild", maxStateInt)
+	c.builtAt = d.Count("length at rebuild", c.ts.ring.Cap())
+	c.stale, c.due, c.solved = d.Bool(), d.Bool(), d.Bool()
+	c.sinceSolve = d.Count("arrivals since solve", maxStateInt)
+	if n := d.Count("members", maxStateSize); d.Err() == nil && n != len(c.ms) {
+		d.Failf("%d members, want %d", n, len(c.ms))
+	}
+	for _, m := range c.ms {
+		m.lambda, m.b, m.kkt = d.Float64(), d.Float64(), d.Float64()
+		d.Float64sInto(m.theta)
+	}
 }
 
 // encode appends the decay learner's state: its clock and decayed counts,

@@ -248,3 +248,53 @@ func (h *Holdout) ResetFeature(j int) {
 		h.miss[s] = true
 	}
 }
+
+// grow widens the gram learner to n features: the new columns are 0 in
+// every row, so their shift is 0 and their sums are 0.
+func (c *covLearner) grow(n int) {
+	d, ts := c.ts.d, c.ts
+	ts.grow(n)
+	c.theta = widenRows(c.theta, d, n, 0)
+	for k, m := range c.ms {
+		m.theta = c.theta[k*n : (k+1)*n : (k+1)*n]
+	}
+	sxx := make([]float64, n*n)
+	for j := range d {
+		copy(sxx[j*n:j*n+d], c.sxx[j*d:(j+1)*d])
+	}
+	c.sxx = sxx
+	for _, p := range []*[]float64{&c.cx, &c.sx, &c.sxy} {
+		*p = widen(*p, n)
+	}
+	mk := func() []float64 { return make([]float64, n) }
+	c.solver = newGramSolver(n)
+	c.xc, c.xo, c.mu, c.sd, c.inv, c.thetaR = mk(), mk(), mk(), mk(), mk(), mk()
+	c.stale = true
+}
+
+// reset clears column j (Ladder.ResetFeature).
+func (c *covLearner) reset(j int) { c.setCol(j, 0) }
+
+// seed fills column j, fresh, with its first value v (Ladder.Grow).
+func (c *covLearner) seed(j int, v float64) {
+	if c.ts.ring.Len() == 0 {
+		return
+	}
+	c.setCol(j, v)
+}
+
+// setCol sets column j of the window to v and every member's coefficient
+// for it to 0. The shift of column j moves to v, so its shifted values,
+// and with them its row and column of the sums, are exactly 0.
+func (c *covLearner) setCol(j int, v float64) {
+	c.ts.setColumn(j, v)
+	d := c.ts.d
+	c.cx[j], c.sx[j], c.sxy[j] = v, 0, 0
+	for k := range d {
+		c.sxx[j*d+k], c.sxx[k*d+j] = 0, 0
+	}
+	for _, m := range c.ms {
+		m.theta[j] = 0
+	}
+	c.stale = true
+}

@@ -1,0 +1,498 @@
+package online
+
+import (
+	"math"
+)
+
+// gramSolveEvery is R, the number of arrivals between two solves of the
+// members on the record path (Add). A solve builds the standardized Gram
+// matrix from the sums (O(d²)) and runs warm-started coordinate descent on
+// every member, so at R = 32 it costs a fraction of the per-record rank-one
+// update; reads that need the current window (Optimum, OptimumPath, KKT)
+// solve for themselves, and Idle solves whenever anything is stale. It is
+// also the refresh period of the SAGA learner's scale (refreshEvery), so
+// both learners re-anchor their grid on the same records.
+const gramSolveEvery = refreshEvery
+
+// gramMember is one λ of a gram ladder: the exact minimizer of F on the
+// window as it was at the last solve, on the scale of that solve.
+type gramMember struct {
+	lambda float64
+	b      float64   // intercept: the window's weighted mean label
+	theta  []float64 // standardized coefficients (a row of covLearner.theta)
+	kkt    float64   // KKT violation at the last solve (from G and c)
+}
+
+var _ member = (*gramMember)(nil)
+
+func (m *gramMember) params() (float64, []float64) { return m.b, m.theta }
+
+// covLearner is the "gram" learner, for the squared loss only. It keeps the
+// train window's records (the trainset shared with the SAGA learner, so
+// that Shrink, Grow, ResetFeature and the saved state work the same way)
+// and the window's weighted sums around a shift (cx, cy), the window means
+// at the last rebuild, which keeps the sums far from the cancellation a raw
+// Σ w x xᵀ suffers when the means are large against the spread:
+//
+//	S = Σ w (x−cx)(x−cx)ᵀ (upper triangle), sx = Σ w (x−cx),
+//	sxy = Σ w (x−cx)(y−cy), W = Σ w, sy = Σ w (y−cy).
+//
+// A record adds one symmetric rank-one term and its evicted predecessor
+// removes one (one axpy2 per row of the triangle, O(d²), independent of
+// the window length). The sums are rebuilt exactly from the records once
+// per window length of arrivals and at Shrink, so rounding never
+// accumulates (amortized O(d²) per record). From them, in O(d²), the
+// standardized Gram matrix G = X̃ᵀWX̃/W and cross-products
+// c = X̃ᵀW(y − ȳ)/W of the window on its exact scale, from which every
+// member is solved by coordinate descent with covariance updates, warm
+// started from its previous solution (Friedman, Hastie & Tibshirani 2010,
+// §2.2 and §2.5), to the KKT target gramTarget.
+type covLearner struct {
+	ts    *trainset
+	ms    []*gramMember
+	theta []float64 // K×d, member k's θ is row k
+	alpha float64
+	span  int64
+
+	cx      []float64 // shift of the features
+	cy      float64   // shift of the label
+	sw, sy  float64
+	sx, sxy []float64
+	sxx     []float64 // d×d row-major, upper triangle (j ≤ k) kept
+	built   int       // arrivals since the sums were rebuilt
+	builtAt int       // window length at that rebuild
+
+	stale      bool // the window or the grid changed since the members were solved
+	due        bool // the scale was refreshed for a solve that run makes
+	solved     bool // the members have been solved at least once
+	sinceSolve int  // arrivals since the last solve
+
+	solver gramSolver
+	xc, xo []float64 // scratch: shifted arriving and evicted rows
+	mu     []float64 // scratch: the exact scale for reads
+	sd     []float64
+	inv    []float64
+	thetaR []float64 // scratch: a member's θ for reads
+}
+
+var _ learner = (*covLearner)(nil)
+
+// gramTarget is the KKT violation the gram learner's solves iterate to:
+// DefaultKKT/1000, the margin below the published tolerance that keeps
+// exact zeros (ExactOptions.Target).
+const gramTarget = DefaultKKT / 1000
+
+func newCov(o *Options, d int) *covLearner {
+	mk := func(k int) []float64 { return make([]float64, k) }
+	c := &covLearner{
+		ts: newTrainset(d, o.Window), alpha: o.Penalty.Mix, span: o.Span.Milliseconds(),
+		theta: mk(o.Size * d), cx: mk(d), sx: mk(d), sxy: mk(d), sxx: mk(d * d),
+		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d),
+	}
+	for k := range o.Size {
+		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d]})
+	}
+	return c
+}
+
+func (c *covLearner) members() []member {
+	ms := make([]member, len(c.ms))
+	for i, m := range c.ms {
+		ms[i] = m
+	}
+	return ms
+}
+
+// fill returns the window means, which replace missing values.
+func (c *covLearner) fill() []float64 { return c.ts.sc.mean }
+
+func (c *covLearner) len() int        { return c.ts.ring.Len() }
+func (c *covLearner) weight() float64 { return c.ts.sc.w }
+
+// scale returns the scale of the last solve, on which the members are.
+func (c *covLearner) scale() (mu, sd, inv []float64) { return c.ts.mu, c.ts.sd, c.ts.inv }
+
+// setLambdas gives member i the λ lambdas[i].
+func (c *covLearner) setLambdas(lambdas []float64) {
+	for i, m := range c.ms {
+		if m.lambda != lambdas[i] {
+			m.lambda = lambdas[i]
+			c.stale = true
+		}
+	}
+}
+
+// shift re-seats the members after the grid moved by k steps: member i
+// becomes a copy of its nearest old neighbour (a warm start).
+func (c *covLearner) shift(k int) {
+	K := len(c.ms)
+	cp := func(i, j int) {
+		if i != j {
+			c.ms[i].b = c.ms[j].b
+			copy(c.ms[i].theta, c.ms[j].theta)
+		}
+	}
+	if k > 0 {
+		for i := 0; i < K; i++ {
+			cp(i, min(i+k, K-1))
+		}
+	} else {
+		for i := K - 1; i >= 0; i-- {
+			cp(i, max(i+k, 0))
+		}
+	}
+	c.stale = true
+}
+
+// add admits a validated record: span eviction, then the record replaces
+// the oldest one of a full window (its rank-one term removed and the new
+// one added in one pass) or is appended. It reports whether the scale was
+// refreshed for a solve (every gramSolveEvery arrivals, and after a
+// rebuild), which run then makes.
+func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
+	ts := c.ts
+	if c.span > 0 && t != 0 {
+		for m, ok := ts.ring.Oldest(); ok && m.t != 0 && m.t < t-c.span; m, ok = ts.ring.Oldest() {
+			c.evict()
+		}
+	}
+	if ts.ring.Len() == ts.ring.Cap() {
+		m, _ := ts.ring.Oldest()
+		s := ts.ring.Slot(0)
+		old := ts.row(s)
+		c.swapSums(old, m.w, m.y, x, w, y)
+		ts.replace(x, y, w, t, 0, 0)
+		copy(old, x)
+	} else {
+		c.swapSums(nil, 0, 0, x, w, y)
+		s := ts.push(x, y, w, t, 0, 0)
+		copy(ts.row(s), x)
+	}
+	c.stale = true
+	c.built++
+	c.sinceSolve++
+	if c.built >= max(1, c.builtAt) {
+		c.rebuild()
+		return c.prepare()
+	}
+	if c.sinceSolve >= gramSolveEvery {
+		return c.prepare()
+	}
+	return false
+}
+
+// swapSums removes the record (xo, wo, yo) from the sums (none when xo is
+// nil) and adds (x, w, y): per row j of the triangle one axpy2 of length
+// d − j.
+func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y float64) {
+	d := c.ts.d
+	for j := range d {
+		c.xc[j] = x[j] - c.cx[j]
+	}
+	ey := y - c.cy
+	if xo == nil {
+		for j := range d {
+			axpy(w*c.xc[j], c.xc[j:], c.sxx[j*d+j:(j+1)*d])
+		}
+		axpy(w, c.xc, c.sx)
+		axpy(w*ey, c.xc, c.sxy)
+		c.sw += w
+		c.sy += w * ey
+		return
+	}
+	for j := range d {
+		c.xo[j] = xo[j] - c.cx[j]
+	}
+	eo := yo - c.cy
+	for j := range d {
+		axpy2(w*c.xc[j], c.xc[j:], -wo*c.xo[j], c.xo[j:], c.sxx[j*d+j:(j+1)*d])
+	}
+	axpy2(w, c.xc, -wo, c.xo, c.sx)
+	axpy2(w*ey, c.xc, -wo*eo, c.xo, c.sxy)
+	c.sw += w - wo
+	c.sy += w*ey - wo*eo
+}
+
+// evict removes the oldest record from the sums and the window.
+func (c *covLearner) evict() {
+	ts := c.ts
+	if ts.ring.Len() == 1 {
+		ts.pop()
+		c.clearSums()
+		c.stale = true
+		return
+	}
+	m, _ := ts.ring.Oldest()
+	x := ts.row(ts.ring.Slot(0))
+	d := ts.d
+	for j := range d {
+		c.xo[j] = x[j] - c.cx[j]
+	}
+	eo := m.y - c.cy
+	for j := range d {
+		axpy(-m.w*c.xo[j], c.xo[j:], c.sxx[j*d+j:(j+1)*d])
+	}
+	axpy(-m.w, c.xo, c.sx)
+	axpy(-m.w*eo, c.xo, c.sxy)
+	c.sw -= m.w
+	c.sy -= m.w * eo
+	ts.pop()
+	c.stale = true
+}
+
+// clearSums empties the sums.
+func (c *covLearner) clearSums() {
+	clear(c.sxx)
+	clear(c.sx)
+	clear(c.sxy)
+	c.sw, c.sy = 0, 0
+}
+
+// rebuild recomputes the scaler from the records (trainset.recompute),
+// moves the shift to the window's means and recomputes the sums from the
+// records in window order: O(n·d²), once per window length of arrivals.
+func (c *covLearner) rebuild() {
+	ts := c.ts
+	c.built, c.builtAt = 0, ts.ring.Len()
+	c.clearSums()
+	if ts.ring.Len() == 0 {
+		clear(c.cx)
+		c.cy = 0
+		return
+	}
+	ts.recompute()
+	copy(c.cx, ts.sc.mean)
+	c.cy = ts.sc.wy / ts.sc.w
+	for i, s := range ts.order() {
+		m := ts.ring.At(i)
+		c.swapSums(nil, 0, 0, ts.row(s), m.w, m.y)
+	}
+}
+
+// prepare refreshes the scale for the solve that run makes; it reports
+// true so that the ladder re-anchors its grid on the refreshed λ_max.
+func (c *covLearner) prepare() bool {
+	c.ts.refresh()
+	c.due = true
+	return true
+}
+
+// run solves the members when a solve is due (after add or rescale);
+// steps are ignored: the gram learner takes no stochastic steps.
+func (c *covLearner) run(int) {
+	if c.due {
+		c.solve()
+	}
+}
+
+// rescale prepares a solve if anything changed since the last (Idle).
+func (c *covLearner) rescale() bool {
+	if !c.stale || c.ts.ring.Len() == 0 {
+		return false
+	}
+	return c.prepare()
+}
+
+// shrink evicts all but the newest n records and rebuilds the sums.
+func (c *covLearner) shrink(n int) bool {
+	n = max(n, 0)
+	if c.ts.ring.Len() <= n {
+		return false
+	}
+	for c.ts.ring.Len() > n {
+		c.evict()
+	}
+	c.rebuild()
+	if c.ts.ring.Len() == 0 {
+		return false
+	}
+	return c.prepare()
+}
+
+// solve solves every member on the scale of the last refresh (ts.mu,
+// ts.inv), each from its previous solution (on the first solve, from the
+// member above it: warm starts down the path).
+func (c *covLearner) solve() {
+	c.due, c.stale, c.sinceSolve = false, false, 0
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return
+	}
+	ybar := c.system(c.ts.inv)
+	for i, m := range c.ms {
+		if !c.solved && i > 0 {
+			copy(m.theta, c.ms[i-1].theta)
+		}
+		m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, gramTarget)
+		m.b = ybar
+	}
+	c.solved = true
+}
+
+// system writes the standardized Gram matrix and cross-products of the
+// window, on inverse scale inv, into the solver, and returns the
+// window's weighted mean label. With m = sx/W the mean of x − cx,
+// C = S/W − m mᵀ is the window's covariance; G_jk = C_jk·inv_j·inv_k and
+// c_j = (sxy_j/W − m_j·sy/W)·inv_j. A constant feature (inv 0) has a zero
+// row and column.
+func (c *covLearner) system(inv []float64) float64 {
+	d := c.ts.d
+	g, cv, mx := c.solver.g, c.solver.c, c.solver.r
+	w := c.sw
+	for j := range d {
+		mx[j] = c.sx[j] / w
+	}
+	my := c.sy / w
+	for j := range d {
+		ij := inv[j]
+		row := c.sxx[j*d : (j+1)*d]
+		for k := j; k < d; k++ {
+			v := (row[k]/w - mx[j]*mx[k]) * ij * inv[k]
+			g[j*d+k], g[k*d+j] = v, v
+		}
+		cv[j] = (c.sxy[j]/w - mx[j]*my) * ij
+	}
+	return c.cy + my
+}
+
+// exactScale fills the scratch scale with the window's exact running
+// scale (the scale of Ladder.KKT and Optimum).
+func (c *covLearner) exactScale() {
+	sc := &c.ts.sc
+	for j := range c.mu {
+		c.mu[j] = sc.mean[j]
+		c.sd[j], c.inv[j] = sc.scale(j)
+	}
+}
+
+// lambdaMax returns max_j |c_j|/α on the scale of the last refresh, from
+// the shifted sums (no cancellation of large raw sums).
+func (c *covLearner) lambdaMax(alpha float64) float64 {
+	if !(c.sw > 0) {
+		return 0
+	}
+	w, inv := c.sw, c.ts.inv
+	my := c.sy / w
+	var m float64
+	for j, v := range inv {
+		m = max(m, math.Abs(c.sxy[j]/w-c.sx[j]/w*my)*v)
+	}
+	return m / alpha
+}
+
+// kkt is Ladder.KKT: member i's violation on the current window, from the
+// sums (O(d²)).
+func (c *covLearner) kkt(i int) float64 {
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return 0
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	m := c.ms[i]
+	return max(math.Abs(m.b-ybar), c.solver.violation(m.theta, m.lambda, c.alpha))
+}
+
+// converge rebuilds the sums, re-anchors the grid and solves every member
+// to min(tol/1000, gramTarget); it reports whether every member's KKT is
+// at most tol.
+func (c *covLearner) converge(l *Ladder, tol float64, _ int) bool {
+	if c.ts.ring.Len() == 0 {
+		return true
+	}
+	c.rebuild()
+	c.prepare()
+	l.reanchor(c.lambdaMax(l.alpha0))
+	c.due, c.stale, c.sinceSolve = false, false, 0
+	ybar := c.system(c.ts.inv)
+	ok := true
+	for i, m := range c.ms {
+		if !c.solved && i > 0 {
+			copy(m.theta, c.ms[i-1].theta)
+		}
+		m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, min(tol/1000, gramTarget))
+		m.b = ybar
+		ok = ok && m.kkt <= tol
+	}
+	c.solved = true
+	return ok
+}
+
+// optimum returns member i's exact fit on the current window to target:
+// the member itself when nothing changed since it was solved, else a
+// solve from it on the current sums and exact scale. The learner is not
+// changed.
+func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) {
+	m := c.ms[i]
+	if !c.stale && m.kkt <= target {
+		return l.Model(i), m.kkt
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	copy(c.thetaR, m.theta)
+	for j, v := range c.inv {
+		if v == 0 {
+			c.thetaR[j] = 0
+		}
+	}
+	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
+	return c.model(l, i, ybar, c.thetaR), kkt
+}
+
+// path is OptimumPath for the gram learner: every member's exact fit on
+// the current window, from one build of G and c (O(d²)) and a solve per
+// member from its last solution; the members themselves when nothing
+// changed since their solve. The learner is not changed.
+func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
+	fresh := !c.stale
+	for _, m := range c.ms {
+		fresh = fresh && m.kkt <= o.Target
+	}
+	if fresh {
+		for i, m := range c.ms {
+			dst = append(dst, Optimum{Model: l.Model(i), KKT: m.kkt, Converged: m.kkt <= o.Tol})
+		}
+		return dst
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	for i, m := range c.ms {
+		copy(c.thetaR, m.theta)
+		for j, v := range c.inv {
+			if v == 0 {
+				c.thetaR[j] = 0
+			}
+		}
+		kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, o.Target)
+		dst = append(dst, Optimum{Model: c.model(l, i, ybar, c.thetaR), KKT: kkt, Converged: kkt <= o.Tol})
+	}
+	return dst
+}
+
+// model returns member i's Model with intercept b and coefficients th on
+// the scratch (exact) scale.
+func (c *covLearner) model(l *Ladder, i int, b float64, th []float64) Model {
+	md := l.Model(i)
+	md.StdIntercept, md.Intercept = b, b
+	copy(md.Standardized, th)
+	for j, t := range th {
+		cj := t * c.inv[j]
+		md.Coef[j] = cj
+		md.Intercept -= cj * c.mu[j]
+		md.Mean[j], md.Std[j] = c.mu[j], c.sd[j]
+	}
+	return md
+}
+
+// gram is gramLearner.gram (the ridge grid's spectrum) from the sums, on
+// the exact scale: O(d²), with no pass over the records.
+func (c *covLearner) gram(out, _ []float64, _ bool) bool {
+	clear(out)
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return false
+	}
+	c.exactScale()
+	c.system(c.inv)
+	copy(out, c.solver.g)
+	return true
+}
+
+var _ gramLearner = (*covLearner)(nil)

@@ -1,0 +1,208 @@
+package online
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// gramStream returns n records of d features around 1000 ± 1 (a mean far
+// from 0 against the spread, to exercise the shifted sums), correlated,
+// with a sparse linear truth plus noise.
+func gramStream(seed uint64, n, d int) problem {
+	r := rand.New(rand.NewPCG(seed, 11))
+	p := problem{x: make([][]float64, n), y: make([]float64, n), w: make([]float64, n)}
+	for i := range n {
+		x := make([]float64, d)
+		common := r.NormFloat64()
+		y := 1000 + 0.5*r.NormFloat64()
+		for j := range d {
+			z := 0.5*common + r.NormFloat64()
+			x[j] = 1000 + z
+			if j < 4 {
+				y += float64(1+j) * z * float64(1-2*(j%2))
+			}
+		}
+		p.x[i], p.y[i], p.w[i] = x, y, 1
+	}
+	return p
+}
+
+// TestGramClosedForm streams 50,000 records through a window of 1,000 into
+// gram ladders and checks, on the final window: ridge against the closed
+// form θ = (X̃ᵀX̃ + nλI)⁻¹X̃ᵀ(y − ȳ), b = ȳ (gonum/mat v0.17.0; Hoerl &
+// Kennard 1970 in the 1/(2n) convention of Friedman, Hastie & Tibshirani
+// 2010), and the lasso path against its KKT conditions (Hastie, Tibshirani
+// & Wainwright 2015, ch. 2) computed here from X̃ and y directly with
+// gonum, not from the learner's sums; and the learner's sums against a
+// fresh rebuild from its records.
+func TestGramClosedForm(t *testing.T) {
+	const n, total, d = 1000, 50000, 8
+	p := gramStream(5, total, d)
+	xs, yc, ybar := standardize(p, total-n, total)
+	var xtx mat.Dense
+	xtx.Mul(xs.T(), xs)
+	var xty mat.VecDense
+	xty.MulVec(xs.T(), mat.NewVecDense(n, yc))
+
+	t.Run("ridge", func(t *testing.T) {
+		const lambda = 0.03
+		l, err := NewLadder(&Options{Features: d, Penalty: &Penalty{Mix: 0}, Lambda: lambda, Window: n, Learner: "gram"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		feed(t, l, p, 0, total)
+		var a mat.Dense
+		a.CloneFrom(&xtx)
+		for j := range d {
+			a.Set(j, j, a.At(j, j)+float64(n)*lambda)
+		}
+		var th mat.VecDense
+		if err := th.SolveVec(&a, &xty); err != nil {
+			t.Fatal(err)
+		}
+		o := l.Optimum(0, nil, nil)
+		if e := relErr(o.Model.Standardized, th.RawVector().Data); e > 1e-8 {
+			t.Errorf("θ rel err %g", e)
+		}
+		if e := math.Abs(o.Model.StdIntercept-ybar) / math.Abs(ybar); e > 1e-12 {
+			t.Errorf("b = %v, want ȳ = %v", o.Model.StdIntercept, ybar)
+		}
+		if !o.Converged {
+			t.Errorf("KKT %g", o.KKT)
+		}
+	})
+
+	t.Run("lasso", func(t *testing.T) {
+		l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		feed(t, l, p, 0, total)
+		nonzero := 0
+		for i, o := range l.OptimumPath(nil, nil) {
+			th := mat.NewVecDense(d, o.Model.Standardized)
+			var g mat.VecDense // gradient of the smooth part: (X̃ᵀX̃θ − X̃ᵀ(y − ȳ))/n
+			g.MulVec(&xtx, th)
+			g.SubVec(&g, &xty)
+			g.ScaleVec(1/float64(n), &g)
+			lam := l.Lambda(i)
+			var worst float64
+			for j := range d {
+				gj, tj := g.AtVec(j), th.AtVec(j)
+				if tj != 0 {
+					nonzero++
+					worst = max(worst, math.Abs(gj+lam*math.Copysign(1, tj)))
+				} else {
+					worst = max(worst, math.Abs(gj)-lam)
+				}
+			}
+			// 1e-8 relative to λ_max, the scale of the gradient.
+			if worst > 1e-8*l.Lambda(0) || !o.Converged {
+				t.Errorf("member %d (λ %g): KKT by gonum %g, by the learner %g", i, lam, worst, o.KKT)
+			}
+			if e := math.Abs(o.Model.StdIntercept-ybar) / math.Abs(ybar); e > 1e-12 {
+				t.Errorf("member %d: b = %v, want ȳ = %v", i, o.Model.StdIntercept, ybar)
+			}
+		}
+		if nonzero == 0 {
+			t.Fatal("every member empty: the path was not exercised")
+		}
+	})
+
+	t.Run("sums", func(t *testing.T) {
+		l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		// Stop half-way between two rebuilds, so that the sums carry
+		// n/2 rank-one additions and removals.
+		feed(t, l, p, 0, total-n/2)
+		c := l.lrn.(*covLearner)
+		if c.built == 0 {
+			t.Fatal("the sums were just rebuilt: nothing accumulated")
+		}
+		c.exactScale()
+		c.system(c.inv)
+		got := append([]float64(nil), c.solver.g...)
+		gotC := append([]float64(nil), c.solver.c...)
+		c.rebuild()
+		c.exactScale()
+		c.system(c.inv)
+		if e := relErr(got, c.solver.g); e > 1e-12 {
+			t.Errorf("G: rel err %g against a rebuild", e)
+		}
+		if e := relErr(gotC, c.solver.c); e > 1e-12 {
+			t.Errorf("c: rel err %g against a rebuild", e)
+		}
+	})
+}
+
+// TestGramMatchesSAGAOptimum checks the gram learner's exact path against
+// the SAGA learner's (OptimumPath from a pass over the records, exact.go)
+// on the same stream, with weights and missing values: two independent
+// computations of the same optimum.
+func TestGramMatchesSAGAOptimum(t *testing.T) {
+	p := makeProblem(9, 3000, 12, 5, false, true)
+	for i := range p.x {
+		if i%7 == 3 {
+			p.x[i][i%12] = math.NaN()
+		}
+	}
+	for _, pen := range []Penalty{Lasso(), ElasticNet(0.5), Ridge()} {
+		mk := func(kind string) *Ladder {
+			l, err := NewLadder(&Options{Features: 12, Window: 700, Learner: kind, Penalty: &pen})
+			if err != nil {
+				t.Fatal(err)
+			}
+			return l
+		}
+		g, s := mk("gram"), mk("saga")
+		feed(t, g, p, 0, 3000)
+		feed(t, s, p, 0, 3000)
+		g.Idle(1) // both anchor their grid on the current window
+		s.Idle(1)
+		for i := range g.Size() {
+			// λ_max comes from other sums (shifted against raw): equal to rounding.
+			if math.Abs(g.Lambda(i)-s.Lambda(i)) > 1e-12*s.Lambda(i) {
+				t.Fatalf("mix %v: λ_%d %v vs %v", pen.Mix, i, g.Lambda(i), s.Lambda(i))
+			}
+		}
+		og, os := g.OptimumPath(nil, nil), s.OptimumPath(nil, nil)
+		for i := range og {
+			if e := relErr(og[i].Model.Standardized, os[i].Model.Standardized); e > 1e-7 || !og[i].Converged {
+				t.Errorf("mix %v member %d: rel err %g, KKT %g", pen.Mix, i, e, og[i].KKT)
+			}
+		}
+	}
+}
+
+// TestGramOptions checks that the gram learner refuses a loss other than
+// the squared.
+func TestGramOptions(t *testing.T) {
+	if _, err := NewLadder(&Options{Features: 3, Learner: "gram", Loss: Logistic{}}); err == nil {
+		t.Fatal("gram with the logistic loss accepted")
+	}
+}
+
+// TestGramAddAllocs checks that Ladder.Add of the gram learner allocates
+// nothing, across solves and rebuilds.
+func TestGramAddAllocs(t *testing.T) {
+	p := makeProblem(2, 4000, 16, 5, false, false)
+	l, err := NewLadder(&Options{Features: 16, Window: 500, Learner: "gram"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, 1000)
+	i := 1000
+	if a := testing.AllocsPerRun(2000, func() {
+		if err := l.Add(p.record(i)); err != nil {
+			t.Fatal(err)
+		}
+		i++
+	}); a != 0 {
+		t.Fatalf("%v allocations per Add", a)
+	}
+}
