@@ -43,7 +43,7 @@ func TestDefaultsFilled(t *testing.T) {
 		{"window", m.Window, Window{Records: 10000}},
 		{"holdout", m.Holdout, Holdout{Every: 5, Records: 2000}},
 		{"retune", m.Retune, Retune{Every: 500, Rule: "one-se"}},
-		{"learner", m.Learner, Learner{Kind: "saga", Steps: 2, IdleSteps: 64, HalfLife: 10000}},
+		{"learner", m.Learner, Learner{Steps: 2, IdleSteps: 64, HalfLife: 10000}},
 		{"publish", m.Publish, Publish{Heartbeat: Duration(30 * time.Second), Tolerance: 0.001}},
 		{"max_features", m.MaxFeatures, 256},
 		{"missing", m.Missing, "impute"},

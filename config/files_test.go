@@ -46,7 +46,7 @@ var badFiles = map[string][]string{
 		`enum.bad.yaml:8: models[1].penalty: "lassso" is not allowed (allowed: lasso, ridge, elastic-net)`,
 		`enum.bad.yaml:9: models[1].missing: "zero" is not allowed (allowed: impute, reject)`,
 		`enum.bad.yaml:10: models[1].retune.rule: "best" is not allowed (allowed: min, one-se)`,
-		`enum.bad.yaml:11: models[1].learner.kind: "sgd" is not allowed (allowed: saga, decay)`,
+		`enum.bad.yaml:11: models[1].learner.kind: "sgd" is not allowed (allowed: gram, saga, decay)`,
 		`enum.bad.yaml:12: models[1].drift.performance: "ddm" is not allowed (allowed: adwin, page-hinkley, off)`,
 	},
 	"mix.bad.yaml": {

@@ -20,6 +20,7 @@ const (
 
 	LearnerSAGA  = "saga"  // windowed proximal SAGA
 	LearnerDecay = "decay" // bufferless proximal AdaGrad / FTRL-style learner
+	LearnerGram  = "gram"  // squared loss: the window's sufficient statistics, exact path by coordinate descent
 
 	MissingImpute = "impute" // a missing feature takes the window mean
 	MissingReject = "reject" // a record with a missing feature is rejected
@@ -360,9 +361,22 @@ type Retune struct {
 	Rule string `yaml:"rule"`
 }
 
+// EffectiveKind returns the learner a model with loss runs: Kind when set,
+// else gram for the squared loss and saga for any other.
+func (l Learner) EffectiveKind(loss string) string {
+	switch {
+	case l.Kind != "":
+		return l.Kind
+	case loss == LossSquared:
+		return LearnerGram
+	}
+	return LearnerSAGA
+}
+
 // Learner chooses and tunes the optimizer.
 type Learner struct {
-	// Kind is saga or decay. Default "saga".
+	// Kind is gram (squared loss only), saga or decay. Default "" (unset):
+	// gram for the squared loss, saga for the logistic (EffectiveKind).
 	Kind string `yaml:"kind"`
 	// Steps is the stochastic steps per arriving record per ladder member,
 	// 1 to 64. Default 2.
@@ -454,7 +468,7 @@ func DefaultModel() Model {
 		Window:      Window{Records: 10000},
 		Holdout:     Holdout{Every: 5, Records: 2000},
 		Retune:      Retune{Every: 500, Rule: RuleOneSE},
-		Learner:     Learner{Kind: LearnerSAGA, Steps: 2, IdleSteps: 64, HalfLife: 10000},
+		Learner:     Learner{Steps: 2, IdleSteps: 64, HalfLife: 10000},
 		Publish:     Publish{Heartbeat: Duration(30 * time.Second), Tolerance: 0.001},
 		MaxFeatures: 256,
 		Missing:     MissingImpute,

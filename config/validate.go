@@ -386,7 +386,12 @@ func (m *Model) validateTraining(k *checker, p string) {
 	k.intRange(p+".holdout.records", m.Holdout.Records, minHoldout, maxRecords)
 	k.intRange(p+".retune.every", m.Retune.Every, 1, math.MaxInt32)
 	k.oneOf(p+".retune.rule", m.Retune.Rule, RuleMin, RuleOneSE)
-	k.oneOf(p+".learner.kind", m.Learner.Kind, LearnerSAGA, LearnerDecay)
+	if m.Learner.Kind != "" {
+		k.oneOf(p+".learner.kind", m.Learner.Kind, LearnerGram, LearnerSAGA, LearnerDecay)
+	}
+	if m.Learner.Kind == LearnerGram && m.Loss != LossSquared {
+		k.add(p+".learner.kind", "gram needs loss squared, not %q (allowed for %q: saga, decay)", m.Loss, m.Loss)
+	}
 	k.intRange(p+".learner.steps", m.Learner.Steps, 1, maxSteps)
 	k.intRange(p+".learner.idle_steps", m.Learner.IdleSteps, 0, maxIdleSteps)
 	k.atLeast(p+".learner.half_life", m.Learner.HalfLife, 0, true)

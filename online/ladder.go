@@ -351,6 +351,9 @@ func (l *Ladder) Shrink(n int) {
 // learner, the decayed record count Σ 2^(−age/half-life), rounded.
 func (l *Ladder) Len() int { return l.lrn.len() }
 
+// Learner returns the learner's name: "saga", "decay" or "gram".
+func (l *Ladder) Learner() string { return l.opt.Learner }
+
 // Seen returns the number of records ever accepted.
 func (l *Ladder) Seen() uint64 { return l.seen }
 

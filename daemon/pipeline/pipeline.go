@@ -212,7 +212,7 @@ func New(o Options) (*Pipeline, error) {
 		Unpenalized: o.Unpenalized,
 		Steps:       m.Learner.Steps,
 		Seed:        seed,
-		Learner:     m.Learner.Kind,
+		Learner:     m.Learner.EffectiveKind(m.Loss),
 		HalfLife:    m.Learner.HalfLife,
 	})
 	if err != nil {
@@ -382,10 +382,15 @@ func (p *Pipeline) retune() { p.retuneWith(p.exactDue()) }
 // (window.records; the retunes in between, every retune.every records,
 // score the streaming members). An exact fit of every member reads the
 // whole window (O(n·d²) for the squared loss), so at every retune it would
-// cost many times the streaming step per record. The rule depends only on
+// cost many times the streaming step per record. The gram learner (the
+// default for the squared loss) fits at every retune: its members come from
+// the window's sums in O(d²) each, with no pass over the records. The rule depends only on
 // the records applied, so a restored pipeline decides as the uninterrupted
 // one.
 func (p *Pipeline) exactDue() bool {
+	if p.ladder.Learner() == config.LearnerGram {
+		return true
+	}
 	n, since := uint64(max(p.cfg.Window.Records, 1)), uint64(p.sinceRetune)
 	return p.seq <= n || since > p.seq || p.seq/n != (p.seq-since)/n
 }

@@ -45,7 +45,7 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 	bare, err := online.NewLadder(&online.Options{
 		Loss: online.Squared{}, Penalty: &online.Penalty{Mix: 1}, Features: 8,
 		Window: m.Window.Records, Size: m.Ladder.Size, Floor: m.Ladder.Floor,
-		Steps: m.Learner.Steps, Seed: h64.Sum64(), Learner: m.Learner.Kind, HalfLife: m.Learner.HalfLife,
+		Steps: m.Learner.Steps, Seed: h64.Sum64(), Learner: m.Learner.EffectiveKind(m.Loss), HalfLife: m.Learner.HalfLife,
 	})
 	if err != nil {
 		t.Fatal(err)

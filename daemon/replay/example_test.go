@@ -33,6 +33,6 @@ func Example() {
 	// Output:
 	// applied 6000 retunes 30
 	// 3010 performance
-	// 3200 model
-	// final version 4038 λ index 1
+	// 3400 model
+	// final version 4019 λ index 3
 }

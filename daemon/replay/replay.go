@@ -4,6 +4,7 @@ package replay
 // formats is in input.go and the plots are in plot.go.
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
@@ -139,10 +140,27 @@ type Path struct {
 type Member struct {
 	Index        int       `json:"index"`
 	Lambda       float64   `json:"lambda"`
-	Loss         float64   `json:"loss"` // held-out loss at the last retune
+	Loss         float64   `json:"loss"` // held-out loss at the last retune; NaN (null in JSON) for a member not scored since the grid was extended
 	SE           float64   `json:"se"`
 	Coefficients []float64 `json:"coefficients"` // raw units, by Path.Names
 	Standardized []float64 `json:"standardized"`
+}
+
+// MarshalJSON writes m with a loss and SE that are not finite (a member
+// the last retune's grid extension added, not scored yet) as null.
+func (m Member) MarshalJSON() ([]byte, error) {
+	type plain Member
+	num := func(v float64) *float64 {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil
+		}
+		return &v
+	}
+	return json.Marshal(struct {
+		plain
+		Loss *float64 `json:"loss"`
+		SE   *float64 `json:"se"`
+	}{plain(m), num(m.Loss), num(m.SE)})
 }
 
 // Pipeline returns the pipeline at the end of the replay (tests compare its
