@@ -41,16 +41,22 @@ func BenchmarkAdd(b *testing.B) {
 }
 
 // BenchmarkWindow measures ns per record at window lengths 1k, 10k and
-// 100k (K = 12, d = 16, 2 steps): the cost must not grow with n.
+// 100k (K = 12, d = 16, 2 steps) for the SAGA learner and the gram
+// learner: the cost must not grow with n.
 func BenchmarkWindow(b *testing.B) {
 	for _, n := range []int{1000, 10000, 100000} {
 		pool := benchPool(n+4096, 16)
 		b.Run(fmt.Sprintf("n%d", n), func(b *testing.B) { benchLadder(b, pool, 12, 16, 2, n) })
+		b.Run(fmt.Sprintf("gram/n%d", n), func(b *testing.B) { benchLearner(b, pool, "gram", 12, 16, 2, n) })
 	}
 }
 
 func benchLadder(b *testing.B, pool []Record, k, d, steps, window int) {
-	o := &Options{Features: d, Size: k, Steps: steps, Window: window, Seed: 1}
+	benchLearner(b, pool, "", k, d, steps, window)
+}
+
+func benchLearner(b *testing.B, pool []Record, learner string, k, d, steps, window int) {
+	o := &Options{Features: d, Size: k, Steps: steps, Window: window, Seed: 1, Learner: learner}
 	l, err := NewLadder(o)
 	if err != nil {
 		b.Fatal(err)

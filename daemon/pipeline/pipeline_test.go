@@ -247,45 +247,56 @@ func TestPipelinePublish(t *testing.T) {
 
 // TestPipelineApplyAllocs: applying a record does not allocate in steady
 // state (DEVELOPERS.md: allocations per record are asserted, 0), retunes
-// aside.
+// aside, for the logistic loss (saga) and the squared loss (gram, whose
+// member solves every 32 records are on the record path).
 func TestPipelineApplyAllocs(t *testing.T) {
-	m := driftModel("allocs", config.LossLogistic, featureNames(6), 2000)
-	h := newHarness(t, m)
-	s := &sparseStream{rng: rand.New(rand.NewPCG(7, 8))}
-	x := make([]float64, 6)
-	for range 3000 {
-		y := 0.0
-		if s.next(x) > 0 {
-			y = 1
-		}
-		h.feed(x, y)
-	}
-	h.p.cfg.Retune.Every = math.MaxInt32 // the per-retune work allocates by design
-	h.p.watch.retuneEvery = math.MaxInt32
-	rec := record.Record{X: make([]float64, 6), W: 1}
-	allocs := testing.AllocsPerRun(2000, func() {
-		if s.next(rec.X) > 0 {
-			rec.Y = 1
-		} else {
-			rec.Y = 0
-		}
-		if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
-			t.Fatal(err)
-		}
-	})
-	if allocs != 0 {
-		t.Errorf("Apply allocates %v per record", allocs)
+	for _, loss := range []string{config.LossLogistic, config.LossSquared} {
+		t.Run(loss, func(t *testing.T) {
+			m := driftModel("allocs", loss, featureNames(6), 2000)
+			h := newHarness(t, m)
+			if want := m.Learner.EffectiveKind(loss); h.p.ladder.Learner() != want {
+				t.Fatalf("learner %s, want %s", h.p.ladder.Learner(), want)
+			}
+			s := &sparseStream{rng: rand.New(rand.NewPCG(7, 8))}
+			label := func(v float64) float64 {
+				if loss == config.LossSquared {
+					return v
+				}
+				if v > 0 {
+					return 1
+				}
+				return 0
+			}
+			x := make([]float64, 6)
+			for range 3000 {
+				h.feed(x, label(s.next(x)))
+			}
+			h.p.cfg.Retune.Every = math.MaxInt32 // the per-retune work allocates by design
+			h.p.watch.retuneEvery = math.MaxInt32
+			rec := record.Record{X: make([]float64, 6), W: 1}
+			allocs := testing.AllocsPerRun(2000, func() {
+				rec.Y = label(s.next(rec.X))
+				if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
+					t.Fatal(err)
+				}
+			})
+			if allocs != 0 {
+				t.Errorf("Apply allocates %v per record", allocs)
+			}
+		})
 	}
 }
 
 // BenchmarkPipelineApply measures the per-record cost of the whole
 // pipeline with the daemon's default model settings (window 10000, K = 12,
-// 2 steps per record, holdout every 5th, retune every 500, drift watch on)
-// at d = 16 and 64, against the bare ladder's Add on the same records (the
-// baseline, in the same run): the ratio is the price of the policy; and
-// with drift.adapt off (no loss trail of the change-point estimate).
+// squared loss, so the gram learner with an exact fit of every member at
+// every retune; holdout every 5th, retune every 500, drift watch on) at
+// d = 16, 64 and 128, against the same pipeline with learner saga (2 steps
+// per record, the default before gram) and the bare SAGA ladder's Add on
+// the same records (in the same run); and with drift.adapt off (no loss
+// trail of the change-point estimate).
 func BenchmarkPipelineApply(b *testing.B) {
-	for _, d := range []int{16, 64} {
+	for _, d := range []int{16, 64, 128} {
 		m := config.DefaultModel()
 		m.Name, m.Subject = "bench", "bench"
 		m.Features, m.MaxFeatures = featureNames(d), d
@@ -298,10 +309,12 @@ func BenchmarkPipelineApply(b *testing.B) {
 		}
 		off := m
 		off.Drift.Adapt = false // no loss trail: its cost per record is the difference
+		saga := m
+		saga.Learner.Kind = config.LearnerSAGA // the pipeline before the gram default
 		for _, v := range []struct {
 			name string
 			m    config.Model
-		}{{"pipeline", m}, {"pipeline-adapt-off", off}} {
+		}{{"pipeline", m}, {"pipeline-saga", saga}, {"pipeline-adapt-off", off}} {
 			benchPipeline(b, v.name+"/d="+strconv.Itoa(d), v.m, xs, ys)
 		}
 		b.Run("ladder/d="+strconv.Itoa(d), func(b *testing.B) {
