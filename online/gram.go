@@ -171,7 +171,7 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	c.stale = true
 	c.built++
 	c.sinceSolve++
-	if c.built >= max(1, c.builtAt) {
+	if c.rebuildDue() {
 		c.rebuild()
 		return c.prepare()
 	}
@@ -179,6 +179,20 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 		return c.prepare()
 	}
 	return false
+}
+
+// rebuildDue reports whether the scheduled exact rebuild of the sums is
+// due: after resyncEvery window lengths of arrivals once the window held 64
+// records or more at the last rebuild (one window length below that, so
+// the shift settles while the window fills), the SAGA learner's resync
+// schedule. A rebuild costs O(n·d²/2), so about d²/8 per record, an eighth
+// of the rank-one swap.
+func (c *covLearner) rebuildDue() bool {
+	k := 1
+	if c.builtAt >= 64 {
+		k = resyncEvery
+	}
+	return c.built >= k*max(1, c.builtAt)
 }
 
 // swapSums removes the record (xo, wo, yo) from the sums (none when xo is
@@ -250,7 +264,7 @@ func (c *covLearner) clearSums() {
 
 // rebuild recomputes the scaler from the records (trainset.recompute),
 // moves the shift to the window's means and recomputes the sums from the
-// records in window order: O(n·d²), once per window length of arrivals.
+// records in window order: O(n·d²), on the schedule of rebuildDue.
 func (c *covLearner) rebuild() {
 	ts := c.ts
 	c.built, c.builtAt = 0, ts.ring.Len()

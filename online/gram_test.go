@@ -117,10 +117,15 @@ func TestGramClosedForm(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		// Stop half-way between two rebuilds, so that the sums carry
-		// n/2 rank-one additions and removals.
-		feed(t, l, p, 0, total-n/2)
+		// Stop just before a rebuild, so that the sums carry the most
+		// rank-one additions and removals they ever do.
+		feed(t, l, p, 0, n)
 		c := l.lrn.(*covLearner)
+		for c.builtAt != n || c.built < resyncEvery*n-1 {
+			if err := l.Add(p.record(int(l.Seen()))); err != nil {
+				t.Fatal(err)
+			}
+		}
 		if c.built == 0 {
 			t.Fatal("the sums were just rebuilt: nothing accumulated")
 		}
