@@ -19,7 +19,9 @@ import (
 // of the step-size bound, every member's coefficients, sums, step
 // constants and pending step, and the state of the PCG generator; for the
 // decay learner every member's FTRL-Proximal accumulators and the
-// exponentially weighted scale. Scratch buffers are not saved.
+// exponentially weighted scale; for the gram learner the train window, the
+// shift and the sums bit for bit, the rebuild and solve bookkeeping and the
+// members. Scratch buffers are not saved.
 //
 // A ladder with a Loss other than Squared or Logistic cannot be saved:
 // MarshalBinary returns an error wrapping ErrState. The format is
@@ -93,7 +95,10 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // bottom to its top, the extension, the two degrees of freedom and the
 // rank of a ridge anchor, the records seen and the window length at the
 // last spectrum, and whether a spectrum is due); then the learner's state (sagaLearner.encode,
-// decayLearner.encode). Integers are varints, float64 their little-endian
+// decayLearner.encode, covLearner.encode). The gram learner came with no
+// new version: its state follows the learner name "gram", which a reader
+// without it refuses (unknown learner), and the other learners' layouts
+// did not change. Integers are varints, float64 their little-endian
 // IEEE 754 bits, strings, byte strings and float64 slices carry a varint
 // length.
 func UnmarshalLadder(b []byte) (*Ladder, error) {

@@ -228,7 +228,7 @@ func TestAddAllocs(t *testing.T) {
 	for _, tc := range []struct {
 		learner string
 		pen     *Penalty
-	}{{"saga", nil}, {"decay", nil}, {"saga", &ridge}, {"decay", &ridge}} {
+	}{{"saga", nil}, {"decay", nil}, {"gram", nil}, {"saga", &ridge}, {"decay", &ridge}, {"gram", &ridge}} {
 		learner := tc.learner
 		if tc.pen != nil {
 			learner += "/ridge" // the df anchor's spectrum runs on the record path

@@ -34,5 +34,5 @@ func Example() {
 	// applied 6000 retunes 30
 	// 3010 performance
 	// 3400 model
-	// final version 4019 λ index 3
+	// final version 4037 λ index 3
 }
