@@ -294,7 +294,8 @@ func TestPipelineApplyAllocs(t *testing.T) {
 // d = 16, 64 and 128, against the same pipeline with learner saga (2 steps
 // per record, the default before gram) and the bare SAGA ladder's Add on
 // the same records (in the same run); and with drift.adapt off (no loss
-// trail of the change-point estimate).
+// trail of the change-point estimate). default-vs-saga runs the default
+// (a) and the saga pipeline (b) in alternating chunks and reports a/b.
 func BenchmarkPipelineApply(b *testing.B) {
 	for _, d := range []int{16, 64, 128} {
 		m := config.DefaultModel()
@@ -317,6 +318,7 @@ func BenchmarkPipelineApply(b *testing.B) {
 		}{{"pipeline", m}, {"pipeline-saga", saga}, {"pipeline-adapt-off", off}} {
 			benchPipeline(b, v.name+"/d="+strconv.Itoa(d), v.m, xs, ys)
 		}
+		benchInterleaved(b, "default-vs-saga/d="+strconv.Itoa(d), m, saga, xs, ys)
 		b.Run("ladder/d="+strconv.Itoa(d), func(b *testing.B) {
 			l, err := online.NewLadder(&online.Options{Features: d, Window: m.Window.Records, Seed: 1})
 			if err != nil {
@@ -335,6 +337,43 @@ func BenchmarkPipelineApply(b *testing.B) {
 			}
 		})
 	}
+}
+
+// benchInterleaved measures Pipeline.Apply per record for models a and b
+// on the same records, in alternating chunks of 64 records after a warm-up
+// of 12,000 each, so that the load of a shared machine hits both alike;
+// it reports both costs and their ratio a/b.
+func benchInterleaved(b *testing.B, name string, ma, mb config.Model, xs [][]float64, ys []float64) {
+	b.Run(name, func(b *testing.B) {
+		ha, hb := newHarness(b, ma), newHarness(b, mb)
+		for i := range 12000 {
+			ha.feed(xs[i&4095], ys[i&4095])
+			hb.feed(xs[i&4095], ys[i&4095])
+		}
+		rec := record.Record{W: 1}
+		run := func(h *harness, from, n int) time.Duration {
+			t0 := time.Now()
+			for i := from; i < from+n; i++ {
+				rec.X, rec.Y = xs[i&4095], ys[i&4095]
+				if _, err := h.p.Apply(&rec, h.names, h.now); err != nil {
+					b.Fatal(err)
+				}
+			}
+			return time.Since(t0)
+		}
+		var ta, tb time.Duration
+		b.ResetTimer()
+		for done := 0; done < b.N; {
+			c := min(64, b.N-done)
+			ta += run(ha, done, c)
+			tb += run(hb, done, c)
+			done += c
+		}
+		na, nb := float64(ta.Nanoseconds())/float64(b.N), float64(tb.Nanoseconds())/float64(b.N)
+		b.ReportMetric(na, "a-ns/rec")
+		b.ReportMetric(nb, "b-ns/rec")
+		b.ReportMetric(na/nb, "a/b")
+	})
 }
 
 // benchPipeline measures Pipeline.Apply per record for model m after a
