@@ -103,24 +103,32 @@ func (s *gramSolver) solve(theta []float64, lam, alpha, target float64) float64 
 				return v
 			}
 		}
+		// The Newton step costs about m³/3 for m nonzeros, an active sweep
+		// m·d: take it at once, before the first active sweep, while it
+		// costs less than about ten sweeps (with warm starts the support
+		// rarely changes, and the step then lands on the optimum), else
+		// after every tenth active sweep.
+		nnz := 0
+		for _, t := range theta {
+			if t != 0 {
+				nnz++
+			}
+		}
+		if nnz > 0 && nnz*nnz <= 30*s.d {
+			s.newton(theta, la, lr)
+		}
 		for inner := 0; sweeps < gramSweeps; inner++ {
 			worst = 0
-			nnz := 0
 			for j, t := range theta {
 				if t != 0 {
 					worst = max(worst, s.coord(theta, j, la, lr))
-					nnz++
 				}
 			}
 			sweeps++
 			if worst <= target {
 				break
 			}
-			// The Newton step costs about m³/3 for m nonzeros, an active
-			// sweep m·d: take it at once while it costs less than about ten
-			// sweeps (with warm starts the support rarely changes, and the
-			// step then lands on the optimum), else every tenth sweep.
-			if (inner == 0 && nnz*nnz <= 30*s.d) || inner%10 == 9 {
+			if inner%10 == 9 {
 				s.newton(theta, la, lr)
 			}
 		}

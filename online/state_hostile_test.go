@@ -53,6 +53,7 @@ func TestStateHostile(t *testing.T) {
 		{"ladder/saga/K3", smallLadder(t, "saga", 0)},
 		{"ladder/saga/K1", smallLadder(t, "saga", 0.1)},
 		{"ladder/decay/K3", smallLadder(t, "decay", 0)},
+		{"ladder/gram/K3", smallLadder(t, "gram", 0)},
 		{"holdout", must(h.MarshalBinary())},
 		{"chooser", must(c.MarshalBinary())},
 	} {
@@ -148,6 +149,7 @@ func FuzzLadderState(f *testing.F) {
 	f.Add(smallLadder(f, "saga", 0))
 	f.Add(smallLadder(f, "decay", 0))
 	f.Add(smallLadder(f, "saga", 0.1))
+	f.Add(smallLadder(f, "gram", 0))
 	// Keep each input's allocation small, so that the fuzzer runs fast.
 	defer func(v int) { stateWordLimit = v }(stateWordLimit)
 	stateWordLimit = 1 << 20
@@ -177,7 +179,7 @@ var updateSeeds = flag.Bool("update-seeds", false, "rewrite the committed seeds 
 
 // fuzzSeeds returns the committed seeds of FuzzLadderState by file name:
 // valid encodings of small ladders (SAGA with a wrapped window, with a
-// fixed λ and with a span that evicted records; decay), of a holdout that
+// fixed λ and with a span that evicted records; decay; gram), of a holdout that
 // has wrapped and holds missing features, and of a chooser.
 func fuzzSeeds(t testing.TB) map[string][]byte {
 	span := stateCase{opt: Options{Features: 3, Window: 5, Span: 3 * time.Second, Size: 2, Seed: 4}, timed: true}
@@ -224,6 +226,7 @@ func fuzzSeeds(t testing.TB) map[string][]byte {
 		"saga_fixed_lambda": smallLadder(t, "saga", 0.1),
 		"saga_span":         must(l.MarshalBinary()),
 		"decay":             smallLadder(t, "decay", 0),
+		"gram":              smallLadder(t, "gram", 0),
 		"holdout":           must(h.MarshalBinary()),
 		"chooser":           must(c.MarshalBinary()),
 	}

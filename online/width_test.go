@@ -26,6 +26,8 @@ func TestGrowBitIdentical(t *testing.T) {
 		{name: "saga_logistic_weighted", learner: "saga", logistic: true, weighted: true, size: 5},
 		{name: "saga_missing", learner: "saga", na: true, size: 4},
 		{name: "decay", learner: "decay", size: 4},
+		{name: "gram", learner: "gram", size: 6},
+		{name: "gram_missing_weighted", learner: "gram", na: true, weighted: true, size: 4},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			var loss Loss = Squared{}
@@ -146,7 +148,7 @@ func TestGrowMidStream(t *testing.T) {
 // missing; the other columns are untouched; a later value starts it from
 // that value; and training goes on without NaN.
 func TestResetFeature(t *testing.T) {
-	for _, learner := range []string{"saga", "decay"} {
+	for _, learner := range []string{"saga", "decay", "gram"} {
 		t.Run(learner, func(t *testing.T) {
 			const d = 5
 			p := makeProblem(4, 400, d, 4, false, false)
@@ -210,7 +212,7 @@ func TestResetFeature(t *testing.T) {
 // bit-identically (width, maximum width, fresh columns) and continues as
 // the original does.
 func TestGrowState(t *testing.T) {
-	for _, learner := range []string{"saga", "decay"} {
+	for _, learner := range []string{"saga", "decay", "gram"} {
 		t.Run(learner, func(t *testing.T) {
 			const d = 6
 			p := makeProblem(8, 300, d, 3, false, false)
