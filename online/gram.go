@@ -182,7 +182,33 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 		return c.prepare()
 	}
 	if c.sinceSolve >= c.every {
+		if c.shiftFar() {
+			c.rebuild()
+		}
 		return c.prepare()
+	}
+	return false
+}
+
+// shiftFar reports whether a feature's window mean has moved more than 10
+// of its standard deviations from its shift: the sums then carry terms
+// (x − c)² a hundred times the variance, each update's rounding is that
+// much larger against the covariance S/W − m mᵀ formed from them, and a
+// stream whose means drift that far within the rebuild period rebuilds
+// early (measured: 1.5e-12 relative error in G after 3,700 updates at 13
+// standard deviations, TestGramDriftingMeans). A stationary stream never
+// gets there. O(d), checked before each solve.
+func (c *covLearner) shiftFar() bool {
+	if !(c.sw > 0) {
+		return false
+	}
+	rw := 1 / c.sw
+	d := c.ts.d
+	for j := range d {
+		m := c.sx[j] * rw
+		if v := c.sxx[j*d+j]*rw - m*m; m*m > 100*v && m != 0 {
+			return true
+		}
 	}
 	return false
 }

@@ -145,6 +145,65 @@ func TestGramClosedForm(t *testing.T) {
 	})
 }
 
+// TestGramDriftingMeans streams records whose means drift by 0.1 to 0.6
+// standard deviations per record (100 to 600 per window of 1,000, four
+// times that per rebuild period), and checks the learner's
+// standardized Gram matrix and cross-products against a rebuild from the
+// records, and the ridge fit against gonum's closed form (as
+// TestGramClosedForm), at several points of the stream: the shift must
+// follow the means (shiftFar) or the sums lose their precision to
+// cancellation.
+func TestGramDriftingMeans(t *testing.T) {
+	const n, d, lambda = 1000, 6, 0.02
+	r := rand.New(rand.NewPCG(8, 9))
+	p := problem{}
+	for i := range 20000 {
+		x := make([]float64, d)
+		drift := 0.1 * float64(i)
+		y := 3 * drift
+		for j := range d {
+			z := r.NormFloat64()
+			x[j] = 1000 + drift*float64(j+1) + z
+			y += z * float64(j%3)
+		}
+		p.x, p.y, p.w = append(p.x, x), append(p.y, y+r.NormFloat64()), append(p.w, 1)
+	}
+	l, err := NewLadder(&Options{Features: d, Penalty: &Penalty{Mix: 0}, Lambda: lambda, Window: n, Learner: "gram"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := l.lrn.(*covLearner)
+	for _, at := range []int{3900, 7700, 11999, 20000} {
+		feed(t, l, p, int(l.Seen()), at)
+		c.exactScale()
+		c.system(c.inv)
+		g, cv := append([]float64(nil), c.solver.g...), append([]float64(nil), c.solver.c...)
+		o := l.Optimum(0, nil, nil)
+		xs, yc, _ := standardize(p, at-n, at)
+		var a mat.Dense
+		a.Mul(xs.T(), xs)
+		for j := range d {
+			a.Set(j, j, a.At(j, j)+float64(n)*lambda)
+		}
+		var rhs, th mat.VecDense
+		rhs.MulVec(xs.T(), mat.NewVecDense(n, yc))
+		if err := th.SolveVec(&a, &rhs); err != nil {
+			t.Fatal(err)
+		}
+		if e := relErr(o.Model.Standardized, th.RawVector().Data); e > 1e-8 {
+			t.Errorf("record %d: θ rel err %g against the closed form", at, e)
+		}
+		// The same scale on both sides: the comparison is of the sums
+		// (the running scaler has its own rounding, rebuilt too).
+		inv := append([]float64(nil), c.inv...)
+		c.rebuild()
+		c.system(inv)
+		if e := max(relErr(g, c.solver.g), relErr(cv, c.solver.c)); e > 1e-12 {
+			t.Errorf("record %d: G, c rel err %g against a rebuild", at, e)
+		}
+	}
+}
+
 // TestGramMatchesSAGAOptimum checks the gram learner's exact path against
 // the SAGA learner's (OptimumPath from a pass over the records, exact.go)
 // on the same stream, with weights and missing values: two independent
