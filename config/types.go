@@ -379,10 +379,11 @@ type Learner struct {
 	// gram for the squared loss, saga for the logistic (EffectiveKind).
 	Kind string `yaml:"kind"`
 	// Steps is the stochastic steps per arriving record per ladder member,
-	// 1 to 64. Default 2.
+	// 1 to 64 (saga and decay; gram takes no steps). Default 2.
 	Steps int `yaml:"steps"`
 	// IdleSteps is the extra steps per member when the stream is quiet,
-	// 0 to 1048576. Default 64.
+	// 0 to 1048576; for gram, any value above 0 lets a quiet stream solve
+	// its members on the current window. Default 64.
 	IdleSteps int `yaml:"idle_steps"`
 	// HalfLife is the decay learner's forgetting half-life in records, > 0;
 	// ignored by saga. Default 10000.
