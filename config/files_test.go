@@ -48,6 +48,7 @@ var badFiles = map[string][]string{
 		`enum.bad.yaml:10: models[1].retune.rule: "best" is not allowed (allowed: min, one-se)`,
 		`enum.bad.yaml:11: models[1].learner.kind: "sgd" is not allowed (allowed: gram, saga, decay)`,
 		`enum.bad.yaml:12: models[1].drift.performance: "ddm" is not allowed (allowed: adwin, page-hinkley, off)`,
+		`enum.bad.yaml:16: models[2].learner.kind: gram needs loss squared, not "logistic" (allowed for "logistic": saga, decay)`,
 	},
 	"mix.bad.yaml": {
 		`mix.bad.yaml:5: models[0].mix: is only for elastic-net (penalty is "lasso")`,
