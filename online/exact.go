@@ -110,6 +110,39 @@ func (l *Ladder) Optimum(i int, warm *Model, o *ExactOptions) Optimum {
 	return Optimum{Model: m, KKT: kkt, Converged: kkt <= opt.Tol, Passes: passes}
 }
 
+// ModelKKT returns the largest KKT violation (as KKT measures it) of model
+// m, at its λ, on the current window, from one pass over the window's
+// records (O(n·d)) whatever else the learner keeps: for the gram learner,
+// whose fits come from the window's sums, it checks them against the
+// records themselves. m is an Optimum's Model of this ladder (its
+// standardized intercept and coefficients on the window's exact scale).
+// It is NaN for the decay learner, an empty window or a model of another
+// width, and changes nothing.
+func (l *Ladder) ModelKKT(m *Model) float64 {
+	if len(m.Standardized) != l.d {
+		return math.NaN()
+	}
+	switch lrn := l.lrn.(type) {
+	case *covLearner:
+		if lrn.ts.ring.Len() > 0 && lrn.sw > 0 {
+			return lrn.recordsKKT(m.StdIntercept, m.Standardized, m.Lambda)
+		}
+	case *sagaLearner:
+		if lrn.ts.ring.Len() > 0 {
+			e := newExact(lrn, m.Lambda)
+			e.b = m.StdIntercept
+			for j, t := range m.Standardized {
+				if e.inv[j] != 0 {
+					e.theta[j] = t
+				}
+			}
+			e.pass()
+			return e.violation()
+		}
+	}
+	return math.NaN()
+}
+
 // exact is the state of one exact fit on a SAGA learner's window.
 type exact struct {
 	s            *sagaLearner

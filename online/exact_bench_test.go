@@ -18,6 +18,9 @@ import (
 //   - pub: one exact fit (Ladder.Optimum from the member, KKT 1e-6) of the
 //     published member per publication, a publication every 500 records;
 //     the published model then stays out until the next publication.
+//   - check: the published fit's KKT measured on the records
+//     (Ladder.ModelKKT, one pass), which the pipeline adds to a gram
+//     learner's publication; not in the ratios.
 //   - retune: exact fits of all K members every 500 records
 //     (Ladder.OptimumPath: from the window's Gram matrix for the squared
 //     loss, one Optimum per member for the logistic, where the pipeline
@@ -82,6 +85,7 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 	var pub Model
 	refit := make([]Model, k)
 	publish := func() { pub = l.Optimum(member, nil, nil).Model }
+	check := func() { _ = l.ModelKKT(&pub) } // the records' check of a publication
 	var path []Optimum
 	retune := func() { path = l.OptimumPath(nil, path) }
 	refitPath := func() {
@@ -97,7 +101,7 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 			warm = &refit[i]
 		}
 	}
-	var tStream, tPub, tRetune, tRefit time.Duration
+	var tStream, tPub, tCheck, tRetune, tRefit time.Duration
 	var dStream, dPub, dRefit float64
 	samples := 0
 	timed := func(f func()) time.Duration { t0 := time.Now(); f(); return time.Since(t0) }
@@ -116,6 +120,7 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 		}
 		if done%every == every-1 {
 			tPub += timed(publish)
+			tCheck += timed(check)
 			tRetune += timed(retune)
 			tRefit += timed(refitPath)
 		}
@@ -137,6 +142,7 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 	ns := func(t time.Duration) float64 { return float64(t.Nanoseconds()) / float64(b.N) }
 	b.ReportMetric(ns(tStream), "stream-ns/rec")
 	b.ReportMetric(ns(tPub), "pub-ns/rec")
+	b.ReportMetric(ns(tCheck), "check-ns/rec")
 	b.ReportMetric(ns(tRetune), "retune-ns/rec")
 	b.ReportMetric(ns(tRefit), "refit-ns/rec")
 	b.ReportMetric(ns(tRefit)/(ns(tStream)+ns(tPub)), "refit/(stream+pub)")

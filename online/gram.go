@@ -400,6 +400,46 @@ func (c *covLearner) system(inv []float64) float64 {
 	return c.cy + my
 }
 
+// recordsKKT returns the KKT violation of intercept b and coefficients th
+// at λ on the window's records, on the exact scale: one pass, O(n·d). A
+// coefficient of a feature constant on the window counts as 0.
+func (c *covLearner) recordsKKT(b float64, th []float64, lam float64) float64 {
+	ts := c.ts
+	c.exactScale()
+	grad, xs := c.xo, c.xc // scratch of add, free outside it
+	clear(grad)
+	for j, v := range c.inv {
+		if v == 0 {
+			c.thetaR[j] = 0
+		} else {
+			c.thetaR[j] = th[j]
+		}
+	}
+	var gb float64
+	for k, sl := range ts.order() {
+		r := ts.ring.At(k)
+		stdRow(xs, ts.row(sl), c.mu, c.inv)
+		g := r.w * (b + dot(c.thetaR, xs) - r.y)
+		gb += g
+		axpy(g, xs, grad)
+	}
+	w := ts.sc.w
+	la, lr := lam*c.alpha, lam*(1-c.alpha)
+	worst := math.Abs(gb / w)
+	for j, t := range c.thetaR {
+		if c.inv[j] == 0 {
+			continue
+		}
+		gj := grad[j] / w
+		if t != 0 {
+			worst = max(worst, math.Abs(gj+la*math.Copysign(1, t)+lr*t))
+		} else {
+			worst = max(worst, math.Abs(gj)-la)
+		}
+	}
+	return worst
+}
+
 // exactScale fills the scratch scale with the window's exact running
 // scale (the scale of Ladder.KKT and Optimum).
 func (c *covLearner) exactScale() {

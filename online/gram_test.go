@@ -254,3 +254,39 @@ func TestGramOptions(t *testing.T) {
 		t.Fatal("gram with the logistic loss accepted")
 	}
 }
+
+// TestModelKKT checks Ladder.ModelKKT, the records' check of a fit: the
+// exact fit of either learner passes at the tolerance, and a fit moved off
+// its optimum by δ in one coefficient fails by about δ·G_jj (the KKT
+// conditions of Hastie, Tibshirani & Wainwright 2015, ch. 2: moving θ_j by
+// δ moves its gradient by δ times the j-th diagonal of the standardized
+// Gram matrix, 1).
+func TestModelKKT(t *testing.T) {
+	p := makeProblem(4, 2000, 8, 4, false, true)
+	for _, kind := range []string{"gram", "saga"} {
+		l, err := NewLadder(&Options{Features: 8, Window: 1500, Learner: kind})
+		if err != nil {
+			t.Fatal(err)
+		}
+		feed(t, l, p, 0, 2000)
+		o := l.Optimum(6, nil, nil)
+		if k := l.ModelKKT(&o.Model); !(k <= DefaultKKT) {
+			t.Errorf("%s: optimum's KKT on the records %g (its own %g)", kind, k, o.KKT)
+		}
+		m := o.Model
+		m.Standardized = append([]float64(nil), m.Standardized...)
+		m.Standardized[0] += 0.01
+		if k := l.ModelKKT(&m); !(k > 0.005 && k < 0.02) {
+			t.Errorf("%s: moved fit's KKT %g, want about 0.01", kind, k)
+		}
+	}
+	d, err := NewLadder(&Options{Features: 8, Learner: "decay"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, d, p, 0, 100)
+	m := d.Model(0)
+	if k := d.ModelKKT(&m); !math.IsNaN(k) {
+		t.Errorf("decay: %g, want NaN", k)
+	}
+}

@@ -31,7 +31,8 @@ func newScratch(d, capacity int) scratch {
 // and 5): with g_j = ∂/∂θ_j of the smooth part, |g_j + λα·sign θ_j +
 // λ(1−α)θ_j| where θ_j ≠ 0, max(0, |g_j| − λα) where θ_j = 0, and |∂F/∂b|.
 // It is 0 for an empty window and NaN for the decay learner (no window).
-// O(n·d); it changes nothing.
+// O(n·d) (the gram learner: O(d²), from the window's sums; ModelKKT
+// measures on the records); it changes nothing.
 func (l *Ladder) KKT(i int) float64 { return l.lrn.kkt(i) }
 
 // kkt is Ladder.KKT for the SAGA learner.

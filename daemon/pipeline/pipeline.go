@@ -502,7 +502,8 @@ func (p *Pipeline) fitMembers() {
 	}
 }
 
-// optimum returns the exact fit of member i on the current window. The
+// optimum returns the exact fit of member i on the current window (for the
+// gram learner with its KKT residual measured on the records). The
 // last fit is reused while no record arrived and λ did not move, and also,
 // unless fresh, for MinPublish after it was made: Publish builds a
 // candidate on every call once MinPublish has passed (the daemon calls it
@@ -515,7 +516,14 @@ func (p *Pipeline) optimum(i int, now time.Time, fresh bool) online.Optimum {
 			(!fresh && !f.at.IsZero() && now.Sub(f.at) < p.minPublish && now.Sub(f.at) >= 0)) {
 		return f.opt
 	}
-	*f = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), at: now, opt: p.ladder.Optimum(i, nil, &p.exact)}
+	opt := p.ladder.Optimum(i, nil, &p.exact)
+	if p.ladder.Learner() == config.LearnerGram {
+		// The gram fit comes from the window's sums; the KKT residual the
+		// document carries is measured on the records (one pass).
+		opt.KKT = max(opt.KKT, p.ladder.ModelKKT(&opt.Model))
+		opt.Converged = opt.KKT <= p.exact.Tol
+	}
+	*f = exactFit{ok: true, seen: p.ladder.Seen(), index: i, lambda: p.ladder.Lambda(i), at: now, opt: opt}
 	return f.opt
 }
 
