@@ -1,0 +1,151 @@
+package online
+
+import "math"
+
+// The gram learner's exact reads: Ladder.KKT, Optimum, OptimumPath,
+// ModelKKT and the ridge spectrum's Gram matrix. They change only scratch
+// buffers, never the learner's state: a read of a window that moved since
+// the members' solve solves a copy from the current sums.
+
+// exactScale fills the scratch scale with the window's exact running
+// scale (the scale of Ladder.KKT and Optimum).
+func (c *covLearner) exactScale() {
+	sc := &c.ts.sc
+	for j := range c.mu {
+		c.mu[j] = sc.mean[j]
+		c.sd[j], c.inv[j] = sc.scale(j)
+	}
+}
+
+// kkt is Ladder.KKT: member i's violation on the current window, from the
+// sums (O(d²)).
+func (c *covLearner) kkt(i int) float64 {
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return 0
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	m := c.ms[i]
+	return max(math.Abs(m.b-ybar), c.solver.violation(m.theta, m.lambda, c.alpha))
+}
+
+// recordsKKT returns the KKT violation of intercept b and coefficients th
+// at λ on the window's records, on the exact scale: one pass, O(n·d). A
+// coefficient of a feature constant on the window counts as 0.
+func (c *covLearner) recordsKKT(b float64, th []float64, lam float64) float64 {
+	ts := c.ts
+	c.exactScale()
+	grad, xs := c.xo, c.xc // scratch of add, free outside it
+	clear(grad)
+	for j, v := range c.inv {
+		if v == 0 {
+			c.thetaR[j] = 0
+		} else {
+			c.thetaR[j] = th[j]
+		}
+	}
+	var gb float64
+	for k, sl := range ts.order() {
+		r := ts.ring.At(k)
+		stdRow(xs, ts.row(sl), c.mu, c.inv)
+		g := r.w * (b + dot(c.thetaR, xs) - r.y)
+		gb += g
+		axpy(g, xs, grad)
+	}
+	w := ts.sc.w
+	la, lr := lam*c.alpha, lam*(1-c.alpha)
+	worst := math.Abs(gb / w)
+	for j, t := range c.thetaR {
+		if c.inv[j] == 0 {
+			continue
+		}
+		gj := grad[j] / w
+		if t != 0 {
+			worst = max(worst, math.Abs(gj+la*math.Copysign(1, t)+lr*t))
+		} else {
+			worst = max(worst, math.Abs(gj)-la)
+		}
+	}
+	return worst
+}
+
+// optimum returns member i's exact fit on the current window to target:
+// the member itself when nothing changed since it was solved, else a
+// solve from it on the current sums and exact scale. The learner is not
+// changed.
+func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) {
+	m := c.ms[i]
+	if !c.stale && m.kkt <= target {
+		return l.Model(i), m.kkt
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	copy(c.thetaR, m.theta)
+	for j, v := range c.inv {
+		if v == 0 {
+			c.thetaR[j] = 0
+		}
+	}
+	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
+	return c.model(l, i, ybar, c.thetaR), kkt
+}
+
+// path is OptimumPath for the gram learner: every member's exact fit on
+// the current window, from one build of G and c (O(d²)) and a solve per
+// member from its last solution; the members themselves when nothing
+// changed since their solve. The learner is not changed.
+func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
+	fresh := !c.stale
+	for _, m := range c.ms {
+		fresh = fresh && m.kkt <= o.Target
+	}
+	if fresh {
+		for i, m := range c.ms {
+			dst = append(dst, Optimum{Model: l.Model(i), KKT: m.kkt, Converged: m.kkt <= o.Tol})
+		}
+		return dst
+	}
+	c.exactScale()
+	ybar := c.system(c.inv)
+	for i, m := range c.ms {
+		copy(c.thetaR, m.theta)
+		for j, v := range c.inv {
+			if v == 0 {
+				c.thetaR[j] = 0
+			}
+		}
+		kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, o.Target)
+		dst = append(dst, Optimum{Model: c.model(l, i, ybar, c.thetaR), KKT: kkt, Converged: kkt <= o.Tol})
+	}
+	return dst
+}
+
+// model returns member i's Model with intercept b and coefficients th on
+// the scratch (exact) scale.
+func (c *covLearner) model(l *Ladder, i int, b float64, th []float64) Model {
+	md := l.Model(i)
+	md.StdIntercept, md.Intercept = b, b
+	copy(md.Standardized, th)
+	for j, t := range th {
+		cj := t * c.inv[j]
+		md.Coef[j] = cj
+		md.Intercept -= cj * c.mu[j]
+		md.Mean[j], md.Std[j] = c.mu[j], c.sd[j]
+	}
+	return md
+}
+
+// gram is gramLearner.gram (the ridge grid's spectrum) from the sums, on
+// the exact scale: O(d²), with no pass over the records.
+func (c *covLearner) gram(out, _ []float64, _ bool) bool {
+	clear(out)
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return false
+	}
+	c.exactScale()
+	c.system(c.inv)
+	copy(out, c.solver.g)
+	return true
+}
+
+var _ gramLearner = (*covLearner)(nil)
