@@ -14,9 +14,10 @@ import (
 // solves. Between solves the members are at most R records old, which only
 // the test-then-train loss of the drift watch sees: every read that
 // leaves the process (Optimum, OptimumPath, KKT) solves for itself from the
-// current sums, and Idle solves whenever anything is stale. At 1 % of the
-// window the members move by a fraction of their distance to a fresh
-// optimum comparable to the SAGA members' (see the README).
+// current sums, and Idle solves whenever anything is stale. At R = 100 on
+// a window of 10,000 the member is 0.08 % from the current optimum on
+// average, against 0.12–0.27 % for the SAGA members (BenchmarkExactPath,
+// dist-stream).
 func solveEvery(n int) int { return max(16, min(100, n/100)) }
 
 // gramMember is one λ of a gram ladder: the exact minimizer of F on the
@@ -44,8 +45,9 @@ func (m *gramMember) params() (float64, []float64) { return m.b, m.theta }
 //
 // A record adds one symmetric rank-one term and its evicted predecessor
 // removes one (one axpy2 per row of the triangle, O(d²), independent of
-// the window length). The sums are rebuilt exactly from the records once
-// per window length of arrivals and at Shrink, so rounding never
+// the window length). The sums are rebuilt exactly from the records every
+// resyncEvery window lengths of arrivals (rebuildDue), early when a mean
+// drifts far from the shift (shiftFar), and at Shrink, so rounding never
 // accumulates (amortized O(d²) per record). From them, in O(d²), the
 // standardized Gram matrix G = X̃ᵀWX̃/W and cross-products
 // c = X̃ᵀW(y − ȳ)/W of the window on its exact scale, from which every
