@@ -54,7 +54,7 @@ type clusterNode struct {
 	running     bool
 }
 
-// RunCluster starts n NATS servers (n >= 1) on random loopback client and
+// RunCluster starts n NATS servers (n >= 2) on random loopback client and
 // cluster ports, joined by routes, with JetStream on each (a store of its
 // own in a temporary directory of t), waits until the cluster is formed and
 // JetStream has a meta leader that every node follows, and shuts every node
@@ -67,8 +67,8 @@ func RunCluster(t testing.TB, n int) *Cluster {
 // RunClusterWith is RunCluster with options (nil: the defaults).
 func RunClusterWith(t testing.TB, n int, o *ClusterOptions) *Cluster {
 	t.Helper()
-	if n < 1 {
-		t.Fatalf("natstest: a cluster of %d nodes", n)
+	if n < 2 {
+		t.Fatalf("natstest: a cluster of %d nodes (one server is RunServer)", n)
 	}
 	if o == nil {
 		o = &ClusterOptions{}
@@ -284,9 +284,10 @@ func (c *Cluster) running() []*server.Server {
 
 // WaitReady waits up to ClusterReady until every running node has a route
 // to every other running node, a running node is the JetStream meta leader
-// and knows every node as a peer (stopped ones too: they stay members),
-// and every running node's JetStream is current with the leader. It fails
-// the test otherwise.
+// and sees every running node online, and every running node's JetStream is
+// current with the leader. It fails the test otherwise. After a Shutdown it
+// waits for the election among the nodes left, which needs a majority of
+// all nodes (stopped ones stay members of the meta group).
 func (c *Cluster) WaitReady() {
 	c.t.Helper()
 	WaitFor(c.t, ClusterReady, c.ready)
@@ -312,8 +313,8 @@ func (c *Cluster) ready() error {
 	if l == nil {
 		return errors.New("no JetStream meta leader")
 	}
-	if p, n := len(l.JetStreamClusterPeers()), c.N(); p != n {
-		return fmt.Errorf("meta leader %s knows %d of %d peers", l.Name(), p, n)
+	if p, n := len(l.JetStreamClusterPeers()), len(ss); p != n {
+		return fmt.Errorf("meta leader %s sees %d of %d running nodes online", l.Name(), p, n)
 	}
 	for _, s := range ss {
 		if !s.JetStreamIsCurrent() {

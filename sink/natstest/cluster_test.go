@@ -83,6 +83,7 @@ func TestRunCluster(t *testing.T) {
 		t.Fatalf("stream leader %q is no node of the cluster", info.Cluster.Leader)
 	}
 	c.Shutdown(down)
+	c.WaitReady()
 	live := (down + 1) % c.N()
 	jsL := connectJS(t, c.URL(live))
 
@@ -131,6 +132,39 @@ func TestRunCluster(t *testing.T) {
 		}
 		return nil
 	})
+}
+
+// TestRunClusterSizes forms clusters of two and four nodes and publishes to
+// a stream with a replica on each node (at most three) through the last
+// node.
+func TestRunClusterSizes(t *testing.T) {
+	for _, n := range []int{2, 4} {
+		t.Run(fmt.Sprint(n), func(t *testing.T) {
+			c := natstest.RunCluster(t, n)
+			if got := len(c.URLs()); got != n {
+				t.Fatalf("%d client URLs", got)
+			}
+			ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+			defer cancel()
+			js := connectJS(t, c.ConnectURL())
+			if _, err := js.CreateStream(ctx, jetstream.StreamConfig{
+				Name: "T", Subjects: []string{"t.>"}, Replicas: min(n, 3),
+			}); err != nil {
+				t.Fatal(err)
+			}
+			jsLast := connectJS(t, c.URL(n-1))
+			ack, err := jsLast.Publish(ctx, "t.x", []byte("m0"))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if ack.Stream != "T" || ack.Sequence != 1 {
+				t.Errorf("ack %+v, want stream T sequence 1", ack)
+			}
+			if got := readAll(ctx, t, jsLast, 1); got != "m0" {
+				t.Errorf("read %q", got)
+			}
+		})
+	}
 }
 
 // readAll reads the first n messages of stream T with an ordered consumer
