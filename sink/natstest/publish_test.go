@@ -2,6 +2,7 @@ package natstest_test
 
 import (
 	"context"
+	"fmt"
 	"strconv"
 	"sync"
 	"testing"
@@ -47,38 +48,35 @@ func setupStream(t testing.TB, url string, replicas int) (*nats.Conn, jetstream.
 
 // storedOrder reads every message of stream K in stream order and returns
 // the record numbers of their payloads.
-func storedOrder(t *testing.T, nc *nats.Conn) []int {
-	t.Helper()
+func storedOrder(ctx context.Context, nc *nats.Conn) ([]int, error) {
 	js, err := jetstream.New(nc)
 	if err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
-	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
-	defer cancel()
 	st, err := js.Stream(ctx, "K")
 	if err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
 	n := int(st.CachedInfo().State.Msgs)
 	cons, err := js.OrderedConsumer(ctx, "K", jetstream.OrderedConsumerConfig{})
 	if err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
 	var got []int
 	for len(got) < n {
 		batch, err := cons.Fetch(min(n-len(got), 1000), jetstream.FetchMaxWait(5*time.Second))
 		if err != nil {
-			t.Fatal(err)
+			return nil, err
 		}
 		for m := range batch.Messages() {
 			i, err := strconv.Atoi(string(m.Data()))
 			if err != nil {
-				t.Fatalf("payload %q", m.Data())
+				return nil, fmt.Errorf("payload %q", m.Data())
 			}
 			got = append(got, i)
 		}
 	}
-	return got
+	return got, nil
 }
 
 // TestPublishAll publishes keyed records to one server, checks they are
@@ -99,7 +97,7 @@ func TestPublishAll(t *testing.T) {
 	if res.Records != n || res.Duplicates != 0 || res.First != 1 || res.Last != n {
 		t.Errorf("first run: %+v, want %d records in sequences 1..%d", res, n, n)
 	}
-	got := storedOrder(t, nc)
+	got := eventually(t, func() ([]int, error) { return storedOrder(ctx, nc) })
 	for i, r := range got {
 		if r != i {
 			t.Fatalf("stream position %d holds record %d", i, r)
@@ -116,7 +114,7 @@ func TestPublishAll(t *testing.T) {
 	if again.Records != n || again.Duplicates != n {
 		t.Errorf("second run with the same IDs: %+v, want %d duplicates", again, n)
 	}
-	if got := storedOrder(t, nc); len(got) != n {
+	if got := eventually(t, func() ([]int, error) { return storedOrder(ctx, nc) }); len(got) != n {
 		t.Errorf("after the second run the stream holds %d records, want %d", len(got), n)
 	}
 }
@@ -191,7 +189,7 @@ func TestPublishAllFailover(t *testing.T) {
 	}
 	defer check.Close()
 	seen := make([]int, n)
-	for _, r := range storedOrder(t, check) {
+	for _, r := range eventually(t, func() ([]int, error) { return storedOrder(ctx, check) }) {
 		if r < 0 || r >= n {
 			t.Fatalf("record %d stored", r)
 		}
