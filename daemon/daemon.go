@@ -336,7 +336,9 @@ func (d *Daemon) restoreModels() error {
 		w.restored = w.restore()
 	}
 	for _, t := range d.templates {
-		t.loadIndex()
+		if t.shared == nil {
+			t.loadIndex(t.parts[0]) // a shared partition's when it is taken
+		}
 	}
 	return nil
 }

@@ -83,6 +83,10 @@ type worker struct {
 	// onSaved, if set, is called on the model goroutine after each saved
 	// checkpoint with its stream position and state size (templates).
 	onSaved func(pos uint64, size int)
+	// mayWrite, if set, is asked before each checkpoint (on the model
+	// goroutine): false means the instance's partition is no longer held
+	// by this process, and nothing is saved.
+	mayWrite func() bool
 	// tick is how often the model goroutine idles and checks publication.
 	tick time.Duration
 	// unloading is set before stop by a template unloading an idle
