@@ -62,6 +62,10 @@ type share struct {
 	mu      sync.Mutex
 	members []string  // the live members, sorted (mu)
 	changed time.Time // when the view last changed; zero once settled (mu)
+	// absent counts the reads in a row that missed each member of the
+	// view; one is left out after two (a key rewritten while the bucket
+	// is listed can be missed once). watch's goroutine only.
+	absent map[string]int
 }
 
 // pinGroup is the priority group of the partition consumers.
@@ -173,6 +177,18 @@ func (sh *share) refresh(ctx context.Context) {
 	}
 	if !slices.Contains(ms, sh.self) {
 		ms = append(ms, sh.self)
+	}
+	if sh.absent == nil {
+		sh.absent = make(map[string]int)
+	}
+	for _, m := range sh.view() {
+		if slices.Contains(ms, m) {
+			delete(sh.absent, m)
+		} else if sh.absent[m]++; sh.absent[m] < 2 {
+			ms = append(ms, m)
+		} else {
+			delete(sh.absent, m)
+		}
 	}
 	slices.Sort(ms)
 	sh.mu.Lock()
@@ -306,9 +322,10 @@ func (sh *share) read(pt *part) {
 }
 
 // deliver dispatches one pulled batch of partition pt. The first record
-// under a new pin id takes the partition (the rest of the batch, read
-// before the consumer's reset, is dropped). It returns false once the
-// intake stops.
+// under a new pin id takes the partition: the rest of the batch is
+// dropped, and the consumer reset only once the pull has ended (a pull
+// still open would receive, and lose, the first records after the reset).
+// It returns false once the intake stops.
 func (sh *share) deliver(pt *part, b jetstream.MessageBatch) bool {
 	defer func() {
 		for range b.Messages() { // what is left (a stop, a new pin)
@@ -319,6 +336,8 @@ func (sh *share) deliver(pt *part, b jetstream.MessageBatch) bool {
 		if cur := pt.pin.Load(); !pt.held.Load() || cur == nil || *cur != pin {
 			if pt.held.Load() {
 				sh.lose(pt, "the server pinned it again")
+			}
+			for range b.Messages() { // the pull ends before the reset
 			}
 			sh.take(pt, pin)
 			return true

@@ -1,0 +1,277 @@
+package daemon
+
+import (
+	"log/slog"
+	"os"
+	"fmt"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"lariat/config"
+	"lariat/sink/checkpoint"
+	"lariat/sink/natstest"
+)
+
+// sharedConfig is one process's configuration of the shared template
+// tests: the trip template in parts partitions with a takeover of 2 s,
+// checkpoints in the shared bucket every 50 records of an instance or
+// every second.
+func sharedConfig(t *testing.T, url string, parts int) *config.Config {
+	t.Helper()
+	m := tripTemplate(0)
+	m.Instances.Takeover = config.Duration(2 * time.Second)
+	cfg := templateConfig(t, url, t.TempDir(), m)
+	cfg.Models[0].Instances.Partitions = parts
+	cfg.Checkpoint.Store = config.CheckpointBucket
+	cfg.Checkpoint.Records = 50
+	cfg.Checkpoint.Interval = config.Duration(time.Second)
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	return cfg
+}
+
+// holders returns, for each partition of the trip template, the indexes
+// of the daemons (nil ones are skipped) that hold it.
+func holders(ds []*Daemon) [][]int {
+	var out [][]int
+	for i, d := range ds {
+		if d == nil {
+			continue
+		}
+		tp := d.tmpl["trip"]
+		if out == nil {
+			out = make([][]int, len(tp.parts))
+		}
+		for _, pt := range tp.parts {
+			if pt.held.Load() {
+				out[pt.n] = append(out[pt.n], i)
+			}
+		}
+	}
+	return out
+}
+
+// balanced returns nil once every partition is held by exactly one of
+// the daemons, where each daemon's view of the live processes puts it.
+func balanced(ds []*Daemon) error {
+	for n, hs := range holders(ds) {
+		if len(hs) != 1 {
+			return fmt.Errorf("partition %d held by %v", n, hs)
+		}
+	}
+	for i, d := range ds {
+		if d == nil {
+			continue
+		}
+		sh := d.tmpl["trip"].shared
+		for _, pt := range d.tmpl["trip"].parts {
+			if pt.held.Load() != sh.wants(pt.n) {
+				return fmt.Errorf("process %d: partition %d held %v, assigned here %v", i, pt.n, pt.held.Load(), !pt.held.Load())
+			}
+		}
+	}
+	return nil
+}
+
+// holderOf returns the daemon holding key's instance (its partition held
+// and the key known there), or an error unless exactly one does.
+func holderOf(ds []*Daemon, key string) (*Daemon, error) {
+	var got []*Daemon
+	for _, d := range ds {
+		if d == nil {
+			continue
+		}
+		tp := d.tmpl["trip"]
+		tp.mu.Lock()
+		in := tp.inst[key]
+		if in != nil && in.p.held.Load() {
+			got = append(got, d)
+		}
+		tp.mu.Unlock()
+	}
+	if len(got) != 1 {
+		return nil, fmt.Errorf("key %s held by %d processes", key, len(got))
+	}
+	return got[0], nil
+}
+
+// waitKeys waits until every key's instance, in the one process that
+// holds it, has applied as many records as were published for it.
+func waitKeys(t *testing.T, ds []*Daemon, kr keyedRecords, within time.Duration) {
+	t.Helper()
+	natstest.WaitFor(t, within, func() error {
+		for _, k := range kr.keys {
+			d, err := holderOf(ds, k)
+			if err != nil {
+				return err
+			}
+			w, ok := d.tmpl["trip"].lookup(k)
+			if !ok {
+				return fmt.Errorf("key %s not loaded", k)
+			}
+			var n uint64
+			if !w.exec(func() { n, _ = w.pipe.Counts() }) {
+				return fmt.Errorf("key %s stopped", k)
+			}
+			if n != uint64(kr.per[k]) || len(w.queue) > 0 {
+				return fmt.Errorf("key %s applied %d of %d", k, n, kr.per[k])
+			}
+		}
+		return nil
+	})
+}
+
+// checkShared compares every key's instance, in the process that holds
+// it, with the reference process's: each record applied once, the ladder
+// bit-identical.
+func checkShared(t *testing.T, ds []*Daemon, ref *Daemon, kr keyedRecords) {
+	t.Helper()
+	for _, k := range kr.keys {
+		d, err := holderOf(ds, k)
+		if err != nil {
+			t.Error(err)
+			continue
+		}
+		n, ms := instanceState(t, d, "trip", k)
+		rn, rms := instanceState(t, ref, "trip", k)
+		if n != uint64(kr.per[k]) || rn != n {
+			t.Errorf("instance %s applied %d records (reference %d), published %d", k, n, rn, kr.per[k])
+		}
+		if err := sameBits(rms, ms); err != nil {
+			t.Errorf("instance %s differs from the reference: %v", k, err)
+		}
+	}
+}
+
+// sharedRun is one run of the shared-partition scenario: three processes
+// (urls[i] is the server process i connects to) share a 50-key template in
+// parts partitions; two start, the third joins while records flow, then
+// the first dies mid-stream (connection closed, nothing it would write
+// afterwards reaches the store) while records flow.
+type sharedRun struct {
+	join, takeover time.Duration // measured: join → balanced, death → balanced
+}
+
+func runShared(t *testing.T, urls []string, parts int, ref *Daemon, kr keyedRecords) sharedRun {
+	t.Helper()
+	n := len(kr.data)
+	var dead atomic.Bool
+	a, err := New(sharedConfig(t, urls[0], parts), withoutIdle(), dbg("A"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	a.ckptWrap = func(s checkpoint.Store) checkpoint.Store { return deadStore{s, &dead} }
+	ta := runDaemon(t, a)
+	tb := startDaemon(t, sharedConfig(t, urls[1], parts), withoutIdle(), dbg("B"))
+	ds := []*Daemon{a, tb.Daemon, nil}
+	for _, d := range ds[:2] {
+		natstest.WaitFor(t, 10*time.Second, d.Ready)
+	}
+	natstest.WaitFor(t, 10*time.Second, func() error { // each sees the other
+		for _, d := range ds[:2] {
+			if m := d.tmpl["trip"].shared.view(); len(m) != 2 {
+				return fmt.Errorf("members %v", m)
+			}
+		}
+		return nil
+	})
+	publishKeyed(t, urls[2], kr, 0, n/3)
+	natstest.WaitFor(t, 30*time.Second, func() error { return balanced(ds) })
+
+	// C joins while the second third is published.
+	var res sharedRun
+	pubDone := make(chan struct{})
+	go func() { defer close(pubDone); publishPaced(t, urls[2], kr, n/3, 2*n/3, 2*time.Millisecond) }()
+	t0 := time.Now()
+	tc := startDaemon(t, sharedConfig(t, urls[2], parts), withoutIdle(), dbg("C"))
+	ds[2] = tc.Daemon
+	natstest.WaitFor(t, 30*time.Second, func() error { return balanced(ds) })
+	res.join = time.Since(t0)
+	t.Logf("join: partitions %v balanced %v after the third process started", holders(ds), res.join.Round(time.Millisecond))
+	<-pubDone
+
+	// Every partition of A has a checkpoint in the bucket, then A dies
+	// while the last third is published.
+	natstest.WaitFor(t, 30*time.Second, func() error {
+		for _, pt := range a.tmpl["trip"].parts {
+			if pt.held.Load() {
+				if _, _, _, err := a.ckpt.Load(pt.index); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	})
+	pubDone = make(chan struct{})
+	go func() { defer close(pubDone); publishPaced(t, urls[2], kr, 2*n/3, n, 4*time.Millisecond) }()
+	time.Sleep(50 * time.Millisecond) // records in flight when A dies
+	dead.Store(true)
+	a.nc.Close()
+	t0 = time.Now()
+	stopped := make(chan struct{})
+	go func() { defer close(stopped); ta.stop(t) }() // its shutdown fails to write anything
+	ds[0] = nil
+	natstest.WaitFor(t, 30*time.Second, func() error { return balanced(ds) })
+	res.takeover = time.Since(t0)
+	t.Logf("takeover: partitions %v balanced %v after the first process died", holders(ds), res.takeover.Round(time.Millisecond))
+	<-pubDone
+	waitKeys(t, ds, kr, 60*time.Second)
+	checkShared(t, ds, ref, kr)
+	<-stopped
+	return res
+}
+
+// TestSharedPartitions: a 50-key template in 6 partitions shared by three
+// processes on one NATS server (the cluster test is TestSharedCluster);
+// one joins mid-stream, one dies mid-stream. Every instance ends with each
+// of its records applied exactly once and bit-identical to a single
+// process over the same records; the partitions are rebalanced within
+// 10 s of the join and of the death (takeover 2 s). Source: the rules of
+// README "Running more than one", no external source.
+func TestSharedPartitions(t *testing.T) {
+	if testing.Short() {
+		t.Skip("shared partitions: four daemons over 4,000 records with a 2 s takeover")
+	}
+	kr := makeKeyed(50, 80, 500)
+	ref := referenceRun(t, kr)
+	srv := runServer(t, -1, t.TempDir())
+	url := srv.ClientURL()
+	res := runShared(t, []string{url, url, url}, 6, ref, kr)
+	for what, d := range map[string]time.Duration{"join": res.join, "takeover": res.takeover} {
+		if d > 10*time.Second {
+			t.Errorf("%s took %v, want at most 10 s", what, d)
+		}
+	}
+}
+
+// referenceRun applies every record in one process with one partition.
+func referenceRun(t *testing.T, kr keyedRecords) *Daemon {
+	t.Helper()
+	srv := runServer(t, -1, t.TempDir())
+	ref := startDaemon(t, templateConfig(t, srv.ClientURL(), t.TempDir(), tripTemplate(0)), withoutIdle())
+	natstest.WaitFor(t, 10*time.Second, ref.Ready)
+	publishKeyed(t, srv.ClientURL(), kr, 0, len(kr.data))
+	waitRead(t, ref.Daemon, "trip", uint64(len(kr.data)))
+	return ref.Daemon
+}
+
+func dbg(name string) Option {
+	return func(d *Daemon) error {
+		if os.Getenv("LARIAT_DEBUG_LOG") != "" {
+			d.log = slog.New(slog.NewTextHandler(os.Stderr, &slog.HandlerOptions{Level: slog.LevelInfo})).With("proc", name)
+		}
+		return nil
+	}
+}
+
+// publishPaced publishes records [from, to) as publishKeyed does, one
+// every pace at most (records keep arriving while partitions move).
+func publishPaced(t *testing.T, url string, kr keyedRecords, from, to int, pace time.Duration) {
+	t.Helper()
+	for i := from; i < to; i += 10 {
+		publishKeyed(t, url, kr, i, min(i+10, to))
+		time.Sleep(10 * pace)
+	}
+}
