@@ -62,6 +62,8 @@ type share struct {
 	mu      sync.Mutex
 	members []string  // the live members, sorted (mu)
 	changed time.Time // when the view last changed; zero once settled (mu)
+	// assign is the partitions' members under the view assignFor (mu).
+	assign, assignFor []string
 	// absent counts the reads in a row that missed each member of the
 	// view; one is left out after two (a key rewritten while the bucket
 	// is listed can be missed once). watch's goroutine only.
@@ -250,20 +252,47 @@ func (sh *share) settle() {
 	sh.mu.Unlock()
 }
 
-// wants reports whether the view assigns partition n to this process:
-// rendezvous (highest random weight) hashing of the partition over the
-// live members, so that a member joining or leaving moves only the
-// partitions it gains or loses (Thaler & Ravishankar 1998, "Using
-// name-based mappings to increase hit rates", IEEE/ACM Trans. Netw. 6(1)).
+// wants reports whether the view assigns partition n to this process.
 func (sh *share) wants(n int) bool {
-	var best string
-	var top uint64
-	for _, m := range sh.view() {
-		if w := weight(m, n); best == "" || w > top || w == top && m > best {
-			best, top = m, w
-		}
+	sh.mu.Lock()
+	defer sh.mu.Unlock()
+	if sh.assign == nil || !slices.Equal(sh.assignFor, sh.members) {
+		sh.assign, sh.assignFor = assign(sh.members, len(sh.t.parts)), sh.members
 	}
-	return best == sh.self || best == ""
+	return sh.assign[n] == sh.self
+}
+
+// assign spreads partitions 0..parts-1 over the members: rendezvous
+// (highest random weight) hashing, so that a member joining or leaving
+// moves few partitions besides its own (Thaler & Ravishankar 1998, "Using
+// name-based mappings to increase hit rates", IEEE/ACM Trans. Netw.
+// 6(1)), with each member's load bounded by ceil(parts/members), since a
+// few partitions over a few members are far from even by hashing alone
+// (the bound of "consistent hashing with bounded loads", Mirrokni, Thorup
+// & Zadimoghaddam 2018, SODA). Every process with the same view computes
+// the same assignment.
+func assign(members []string, parts int) []string {
+	out := make([]string, parts)
+	if len(members) == 0 {
+		return out
+	}
+	limit := (parts + len(members) - 1) / len(members)
+	load := make(map[string]int, len(members))
+	for n := range parts {
+		var best string
+		var top uint64
+		for _, m := range members {
+			if load[m] >= limit {
+				continue
+			}
+			if w := weight(m, n); best == "" || w > top || w == top && m > best {
+				best, top = m, w
+			}
+		}
+		out[n] = best
+		load[best]++
+	}
+	return out
 }
 
 // weight is member m's rendezvous weight for partition n: FNV-1a of both,

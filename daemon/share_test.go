@@ -1,9 +1,9 @@
 package daemon
 
 import (
+	"fmt"
 	"log/slog"
 	"os"
-	"fmt"
 	"sync/atomic"
 	"testing"
 	"time"
@@ -56,6 +56,19 @@ func holders(ds []*Daemon) [][]int {
 // balanced returns nil once every partition is held by exactly one of
 // the daemons, where each daemon's view of the live processes puts it.
 func balanced(ds []*Daemon) error {
+	live := 0
+	for _, d := range ds {
+		if d != nil {
+			live++
+		}
+	}
+	for i, d := range ds {
+		if d != nil {
+			if v := d.tmpl["trip"].shared.view(); len(v) != live {
+				return fmt.Errorf("process %d sees %d members, %d live", i, len(v), live)
+			}
+		}
+	}
 	for n, hs := range holders(ds) {
 		if len(hs) != 1 {
 			return fmt.Errorf("partition %d held by %v", n, hs)
@@ -204,6 +217,9 @@ func runShared(t *testing.T, urls []string, parts int, ref *Daemon, kr keyedReco
 		}
 		return nil
 	})
+	if len(a.tmpl["trip"].heldParts()) == 0 {
+		t.Fatal("the first process holds no partition")
+	}
 	pubDone = make(chan struct{})
 	go func() { defer close(pubDone); publishPaced(t, urls[2], kr, 2*n/3, n, 4*time.Millisecond) }()
 	time.Sleep(50 * time.Millisecond) // records in flight when A dies
