@@ -2,6 +2,8 @@
 // for conditions, for the tests of every lariat package that talks to NATS.
 // It follows the NATS server's own test harness: loopback, a random port,
 // no logs, no signal handling, JetStream in a temporary directory.
+// RunCluster joins several such servers by routes into a JetStream cluster
+// whose nodes a test can stop and restart.
 //
 // Its functions are safe to call from parallel tests; each server belongs
 // to the test that started it and is shut down when that test ends.
