@@ -70,6 +70,10 @@ type share struct {
 	absent map[string]int
 }
 
+// setupWait bounds the creation of a shared template's stream,
+// consumers and members bucket.
+const setupWait = 30 * time.Second
+
 // pinGroup is the priority group of the partition consumers.
 const pinGroup = "lariat"
 
@@ -108,6 +112,8 @@ func (s *streamIntake) startShared(ctx context.Context, t *template) error {
 	sh.s = s
 	in, cp, m := s.d.cfg.Intake, s.d.cfg.Checkpoint, t.cfg
 	name := streamName(s.d.cfg, m)
+	ctx, cancel := context.WithTimeout(ctx, setupWait) // replicated assets take a while on a cluster
+	defer cancel()
 	st, err := s.js.CreateOrUpdateStream(ctx, jetstream.StreamConfig{
 		Name:             name,
 		Description:      "lariat: labeled records of template " + m.Name + ", by partition",
