@@ -375,6 +375,7 @@ func (d *Daemon) startHTTP(wg *sync.WaitGroup) error {
 		Predictor:    predictor{d},
 		Thresholds:   d, // threshold.go
 		Ready:        d.Ready,
+		Partitions:   d.partitions,
 		Gatherer:     d.reg,
 		MaxBodyBytes: d.cfg.HTTP.MaxBodyBytes,
 		Version:      d.version,

@@ -347,8 +347,12 @@ func (sh *share) read(pt *part) {
 			}
 			continue
 		}
-		if !sh.deliver(pt, b) {
+		got, ok := sh.deliver(pt, b)
+		if !ok {
 			return
+		}
+		if got == 0 && !pt.held.Load() {
+			sh.nudge(pt)
 		}
 		if err := b.Error(); errors.Is(err, jetstream.ErrPinIDMismatch) && pt.held.Load() {
 			sh.lose(pt, "the server pinned another process")
@@ -361,12 +365,13 @@ func (sh *share) read(pt *part) {
 // dropped, and the consumer reset only once the pull has ended (a pull
 // still open would receive, and lose, the first records after the reset).
 // It returns false once the intake stops.
-func (sh *share) deliver(pt *part, b jetstream.MessageBatch) bool {
+func (sh *share) deliver(pt *part, b jetstream.MessageBatch) (got int, ok bool) {
 	defer func() {
 		for range b.Messages() { // what is left (a stop, a new pin)
 		}
 	}()
 	for m := range b.Messages() {
+		got++
 		pin := m.Headers().Get("Nats-Pin-Id")
 		if cur := pt.pin.Load(); !pt.held.Load() || cur == nil || *cur != pin {
 			if pt.held.Load() {
@@ -375,7 +380,7 @@ func (sh *share) deliver(pt *part, b jetstream.MessageBatch) bool {
 			for range b.Messages() { // the pull ends before the reset
 			}
 			sh.take(pt, pin)
-			return true
+			return got, true
 		}
 		meta, err := m.Metadata()
 		if err != nil {
@@ -392,10 +397,51 @@ func (sh *share) deliver(pt *part, b jetstream.MessageBatch) bool {
 			subject = subject[i+1:]
 		}
 		if !sh.t.dispatch(pt, subject, m.Data(), seq, sh.s.stop, nil) {
-			return false
+			return got, false
 		}
 	}
-	return true
+	return got, true
+}
+
+// nudge makes a partition that nobody holds deliver again what a process
+// that died had pulled past the partition's index floor: with no pin and
+// nothing pending, but records delivered beyond the floor, the consumer
+// is reset to the floor + 1, so that the next pull is pinned and takes
+// the partition. (A reset while another process holds the partition only
+// redelivers records its reader passes over.) At most once per takeover
+// period per partition.
+func (sh *share) nudge(pt *part) {
+	if time.Since(pt.nudged) < sh.ttl {
+		return
+	}
+	pt.nudged = time.Now()
+	ctx, cancel := context.WithTimeout(context.Background(), sh.ttl)
+	defer cancel()
+	info, err := pt.cons.Info(ctx)
+	if err != nil || info.NumPending > 0 || pinnedID(info) != "" {
+		return
+	}
+	floor, err := sh.t.indexFloor(pt)
+	if err != nil || info.Delivered.Stream <= floor {
+		return
+	}
+	if _, err := sh.stream.ResetConsumerToSequence(ctx, sh.consumerName(pt.n), floor+1); err != nil {
+		sh.t.log.Warn("partition consumer not reset to its floor", "partition", pt.n, "err", err)
+		return
+	}
+	sh.t.log.Info("partition unheld with records past its floor: delivered again from the floor",
+		"partition", pt.n, "from", floor+1, "delivered", info.Delivered.Stream)
+}
+
+// pinnedID returns the pin id of the consumer's priority group ("" when
+// no client is pinned).
+func pinnedID(info *jetstream.ConsumerInfo) string {
+	for _, g := range info.PriorityGroups {
+		if g.Group == pinGroup {
+			return g.PinnedClientID
+		}
+	}
+	return ""
 }
 
 // take makes partition pt held under pin: its index is read from the
@@ -433,15 +479,7 @@ func (sh *share) mayWrite(pt *part) bool {
 	ctx, cancel := context.WithTimeout(context.Background(), sh.ttl)
 	defer cancel()
 	info, err := pt.cons.Info(ctx)
-	if err != nil {
-		return false
-	}
-	for _, g := range info.PriorityGroups {
-		if g.Group == pinGroup {
-			return g.PinnedClientID == *pin
-		}
-	}
-	return false
+	return err == nil && pinnedID(info) == *pin
 }
 
 // lose drops partition pt at once: another process may hold it. Its
@@ -484,4 +522,23 @@ func (sh *share) unpin(ctx context.Context, pt *part) {
 	if err := sh.stream.UnpinConsumer(ctx, sh.consumerName(pt.n), pinGroup); err != nil {
 		sh.t.log.Warn("partition not unpinned; another process takes it after instances.takeover", "partition", pt.n, "err", err)
 	}
+}
+
+// partitions returns the partitions of each shared template this process
+// holds (for /readyz).
+func (d *Daemon) partitions() map[string][]int {
+	var out map[string][]int
+	for _, t := range d.templates {
+		if t.shared == nil {
+			continue
+		}
+		if out == nil {
+			out = make(map[string][]int)
+		}
+		out[t.name] = t.heldParts()
+		if out[t.name] == nil {
+			out[t.name] = []int{}
+		}
+	}
+	return out
 }

@@ -1,9 +1,14 @@
 package daemon
 
 import (
+	"context"
+	"encoding/json"
+	"errors"
 	"fmt"
 	"log/slog"
+	"net/http"
 	"os"
+	"slices"
 	"sync/atomic"
 	"testing"
 	"time"
@@ -54,8 +59,9 @@ func holders(ds []*Daemon) [][]int {
 	return out
 }
 
-// balanced returns nil once every partition is held by exactly one of
-// the daemons, where each daemon's view of the live processes puts it.
+// balanced returns nil once every process sees every other, and every
+// partition is held by exactly one of them, where its view puts it, or
+// by none with nothing to apply (a quiet partition handed over).
 func balanced(ds []*Daemon) error {
 	live := 0
 	for _, d := range ds {
@@ -70,9 +76,14 @@ func balanced(ds []*Daemon) error {
 			}
 		}
 	}
+	quiet := map[int]bool{}
 	for n, hs := range holders(ds) {
+		if len(hs) == 0 && idle(ds, n) == nil {
+			quiet[n] = true // nothing to apply: taken at its next record
+			continue
+		}
 		if len(hs) != 1 {
-			return fmt.Errorf("partition %d held by %v", n, hs)
+			return fmt.Errorf("partition %d held by %v (%v)", n, hs, idle(ds, n))
 		}
 	}
 	for i, d := range ds {
@@ -81,12 +92,39 @@ func balanced(ds []*Daemon) error {
 		}
 		sh := d.tmpl["trip"].shared
 		for _, pt := range d.tmpl["trip"].parts {
-			if pt.held.Load() != sh.wants(pt.n) {
+			if !quiet[pt.n] && pt.held.Load() != sh.wants(pt.n) {
 				return fmt.Errorf("process %d: partition %d held %v, assigned here %v", i, pt.n, pt.held.Load(), !pt.held.Load())
 			}
 		}
 	}
 	return nil
+}
+
+// idle returns nil if partition n, held by nobody, has nothing to apply:
+// no pin, nothing pending and nothing delivered past its index floor.
+func idle(ds []*Daemon, n int) error {
+	for _, d := range ds {
+		if d == nil {
+			continue
+		}
+		tp := d.tmpl["trip"]
+		pt := tp.parts[n]
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		info, err := pt.cons.Info(ctx)
+		if err != nil {
+			return err
+		}
+		floor, err := tp.indexFloor(pt)
+		if err != nil {
+			return err
+		}
+		if pinnedID(info) != "" || info.NumPending > 0 || info.Delivered.Stream > floor {
+			return fmt.Errorf("pinned %q, %d pending, delivered %d, floor %d", pinnedID(info), info.NumPending, info.Delivered.Stream, floor)
+		}
+		return nil
+	}
+	return errors.New("no process")
 }
 
 // holderOf returns the daemon holding key's instance (its partition held
@@ -163,12 +201,15 @@ func checkShared(t *testing.T, ds []*Daemon, ref *Daemon, kr keyedRecords) {
 // (urls[i] is the server process i connects to) share a 50-key template in
 // parts partitions; two start, the third joins while records flow, then
 // the first dies mid-stream (connection closed, nothing it would write
-// afterwards reaches the store) while records flow.
+// afterwards reaches the store), with records flowing or (quiet) after
+// it pulled every record stored and before any other is published; then
+// the third shuts down while records flow.
 type sharedRun struct {
-	join, takeover time.Duration // measured: join → balanced, death → balanced
+	// measured: a join, a death and a shutdown to the partitions balanced
+	join, takeover, leave time.Duration
 }
 
-func runShared(t *testing.T, urls []string, parts, replicas int, ref *Daemon, kr keyedRecords) sharedRun {
+func runShared(t *testing.T, urls []string, parts, replicas int, quiet bool, ref *Daemon, kr keyedRecords) sharedRun {
 	t.Helper()
 	n := len(kr.data)
 	var dead atomic.Bool
@@ -224,8 +265,17 @@ func runShared(t *testing.T, urls []string, parts, replicas int, ref *Daemon, kr
 		t.Fatal("the first process holds no partition")
 	}
 	pubDone = make(chan struct{})
-	go func() { defer close(pubDone); publishPaced(t, urls[2], kr, 2*n/3, n, 4*time.Millisecond) }()
-	time.Sleep(50 * time.Millisecond) // records in flight when A dies
+	if quiet {
+		// The records are stored and A has pulled them before it dies,
+		// and none follow until its partitions are taken: their takeover
+		// needs no new record.
+		publishKeyed(t, urls[2], kr, 2*n/3, 5*n/6)
+		time.Sleep(300 * time.Millisecond)
+		close(pubDone)
+	} else {
+		go func() { defer close(pubDone); publishPaced(t, urls[2], kr, 2*n/3, 5*n/6, 4*time.Millisecond) }()
+		time.Sleep(50 * time.Millisecond) // records in flight when A dies
+	}
 	dead.Store(true)
 	a.nc.Close()
 	t0 = time.Now()
@@ -236,18 +286,60 @@ func runShared(t *testing.T, urls []string, parts, replicas int, ref *Daemon, kr
 	res.takeover = time.Since(t0)
 	t.Logf("takeover: partitions %v balanced %v after the first process died", holders(ds), res.takeover.Round(time.Millisecond))
 	<-pubDone
+	checkReadyz(t, ds)
+
+	// C shuts down while the rest is published: it hands its partitions
+	// over (applies, saves, unpins) and B takes them.
+	pubDone = make(chan struct{})
+	go func() { defer close(pubDone); publishPaced(t, urls[1], kr, 5*n/6, n, 4*time.Millisecond) }()
+	time.Sleep(50 * time.Millisecond)
+	t0 = time.Now()
+	if err := tc.stop(t); err != nil {
+		t.Errorf("the third process's shutdown: %v", err)
+	}
+	ds[2] = nil
+	natstest.WaitFor(t, 30*time.Second, func() error { return balanced(ds) })
+	res.leave = time.Since(t0)
+	t.Logf("shutdown: partitions %v balanced %v after the third process was told to stop", holders(ds), res.leave.Round(time.Millisecond))
+	<-pubDone
 	waitKeys(t, ds, kr, 60*time.Second)
 	checkShared(t, ds, ref, kr)
 	<-stopped
 	return res
 }
 
+// checkReadyz checks that /readyz lists the partitions each process
+// holds.
+func checkReadyz(t *testing.T, ds []*Daemon) {
+	t.Helper()
+	for i, d := range ds {
+		if d == nil {
+			continue
+		}
+		resp, err := http.Get("http://" + d.HTTPAddr() + "/readyz")
+		if err != nil {
+			t.Fatal(err)
+		}
+		var r struct {
+			Status     string
+			Partitions map[string][]int
+		}
+		err = json.NewDecoder(resp.Body).Decode(&r)
+		resp.Body.Close()
+		if want := d.tmpl["trip"].heldParts(); err != nil || r.Status != "ready" || !slices.Equal(r.Partitions["trip"], want) {
+			t.Errorf("process %d: /readyz %+v (%v), holds %v", i, r, err, want)
+		}
+	}
+}
+
 // TestSharedPartitions: a 50-key template in 6 partitions shared by three
 // processes on one NATS server (the cluster test is TestSharedCluster);
-// one joins mid-stream, one dies mid-stream. Every instance ends with each
-// of its records applied exactly once and bit-identical to a single
-// process over the same records; the partitions are rebalanced within
-// 10 s of the join and of the death (takeover 2 s). Source: the rules of
+// one joins mid-stream, one dies after it pulled every record stored (its
+// partitions are taken with no new record), one shuts down mid-stream.
+// Every instance ends with each of its records applied exactly once and
+// bit-identical to a single process over the same records; the
+// partitions are rebalanced within 10 s of the join, the death and the
+// shutdown (takeover 2 s). Source: the rules of
 // README "Running more than one", no external source.
 func TestSharedPartitions(t *testing.T) {
 	if testing.Short() {
@@ -257,8 +349,8 @@ func TestSharedPartitions(t *testing.T) {
 	ref := referenceRun(t, kr)
 	srv := runServer(t, -1, t.TempDir())
 	url := srv.ClientURL()
-	res := runShared(t, []string{url, url, url}, 6, 1, ref, kr)
-	for what, d := range map[string]time.Duration{"join": res.join, "takeover": res.takeover} {
+	res := runShared(t, []string{url, url, url}, 6, 1, true, ref, kr)
+	for what, d := range map[string]time.Duration{"join": res.join, "takeover": res.takeover, "shutdown": res.leave} {
 		if d > 10*time.Second {
 			t.Errorf("%s took %v, want at most 10 s", what, d)
 		}
@@ -269,11 +361,12 @@ func TestSharedPartitions(t *testing.T) {
 // NATS cluster (natstest.RunCluster), each process connected to another
 // node, the stream, the partition consumers, the members bucket and the
 // checkpoint bucket held by three servers (replicas 3): 50 keys, 6
-// partitions, one process joins and one dies mid-stream; every instance
+// partitions, one process joins, one dies and one shuts down mid-stream,
+// records flowing; every instance
 // ends bit-identical to a single process over the same per-key records,
 // each record applied once, and the partitions are rebalanced within
-// 10 s of the join and of the death (takeover 2 s). Source: the rules of
-// README "Running more than one", no external source.
+// 10 s of each (takeover 2 s). Source: the rules of README "Running more
+// than one", no external source.
 func TestSharedCluster(t *testing.T) {
 	if testing.Short() {
 		t.Skip("cluster: three NATS servers, four daemons, 4,000 records, a 2 s takeover")
@@ -281,8 +374,8 @@ func TestSharedCluster(t *testing.T) {
 	kr := makeKeyed(50, 80, 700)
 	ref := referenceRun(t, kr)
 	c := natstest.RunCluster(t, 3)
-	res := runShared(t, c.URLs(), 6, 3, ref, kr)
-	for what, d := range map[string]time.Duration{"join": res.join, "takeover": res.takeover} {
+	res := runShared(t, c.URLs(), 6, 3, false, ref, kr)
+	for what, d := range map[string]time.Duration{"join": res.join, "takeover": res.takeover, "shutdown": res.leave} {
 		if d > 10*time.Second {
 			t.Errorf("%s took %v, want at most 10 s", what, d)
 		}

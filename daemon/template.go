@@ -82,6 +82,9 @@ type part struct {
 	pin  atomic.Pointer[string]
 	cons jetstream.Consumer
 	last uint64 // the last sequence the reader passed on (reader goroutine)
+	// nudged is when the reader last checked an unheld partition for
+	// records a dead process left unread (reader goroutine).
+	nudged time.Time
 }
 
 // instance is one key of a template. w is nil while it is unloaded.
@@ -421,6 +424,26 @@ func (t *template) forget(pt *part) {
 			delete(t.inst, k)
 		}
 	}
+}
+
+// indexFloor reads partition pt's saved index floor (0 without an index).
+func (t *template) indexFloor(pt *part) (uint64, error) {
+	payload, _, _, err := t.d.ckpt.Load(pt.index)
+	if errors.Is(err, checkpoint.ErrNotFound) {
+		return 0, nil
+	}
+	if err != nil {
+		return 0, err
+	}
+	v, n := binary.Uvarint(payload)
+	if n <= 0 || v != indexFormat {
+		return 0, fmt.Errorf("template index format %d (this build reads %d)", v, indexFormat)
+	}
+	f, m := binary.Uvarint(payload[n:])
+	if m <= 0 {
+		return 0, errors.New("template index truncated")
+	}
+	return f, nil
 }
 
 func (t *template) decodeIndex(pt *part, b []byte) error {
