@@ -22,7 +22,7 @@ import (
 // tests: the trip template in parts partitions with a takeover of 2 s,
 // checkpoints in the shared bucket every 50 records of an instance or
 // every second.
-func sharedConfig(t *testing.T, url string, parts, replicas int) *config.Config {
+func sharedConfig(t testing.TB, url string, parts, replicas int) *config.Config {
 	t.Helper()
 	m := tripTemplate(0)
 	m.Instances.Takeover = config.Duration(2 * time.Second)

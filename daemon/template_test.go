@@ -29,7 +29,7 @@ func tripTemplate(idle time.Duration) config.Model {
 
 // templateConfig is one daemon's configuration for the template tests,
 // against the external server at url with its own data_dir.
-func templateConfig(t *testing.T, url, dataDir string, m config.Model) *config.Config {
+func templateConfig(t testing.TB, url, dataDir string, m config.Model) *config.Config {
 	t.Helper()
 	cfg := testConfigMode(t, config.IntakeDurable, m)
 	cfg.NATS.URL = url
