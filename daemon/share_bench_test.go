@@ -11,8 +11,8 @@ import (
 	"lariat/sink/natstest"
 )
 
-// BenchmarkSharedThroughput measures a 50-key template in 6 partitions
-// shared by 1, 2 and 3 lariat processes, all in this test process, on one
+// BenchmarkSharedThroughput measures a 50-key template in 24 partitions
+// shared by 1, 2, 3 and 8 lariat processes, all in this test process, on one
 // embedded NATS server, and the same template unshared (one partition,
 // one ordered reader) in one process: records per second from the first
 // of 50,000 records published (asynchronously, after one record per key has spread
@@ -25,8 +25,8 @@ import (
 //	go test -run '^$' -bench SharedThroughput -benchtime 1x ./daemon/
 func BenchmarkSharedThroughput(b *testing.B) {
 	b.Run("unshared", func(b *testing.B) { benchShared(b, 1, 1) })
-	for _, procs := range []int{1, 2, 3} {
-		b.Run(fmt.Sprintf("processes=%d", procs), func(b *testing.B) { benchShared(b, procs, 6) })
+	for _, procs := range []int{1, 2, 3, 8} {
+		b.Run(fmt.Sprintf("processes=%d", procs), func(b *testing.B) { benchShared(b, procs, 24) })
 	}
 }
 
