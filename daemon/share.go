@@ -408,10 +408,10 @@ func (sh *share) deliver(pt *part, b jetstream.MessageBatch) (got int, ok bool) 
 // nothing pending, but records delivered beyond the floor, the consumer
 // is reset to the floor + 1, so that the next pull is pinned and takes
 // the partition. (A reset while another process holds the partition only
-// redelivers records its reader passes over.) At most once per takeover
-// period per partition.
+// redelivers records its reader passes over.) At most once every two
+// pulls per partition.
 func (sh *share) nudge(pt *part) {
-	if time.Since(pt.nudged) < sh.ttl {
+	if time.Since(pt.nudged) < 2*sh.wait {
 		return
 	}
 	pt.nudged = time.Now()
@@ -476,11 +476,24 @@ func (sh *share) mayWrite(pt *part) bool {
 	if !pt.held.Load() || pin == nil {
 		return false
 	}
-	ctx, cancel := context.WithTimeout(context.Background(), sh.ttl)
+	if f := pt.checkFailed.Load(); f != 0 && time.Since(time.Unix(0, f)) < pinCheckWait {
+		return false // the server did not answer just now: no need to wait again
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), min(sh.ttl, pinCheckWait))
 	defer cancel()
 	info, err := pt.cons.Info(ctx)
-	return err == nil && pinnedID(info) == *pin
+	if err != nil {
+		pt.checkFailed.Store(time.Now().UnixNano())
+		return false
+	}
+	pt.checkFailed.Store(0)
+	return pinnedID(info) == *pin
 }
+
+// pinCheckWait bounds a pin check; a check that failed makes the
+// partition's saves fail at once for as long (a shutdown cut off from NATS
+// does not wait once per instance).
+const pinCheckWait = time.Second
 
 // lose drops partition pt at once: another process may hold it. Its
 // instances stop without a checkpoint (mayWrite is false from now on)

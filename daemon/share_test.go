@@ -393,6 +393,8 @@ func referenceRun(t *testing.T, kr keyedRecords) *Daemon {
 	return ref.Daemon
 }
 
+// dbg logs the daemon's lines at info to stderr, marked with name, when
+// LARIAT_DEBUG_LOG is set (the shared tests are quiet otherwise).
 func dbg(name string) Option {
 	return func(d *Daemon) error {
 		if os.Getenv("LARIAT_DEBUG_LOG") != "" {

@@ -85,6 +85,9 @@ type part struct {
 	// nudged is when the reader last checked an unheld partition for
 	// records a dead process left unread (reader goroutine).
 	nudged time.Time
+	// checkFailed is when a pin check last went unanswered (Unix ns; 0:
+	// the last one was answered).
+	checkFailed atomic.Int64
 }
 
 // instance is one key of a template. w is nil while it is unloaded.
