@@ -235,7 +235,8 @@ func (sh *share) watch() {
 }
 
 // settle observes the rebalance time once every partition is where the
-// current view puts it.
+// current view puts it (one assigned here and quiet, with nothing to
+// apply, counts as held: it is taken at its next record).
 func (sh *share) settle() {
 	sh.mu.Lock()
 	changed := sh.changed
@@ -244,7 +245,7 @@ func (sh *share) settle() {
 		return
 	}
 	for _, pt := range sh.t.parts {
-		if pt.held.Load() != sh.wants(pt.n) {
+		if held := pt.held.Load(); sh.wants(pt.n) && !held && !pt.quiet.Load() || !sh.wants(pt.n) && held {
 			return
 		}
 	}
@@ -417,12 +418,17 @@ func (sh *share) nudge(pt *part) {
 	pt.nudged = time.Now()
 	ctx, cancel := context.WithTimeout(context.Background(), sh.ttl)
 	defer cancel()
+	pt.quiet.Store(false)
 	info, err := pt.cons.Info(ctx)
 	if err != nil || info.NumPending > 0 || pinnedID(info) != "" {
 		return
 	}
 	floor, err := sh.t.indexFloor(pt)
-	if err != nil || info.Delivered.Stream <= floor {
+	if err != nil {
+		return
+	}
+	if info.Delivered.Stream <= floor {
+		pt.quiet.Store(true)
 		return
 	}
 	if _, err := sh.stream.ResetConsumerToSequence(ctx, sh.consumerName(pt.n), floor+1); err != nil {
@@ -461,6 +467,7 @@ func (sh *share) take(pt *part, pin string) {
 		return
 	}
 	pt.last = pt.floor
+	pt.quiet.Store(false)
 	pt.pin.Store(&pin)
 	pt.held.Store(true)
 	t.d.tm.Takeovers.WithLabelValues(t.name).Inc()

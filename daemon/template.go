@@ -88,6 +88,10 @@ type part struct {
 	// checkFailed is when a pin check last went unanswered (Unix ns; 0:
 	// the last one was answered).
 	checkFailed atomic.Int64
+	// quiet is set when the reader found the unheld partition with
+	// nothing to apply: no pin, nothing pending, nothing delivered past
+	// its floor.
+	quiet atomic.Bool
 }
 
 // instance is one key of a template. w is nil while it is unloaded.
