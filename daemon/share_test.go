@@ -413,3 +413,67 @@ func publishPaced(t *testing.T, url string, kr keyedRecords, from, to int, pace 
 		time.Sleep(10 * pace)
 	}
 }
+
+// TestAssign: every partition goes to a member, no member gets more than
+// ⌈P/N⌉, and the result does not depend on the order the members were
+// read in (every process with the same view computes the same). Source:
+// rendezvous hashing (Thaler & Ravishankar 1998) with bounded loads
+// (Mirrokni, Thorup & Zadimoghaddam 2018); the properties are checked,
+// not values.
+func TestAssign(t *testing.T) {
+	for _, c := range []struct {
+		members []string
+		parts   int
+	}{
+		{[]string{"a"}, 6},
+		{[]string{"a", "b"}, 6},
+		{[]string{"a", "b", "c"}, 6},
+		{[]string{"0123abcd", "4567ef01", "89ab2345", "cdef6789"}, 12},
+		{[]string{"m1", "m2", "m3", "m4", "m5", "m6", "m7", "m8"}, 24},
+		{[]string{"a", "b", "c"}, 2}, // fewer partitions than members
+	} {
+		t.Run(fmt.Sprintf("%d members, %d partitions", len(c.members), c.parts), func(t *testing.T) {
+			got := assign(c.members, c.parts)
+			limit := (c.parts + len(c.members) - 1) / len(c.members)
+			load := map[string]int{}
+			for n, m := range got {
+				if !slices.Contains(c.members, m) {
+					t.Fatalf("partition %d assigned to %q", n, m)
+				}
+				load[m]++
+			}
+			for m, l := range load {
+				if l > limit {
+					t.Errorf("member %s has %d partitions, bound %d", m, l, limit)
+				}
+			}
+			rev := slices.Clone(c.members)
+			slices.Reverse(rev)
+			if again := assign(rev, c.parts); !slices.Equal(again, got) {
+				t.Errorf("order of the members changes the assignment: %v, %v", got, again)
+			}
+		})
+	}
+}
+
+// TestTransform: the stream's subject transform puts the server's
+// partition() of the key wildcard in front of the subject. Source: the
+// NATS server's subject mapping functions (nats-server v2.15.2,
+// server/subject_transform.go: partition(n, wildcard indexes...)).
+func TestTransform(t *testing.T) {
+	for _, c := range []struct {
+		subject  string
+		token    int
+		parts    int
+		wantDest string
+	}{
+		{"plant.*.trip", 2, 6, "{{partition(6,1)}}.plant.{{wildcard(1)}}.trip"},
+		{"site.*.pump.*.trip", 4, 12, "{{partition(12,2)}}.site.{{wildcard(1)}}.pump.{{wildcard(2)}}.trip"},
+	} {
+		m := config.Model{Subject: c.subject, Instances: config.Instances{KeyToken: c.token, Partitions: c.parts}}
+		tr := transform(&m)
+		if tr.Source != c.subject || tr.Destination != c.wantDest {
+			t.Errorf("%s: transform %s -> %s, want -> %s", c.subject, tr.Source, tr.Destination, c.wantDest)
+		}
+	}
+}
