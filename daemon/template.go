@@ -431,6 +431,7 @@ func (t *template) forget(pt *part) {
 			delete(t.inst, k)
 		}
 	}
+	t.d.tm.Known.WithLabelValues(t.name).Set(float64(len(t.inst)))
 }
 
 // indexFloor reads partition pt's saved index floor (0 without an index).
