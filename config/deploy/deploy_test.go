@@ -220,14 +220,7 @@ func TestDeployCluster(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	fileOpts := make([]*server.Options, nodes)
-	for i := range nodes {
-		fileOpts[i] = natsOptions(t, i)
-	}
-	c := natstest.RunClusterWith(t, nodes, &natstest.ClusterOptions{
-		Name:   fileOpts[0].Cluster.Name,
-		Modify: func(i int, o *server.Options) { fromFile(t, i, o) },
-	})
+	c, fileOpts := startCluster(t)
 	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
 	defer cancel()
 
@@ -299,6 +292,22 @@ func TestDeployCluster(t *testing.T) {
 			t.Fatalf("sensors were not refused: %v", slices.Collect(maps.Keys(want)))
 		}
 	}
+}
+
+// startCluster starts a cluster of nodes servers on loopback with the
+// accounts, users and route credentials of the server files, and returns it
+// with the files' options.
+func startCluster(t *testing.T) (*natstest.Cluster, []*server.Options) {
+	t.Helper()
+	fileOpts := make([]*server.Options, nodes)
+	for i := range nodes {
+		fileOpts[i] = natsOptions(t, i)
+	}
+	c := natstest.RunClusterWith(t, nodes, &natstest.ClusterOptions{
+		Name:   fileOpts[0].Cluster.Name,
+		Modify: func(i int, o *server.Options) { fromFile(t, i, o) },
+	})
+	return c, fileOpts
 }
 
 // fromFile copies node i's accounts, users and route credentials from its

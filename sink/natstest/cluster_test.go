@@ -89,29 +89,28 @@ func TestRunCluster(t *testing.T) {
 
 	// The first publish after the leader stopped waits for the election of
 	// a new stream leader among the two others.
-	natstest.WaitFor(t, natstest.ClusterReady, func() error {
+	eventually(t, func() (*jetstream.PubAck, error) {
 		pctx, pcancel := context.WithTimeout(ctx, 2*time.Second)
 		defer pcancel()
-		_, err := jsL.Publish(pctx, "t.x", []byte("m10"))
-		return err
+		return jsL.Publish(pctx, "t.x", []byte("m10"), jetstream.WithMsgID("10"))
 	})
+	// Sent again after an error, a message is stored once (its ID).
 	for i := before + 1; i < before+after; i++ {
-		if _, err := jsL.Publish(ctx, "t.x", fmt.Appendf(nil, "m%d", i)); err != nil {
-			t.Fatal(err)
-		}
+		eventually(t, func() (*jetstream.PubAck, error) {
+			return jsL.Publish(ctx, "t.x", fmt.Appendf(nil, "m%d", i), jetstream.WithMsgID(fmt.Sprint(i)))
+		})
 	}
-	got := readAll(ctx, t, jsL, before+after)
+	got := eventually(t, func() (string, error) { return readAll(ctx, jsL, before+after) })
 	if want := wantMessages(before + after); got != want {
 		t.Errorf("messages after node %d stopped:\n got %s\nwant %s", down, got, want)
 	}
-	kvL, err := jsL.KeyValue(ctx, "kv")
-	if err != nil {
-		t.Fatal(err)
-	}
-	e, err := kvL.Get(ctx, "pump-7")
-	if err != nil {
-		t.Fatal(err)
-	}
+	e := eventually(t, func() (jetstream.KeyValueEntry, error) {
+		kvL, err := jsL.KeyValue(ctx, "kv")
+		if err != nil {
+			return nil, err
+		}
+		return kvL.Get(ctx, "pump-7")
+	})
 	if string(e.Value()) != "v1" {
 		t.Errorf("key read through node %d: %q, want v1", live, e.Value())
 	}
@@ -160,7 +159,7 @@ func TestRunClusterSizes(t *testing.T) {
 			if ack.Stream != "T" || ack.Sequence != 1 {
 				t.Errorf("ack %+v, want stream T sequence 1", ack)
 			}
-			if got := readAll(ctx, t, jsLast, 1); got != "m0" {
+			if got := eventually(t, func() (string, error) { return readAll(ctx, jsLast, 1) }); got != "m0" {
 				t.Errorf("read %q", got)
 			}
 		})
@@ -169,26 +168,39 @@ func TestRunClusterSizes(t *testing.T) {
 
 // readAll reads the first n messages of stream T with an ordered consumer
 // and returns their payloads joined by spaces.
-func readAll(ctx context.Context, t *testing.T, js jetstream.JetStream, n int) string {
-	t.Helper()
+func readAll(ctx context.Context, js jetstream.JetStream, n int) (string, error) {
 	cons, err := js.OrderedConsumer(ctx, "T", jetstream.OrderedConsumerConfig{})
 	if err != nil {
-		t.Fatal(err)
+		return "", err
 	}
 	var got []string
 	for len(got) < n {
 		batch, err := cons.Fetch(n-len(got), jetstream.FetchMaxWait(5*time.Second))
 		if err != nil {
-			t.Fatal(err)
+			return "", err
 		}
 		for m := range batch.Messages() {
 			got = append(got, string(m.Data()))
 		}
 		if err := batch.Error(); err != nil && !errors.Is(err, nats.ErrTimeout) {
-			t.Fatal(err)
+			return "", err
 		}
 	}
-	return strings.Join(got, " ")
+	return strings.Join(got, " "), nil
+}
+
+// eventually returns what f returns once it succeeds, polling for as long
+// as a cluster may take to settle after a node left; a client of a cluster
+// retries its requests the same way.
+func eventually[T any](t *testing.T, f func() (T, error)) T {
+	t.Helper()
+	var v T
+	natstest.WaitFor(t, natstest.ClusterReady, func() error {
+		var err error
+		v, err = f()
+		return err
+	})
+	return v
 }
 
 // wantMessages is the payloads m0 … m(n-1) joined by spaces.

@@ -4,6 +4,7 @@
 // no logs, no signal handling, JetStream in a temporary directory.
 // RunCluster joins several such servers by routes into a JetStream cluster
 // whose nodes a test can stop and restart.
+// PublishAll fills streams fast, each record acknowledged and stored once.
 //
 // Its functions are safe to call from parallel tests; each server belongs
 // to the test that started it and is shut down when that test ends.
