@@ -6,32 +6,37 @@ import (
 	"testing"
 	"time"
 
-	"github.com/nats-io/nats.go/jetstream"
-
 	"lariat/sink/natstest"
 )
 
 // BenchmarkSharedThroughput measures a 50-key template in 24 partitions
 // shared by 1, 2, 3 and 8 lariat processes, all in this test process, on one
 // embedded NATS server, and the same template unshared (one partition,
-// one ordered reader) in one process: records per second from the first
-// of 50,000 records published (asynchronously, after one record per key has spread
-// the partitions) to the last applied, the stream, pinned pulls, dispatch,
+// one ordered reader) in one process, then the same with 1,000 keys:
+// records per second from the first of 50,000 records published
+// (natstest.PublishAll, after one record per key has spread the
+// partitions) to the last applied, the stream, pinned pulls, dispatch,
 // model goroutines and checkpoints to the bucket included. On a machine
 // of two cores the processes share the same two cores, so the figures say
-// what sharing costs, not what more machines gain. processes=1 is the
+// what sharing costs, not what more machines gain. unshared is the
 // baseline of the same run.
 //
 //	go test -run '^$' -bench SharedThroughput -benchtime 1x ./daemon/
 func BenchmarkSharedThroughput(b *testing.B) {
-	b.Run("unshared", func(b *testing.B) { benchShared(b, 1, 1) })
+	b.Run("keys=50/unshared", func(b *testing.B) { benchShared(b, 50, 1, 1) })
 	for _, procs := range []int{1, 2, 3, 8} {
-		b.Run(fmt.Sprintf("processes=%d", procs), func(b *testing.B) { benchShared(b, procs, 24) })
+		b.Run(fmt.Sprintf("keys=50/processes=%d", procs), func(b *testing.B) { benchShared(b, 50, procs, 24) })
+	}
+	b.Run("keys=1000/unshared", func(b *testing.B) { benchShared(b, 1000, 1, 1) })
+	for _, procs := range []int{1, 3, 8} {
+		b.Run(fmt.Sprintf("keys=1000/processes=%d", procs), func(b *testing.B) { benchShared(b, 1000, procs, 24) })
 	}
 }
 
-func benchShared(b *testing.B, procs, parts int) {
-	const keys, perKey = 50, 1000
+// benchShared publishes 50,000 records over keys keys (after one per key)
+// to procs processes sharing parts partitions.
+func benchShared(b *testing.B, keys, procs, parts int) {
+	perKey := 50000 / keys
 	kr := makeKeyed(keys, perKey+1, 900)
 	srv := runServer(b, -1, b.TempDir())
 	url := srv.ClientURL()
@@ -53,20 +58,14 @@ func benchShared(b *testing.B, procs, parts int) {
 		return nil
 	})
 	nc := connect(b, url)
-	js, err := jetstream.New(nc)
-	if err != nil {
-		b.Fatal(err)
-	}
 	publish := func(from, to int) {
-		for i := from; i < to; i++ {
-			if _, err := js.PublishAsync(kr.subj[i], kr.data[i]); err != nil {
-				b.Fatal(err)
-			}
-		}
-		select {
-		case <-js.PublishAsyncComplete():
-		case <-time.After(60 * time.Second):
-			b.Fatal("publications not acknowledged")
+		ctx, cancel := context.WithTimeout(context.Background(), 120*time.Second)
+		defer cancel()
+		res, err := natstest.PublishAll(ctx, nc, to-from, func(i int) (string, []byte) {
+			return kr.subj[from+i], kr.data[from+i]
+		}, nil)
+		if err != nil || res.Resent > 0 {
+			b.Fatalf("published %+v: %v", res, err)
 		}
 	}
 	warm := keys // the first record of each key (the interleaving starts with every key)
