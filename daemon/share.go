@@ -468,6 +468,7 @@ func (sh *share) take(pt *part, pin string) {
 	}
 	pt.last = pt.floor
 	pt.quiet.Store(false)
+	pt.stopping.Store(false)
 	pt.pin.Store(&pin)
 	pt.held.Store(true)
 	t.d.tm.Takeovers.WithLabelValues(t.name).Inc()

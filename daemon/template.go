@@ -92,6 +92,9 @@ type part struct {
 	// nothing to apply: no pin, nothing pending, nothing delivered past
 	// its floor.
 	quiet atomic.Bool
+	// stopping is set from the moment a shared partition's instances are
+	// stopped (handed over or lost) until it is taken again.
+	stopping atomic.Bool
 }
 
 // instance is one key of a template. w is nil while it is unloaded.
@@ -172,6 +175,7 @@ func (t *template) heldParts() []int {
 // waits for them; the caller forgets the partition's keys.
 func (t *template) stopPart(pt *part) {
 	t.mu.Lock()
+	pt.stopping.Store(true) // no instance of it is loaded again (lookup)
 	var ins []*instance
 	var ws []*worker
 	for _, in := range t.inst {
@@ -636,7 +640,8 @@ func (t *template) stopAll(ctx context.Context) error {
 }
 
 // lookup returns the worker of instance name (<template>.<key>) if the key
-// is known, loading it if it was unloaded.
+// is known, loading it if it was unloaded (not while its partition is
+// being handed over or lost).
 func (t *template) lookup(key string) (*worker, bool) {
 	t.mu.Lock()
 	defer t.mu.Unlock()
@@ -645,6 +650,9 @@ func (t *template) lookup(key string) (*worker, bool) {
 		return nil, false
 	}
 	if in.w == nil {
+		if in.p.stopping.Load() {
+			return nil, false // its partition is being handed over or lost
+		}
 		if err := t.load(in); err != nil {
 			return nil, false
 		}
