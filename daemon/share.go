@@ -356,7 +356,7 @@ func (sh *share) read(pt *part) {
 			sh.nudge(pt)
 		}
 		if err := b.Error(); errors.Is(err, jetstream.ErrPinIDMismatch) && pt.held.Load() {
-			sh.lose(pt, "the server pinned another process")
+			sh.lose(pt, "the server refused the pin: "+err.Error())
 		}
 	}
 }
@@ -380,7 +380,9 @@ func (sh *share) deliver(pt *part, b jetstream.MessageBatch) (got int, ok bool) 
 			}
 			for range b.Messages() { // the pull ends before the reset
 			}
-			sh.take(pt, pin)
+			if !errors.Is(b.Error(), jetstream.ErrPinIDMismatch) { // else the pin is gone already
+				sh.take(pt, pin)
+			}
 			return got, true
 		}
 		meta, err := m.Metadata()
@@ -504,11 +506,11 @@ func (sh *share) mayWrite(pt *part) bool {
 const pinCheckWait = time.Second
 
 // lose drops partition pt at once: another process may hold it. Its
-// instances stop without a checkpoint (mayWrite is false from now on)
-// and are forgotten.
+// instances drop their queued records and stop without a checkpoint
+// (mayWrite is false from now on), and are forgotten.
 func (sh *share) lose(pt *part, why string) {
 	pt.held.Store(false)
-	sh.t.stopPart(pt)
+	sh.t.stopPart(pt, true)
 	sh.t.mu.Lock()
 	sh.t.forget(pt)
 	sh.t.mu.Unlock()
@@ -520,7 +522,7 @@ func (sh *share) lose(pt *part, why string) {
 // they hold and save, its index is saved, then the pin is given up.
 func (sh *share) release(pt *part) {
 	t := sh.t
-	t.stopPart(pt)
+	t.stopPart(pt, false)
 	t.mu.Lock()
 	err := t.saveIndex(pt, time.Now())
 	t.forget(pt)

@@ -13,6 +13,8 @@ import (
 	"testing"
 	"time"
 
+	"github.com/nats-io/nats.go/jetstream"
+
 	"lariat/config"
 	"lariat/sink/checkpoint"
 	"lariat/sink/natstest"
@@ -475,5 +477,51 @@ func TestTransform(t *testing.T) {
 		if tr.Source != c.subject || tr.Destination != c.wantDest {
 			t.Errorf("%s: transform %s -> %s, want -> %s", c.subject, tr.Source, tr.Destination, c.wantDest)
 		}
+	}
+}
+
+// TestSharedUnpinned: the server's pins of a running process's partitions
+// are taken away from outside (UnpinConsumer, as an operator or a
+// consumer's new leader would) five times while records flow. Each time
+// the process finds its pin refused, drops the partition without a
+// checkpoint (its queued records dropped), is pinned anew and takes the
+// partition back from the checkpoints; every instance still ends with
+// each record applied once and bit-identical to the reference. Source:
+// the rules of README "Running more than one", no external source.
+func TestSharedUnpinned(t *testing.T) {
+	if testing.Short() {
+		t.Skip("shared partitions: 2,000 records paced over seconds, pins taken away")
+	}
+	kr := makeKeyed(20, 100, 1100)
+	ref := referenceRun(t, kr)
+	srv := runServer(t, -1, t.TempDir())
+	url := srv.ClientURL()
+	a := startDaemon(t, sharedConfig(t, url, 3, 1), withoutIdle(), dbg("A"))
+	natstest.WaitFor(t, 30*time.Second, a.Ready)
+	pubDone := make(chan struct{})
+	go func() { defer close(pubDone); publishPaced(t, url, kr, 0, len(kr.data), 2*time.Millisecond) }()
+	js, err := jetstream.New(connect(t, url))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	st, err := js.Stream(ctx, "lariat_trip")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for range 5 {
+		time.Sleep(500 * time.Millisecond)
+		for n := range 3 {
+			if err := st.UnpinConsumer(ctx, fmt.Sprintf("trip_part_%d", n), pinGroup); err != nil {
+				t.Logf("unpin partition %d: %v", n, err)
+			}
+		}
+	}
+	<-pubDone
+	waitKeys(t, []*Daemon{a.Daemon}, kr, 60*time.Second)
+	checkShared(t, []*Daemon{a.Daemon}, ref, kr)
+	if n := metricValue(t, a.Daemon, "lariat_template_partition_takeovers_total", map[string]string{"template": "trip"}); n <= 3 {
+		t.Errorf("%v partitions taken, want more than the first 3 (the pins were taken away)", n)
 	}
 }

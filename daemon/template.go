@@ -171,9 +171,10 @@ func (t *template) heldParts() []int {
 }
 
 // stopPart stops every loaded instance of partition pt as an idle one is
-// unloaded (it applies what it holds and saves, if it still may) and
-// waits for them; the caller forgets the partition's keys.
-func (t *template) stopPart(pt *part) {
+// unloaded (it applies what it holds and saves, if it still may; with
+// abandon, it drops what it holds) and waits for them; the caller forgets
+// the partition's keys.
+func (t *template) stopPart(pt *part, abandon bool) {
 	t.mu.Lock()
 	pt.stopping.Store(true) // no instance of it is loaded again (lookup)
 	var ins []*instance
@@ -183,7 +184,7 @@ func (t *template) stopPart(pt *part) {
 			continue
 		}
 		if w := in.w; w != nil {
-			w.unloading = true
+			w.unloading, w.abandon = true, abandon
 			w.stop()
 			in.w, in.leaving = nil, w
 		}

@@ -93,6 +93,10 @@ type worker struct {
 	// instance: the final document is not published again (nothing
 	// changed since the last one), the checkpoint is still saved.
 	unloading bool
+	// abandon is set before stop by a template that lost the instance's
+	// partition to another process: the queued records are dropped, and
+	// nothing is published or saved.
+	abandon bool
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -302,11 +306,18 @@ func (w *worker) run() {
 			for {
 				select {
 				case it := <-w.queue:
+					if w.abandon {
+						w.free <- it
+						continue
+					}
 					w.apply(it)
 					continue
 				default:
 				}
 				break
+			}
+			if w.abandon {
+				return
 			}
 			now := time.Now()
 			if !w.unloading {
