@@ -3,8 +3,9 @@ package deploy_test
 import (
 	"bufio"
 	"context"
+	"encoding/json"
+	"errors"
 	"fmt"
-	"net"
 	"net/http"
 	"os"
 	"os/exec"
@@ -50,12 +51,11 @@ func TestDeployRun(t *testing.T) {
 
 	bin := buildLariat(t)
 	dir := t.TempDir()
-	port := freePort(t)
 	cfg := rewrite(t, lariatFiles(t)[0], filepath.Join(dir, "lariat.yaml"), map[string]string{
 		"url:":              fmt.Sprintf("url: %q", c.ConnectURL()),
 		"password_file:":    "password_file: " + writeFile(t, dir, "nats.password", lariat.Password+"\n"),
 		"admin_token_file:": "admin_token_file: " + writeFile(t, dir, "admin.token", "test-admin-token\n"),
-		"listen:":           fmt.Sprintf("listen: 127.0.0.1:%d", port),
+		"listen:":           "listen: 127.0.0.1:0",
 		"data_dir:":         "data_dir: " + filepath.Join(dir, "data"),
 	})
 	if out, err := exec.Command(bin, "check", "-c", cfg).CombinedOutput(); err != nil {
@@ -84,7 +84,12 @@ func TestDeployRun(t *testing.T) {
 			t.Logf("lariat's log:\n%s", log)
 		}
 	}()
-	base := fmt.Sprintf("http://127.0.0.1:%d", port)
+	var base string
+	natstest.WaitFor(t, time.Minute, func() error {
+		addr, err := httpAddr(logf.Name())
+		base = "http://" + addr
+		return err
+	})
 	natstest.WaitFor(t, time.Minute, func() error { return get(base + "/readyz") })
 
 	const pumps, n = 12, 600
@@ -208,15 +213,20 @@ func buildLariat(t *testing.T) string {
 	return bin
 }
 
-// freePort returns a loopback port that was free a moment ago.
-func freePort(t *testing.T) int {
-	t.Helper()
-	l, err := net.Listen("tcp", "127.0.0.1:0")
+// httpAddr finds the HTTP address lariat logged when it started (the
+// "lariat running" line of its JSON log).
+func httpAddr(logFile string) (string, error) {
+	data, err := os.ReadFile(logFile)
 	if err != nil {
-		t.Fatal(err)
+		return "", err
 	}
-	defer l.Close()
-	return l.Addr().(*net.TCPAddr).Port
+	for line := range strings.Lines(string(data)) {
+		var l struct{ Msg, HTTP string }
+		if json.Unmarshal([]byte(line), &l) == nil && l.Msg == "lariat running" && l.HTTP != "" {
+			return l.HTTP, nil
+		}
+	}
+	return "", errors.New(`no "lariat running" line with the HTTP address in the log yet`)
 }
 
 // get returns nil if url answers 200.

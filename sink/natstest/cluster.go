@@ -200,6 +200,20 @@ func (c *Cluster) Server(i int) *server.Server {
 	return c.nodes[i].srv
 }
 
+// Index returns the index of the node whose server is called name (as a
+// stream's or the meta group's leader is named in JetStream's answers), or
+// -1 if there is none.
+func (c *Cluster) Index(name string) int {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	for i, nd := range c.nodes {
+		if nd.srv != nil && nd.srv.Name() == name {
+			return i
+		}
+	}
+	return -1
+}
+
 // Running reports whether node i is running.
 func (c *Cluster) Running(i int) bool {
 	c.mu.Lock()

@@ -73,12 +73,7 @@ func TestRunCluster(t *testing.T) {
 	if info.Cluster == nil || info.Cluster.Leader == "" || len(info.Cluster.Replicas) != 2 {
 		t.Fatalf("stream cluster info %+v: want a leader and two replicas", info.Cluster)
 	}
-	down := -1
-	for i := range c.N() {
-		if c.Server(i).Name() == info.Cluster.Leader {
-			down = i
-		}
-	}
+	down := c.Index(info.Cluster.Leader)
 	if down < 0 {
 		t.Fatalf("stream leader %q is no node of the cluster", info.Cluster.Leader)
 	}

@@ -133,12 +133,7 @@ func TestPublishAllFailover(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	leader := -1
-	for i := range c.N() {
-		if c.Server(i).Name() == info.Cluster.Leader {
-			leader = i
-		}
-	}
+	leader := c.Index(info.Cluster.Leader)
 	if leader < 0 {
 		t.Fatalf("stream leader %q is no node", info.Cluster.Leader)
 	}
