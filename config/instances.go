@@ -1,7 +1,9 @@
 package config
 
 import (
+	"fmt"
 	"strings"
+	"time"
 )
 
 // maxInstances bounds instances.max.
@@ -30,6 +32,50 @@ func (m *Model) validateInstances(k *checker, p string) {
 	if m.ScoreSubject != "" {
 		k.add(p+".score_subject", "is not offered for a template (instances.key_token > 0)")
 	}
+	k.intRange(p+".instances.partitions", in.Partitions, 1, maxPartitions)
+	if in.Takeover < Duration(time.Second) || in.Takeover > Duration(5*time.Minute) {
+		k.add(p+".instances.takeover", "%v is out of range (allowed: 1s..5m)", in.Takeover)
+	}
+}
+
+// maxPartitions bounds instances.partitions.
+const maxPartitions = 1024
+
+// validateShared checks what shared partitions need from the rest of the
+// file: checkpoints every process can read, and a stream to read from.
+func (c *Config) validateShared(k *checker) {
+	for i := range c.Models {
+		m := &c.Models[i]
+		if !m.Template() || m.Instances.Partitions <= 1 {
+			continue
+		}
+		p := fmt.Sprintf("models[%d].instances.partitions", i)
+		if c.Checkpoint.Store != CheckpointBucket {
+			k.add(p, "%d partitions are shared among lariat processes and need checkpoint.store: bucket (is %q), so that a process can take over another's partitions", m.Instances.Partitions, c.Checkpoint.Store)
+		}
+		if c.Intake.Mode == IntakeCore {
+			k.add(p, "%d partitions are read from a JetStream stream and need intake.mode auto or durable (is core)", m.Instances.Partitions)
+		}
+	}
+}
+
+// KeyWildcard returns the 1-based position of the template's key token
+// among the "*" tokens of Subject (the argument of the server's
+// partition() mapping function), or 0 for a model that is not a template.
+func (m *Model) KeyWildcard() int {
+	if !m.Template() {
+		return 0
+	}
+	n := 0
+	for i, tok := range strings.Split(m.Subject, ".") {
+		if tok == "*" {
+			n++
+		}
+		if i+1 == m.Instances.KeyToken {
+			return n
+		}
+	}
+	return 0
 }
 
 // InstanceKey returns the instance key of subject for a template whose key

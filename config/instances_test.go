@@ -1,6 +1,10 @@
 package config
 
-import "testing"
+import (
+	"fmt"
+	"strings"
+	"testing"
+)
 
 func TestInstanceKey(t *testing.T) {
 	for _, c := range []struct {
@@ -60,5 +64,55 @@ func TestTemplateConfig(t *testing.T) {
 	d := DefaultModel()
 	if d.Template() {
 		t.Error("the default model is a template")
+	}
+}
+
+// TestSharedPartitions: instances.partitions and instances.takeover are
+// validated, and partitions > 1 need checkpoints in the bucket and a
+// stream. Source: the rules of README "Running more than one".
+func TestSharedPartitions(t *testing.T) {
+	const base = "models:\n  - name: trips\n    subject: plant.*.trip\n    instances: {key_token: 2, partitions: %d, takeover: %s}\n"
+	for _, c := range []struct {
+		name, extra string
+		parts       int
+		takeover    string
+		want        string // "" = valid
+	}{
+		{"default one partition", "", 1, "5s", ""},
+		{"shared with the bucket", "checkpoint: {store: bucket}\n", 8, "5s", ""},
+		{"shared without the bucket", "", 8, "5s", "need checkpoint.store: bucket"},
+		{"shared with core intake", "checkpoint: {store: bucket}\nintake: {mode: core}\n", 8, "5s", "need intake.mode auto or durable"},
+		{"zero partitions", "", 0, "5s", "instances.partitions"},
+		{"too many partitions", "checkpoint: {store: bucket}\n", 1025, "5s", "instances.partitions"},
+		{"takeover too short", "", 1, "500ms", "instances.takeover"},
+		{"takeover too long", "", 1, "6m", "instances.takeover"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			_, err := Parse("t.yaml", fmt.Appendf(nil, c.extra+base, c.parts, c.takeover))
+			switch {
+			case c.want == "" && err != nil:
+				t.Errorf("unexpected error: %v", err)
+			case c.want != "" && (err == nil || !strings.Contains(err.Error(), c.want)):
+				t.Errorf("error %v, want one containing %q", err, c.want)
+			}
+		})
+	}
+}
+
+func TestKeyWildcard(t *testing.T) {
+	for _, c := range []struct {
+		subject string
+		token   int
+		want    int
+	}{
+		{"plant.*.trip", 2, 1},
+		{"site.*.pump.*.trip", 4, 2},
+		{"site.*.pump.*.trip", 2, 1},
+		{"plant.*.trip", 0, 0},
+	} {
+		m := Model{Subject: c.subject, Instances: Instances{KeyToken: c.token}}
+		if got := m.KeyWildcard(); got != c.want {
+			t.Errorf("KeyWildcard(%q, %d) = %d, want %d", c.subject, c.token, got, c.want)
+		}
 	}
 }

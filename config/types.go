@@ -308,6 +308,17 @@ type Instances struct {
 	// after a checkpoint; its next record loads it back from that
 	// checkpoint. 0s never unloads. Default 1h.
 	Idle Duration `yaml:"idle"`
+	// Partitions splits the template's keys into this many partitions,
+	// 1..1024, with the NATS server's subject-mapping partition function;
+	// each partition is applied by one lariat process at a time, and the
+	// processes running the template share the partitions. 1 (the default)
+	// is one reader of every key in this process. More than 1 needs
+	// checkpoint.store bucket and durable intake.
+	Partitions int `yaml:"partitions"`
+	// Takeover is how long a process that stopped reading (dead, or cut
+	// off from NATS) keeps its partitions before another takes them over,
+	// 1s..5m (Partitions > 1). Default 5s.
+	Takeover Duration `yaml:"takeover"`
 }
 
 // Template reports whether the model entry is a template (KeyToken > 0).
@@ -485,7 +496,7 @@ func DefaultModel() Model {
 			Adapt:       true,
 		},
 		Guard:     defaultGuard(),
-		Instances: Instances{Max: 10000, Idle: Duration(time.Hour)},
+		Instances: Instances{Max: 10000, Idle: Duration(time.Hour), Partitions: 1, Takeover: Duration(5 * time.Second)},
 	}
 }
 

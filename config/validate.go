@@ -135,6 +135,7 @@ func (c *Config) validate() Errors {
 	k.oneOf("log.level", c.Log.Level, LevelDebug, LevelInfo, LevelWarn, LevelError)
 	k.oneOf("log.format", c.Log.Format, FormatAuto, FormatText, FormatJSON)
 	c.validateDurability(k)
+	c.validateShared(k)
 	if len(c.Models) == 0 {
 		k.add("models", "at least one model is required")
 	}

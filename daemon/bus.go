@@ -176,6 +176,11 @@ func (d *Daemon) startIntake(ctx context.Context) error {
 		if mode == config.IntakeDurable {
 			return err
 		}
+		for _, t := range d.templates {
+			if t.shared != nil {
+				return fmt.Errorf("%w (template %s has %d partitions, shared through JetStream)", err, t.name, len(t.parts))
+			}
+		}
 		d.log.Warn("JetStream unavailable: intake falls back to core NATS subscriptions (at most once: records published while lariat is down are lost)", "err", err)
 		return d.subscribeModels()
 	}

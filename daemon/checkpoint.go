@@ -139,6 +139,13 @@ func (w *worker) saveDue(now time.Time) bool {
 // is counted and logged at most once a minute; the model goes on.
 func (w *worker) save(now time.Time) {
 	w.sinceSave, w.lastSave = 0, now
+	if w.mayWrite != nil && !w.mayWrite() {
+		// Another process owns the partition now: its checkpoint is the
+		// instance's, and this process's state is not written over it.
+		w.saveFailed = true
+		w.mm.Checkpoint(sink.CheckpointFailed)
+		return
+	}
 	size, err := w.saveErr(now)
 	w.saveFailed = err != nil
 	if err == nil {

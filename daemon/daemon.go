@@ -336,7 +336,9 @@ func (d *Daemon) restoreModels() error {
 		w.restored = w.restore()
 	}
 	for _, t := range d.templates {
-		t.loadIndex()
+		if t.shared == nil {
+			t.loadIndex(t.parts[0]) // a shared partition's when it is taken
+		}
 	}
 	return nil
 }
@@ -373,6 +375,7 @@ func (d *Daemon) startHTTP(wg *sync.WaitGroup) error {
 		Predictor:    predictor{d},
 		Thresholds:   d, // threshold.go
 		Ready:        d.Ready,
+		Partitions:   d.partitions,
 		Gatherer:     d.reg,
 		MaxBodyBytes: d.cfg.HTTP.MaxBodyBytes,
 		Version:      d.version,

@@ -61,7 +61,11 @@ func (s *streamIntake) start(ctx context.Context) error {
 		}
 	}
 	for _, t := range s.d.templates {
-		if err := s.startTemplate(ctx, t); err != nil {
+		start := s.startTemplate
+		if t.shared != nil {
+			start = s.startShared
+		}
+		if err := start(ctx, t); err != nil {
 			return fmt.Errorf("daemon: template %s: %w", t.name, err)
 		}
 	}

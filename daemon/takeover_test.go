@@ -89,7 +89,7 @@ func TestTemplateTakeover(t *testing.T) {
 	publishKeyed(t, url, kr, cut/2, cut)
 	dead.Store(true)
 	a.nc.Close()
-	t.Logf("A died having read %d of the %d records stored", a.tmpl["trip"].read.Load(), cut)
+	t.Logf("A died having read %d of the %d records stored", a.tmpl["trip"].parts[0].read.Load(), cut)
 	if err := ta.stop(t); err == nil {
 		t.Log("the dead process stopped without an error")
 	}

@@ -38,7 +38,7 @@ func benchInstances(b *testing.B, keys int) {
 	m.Name, m.Subject = "bench", "bench.*.rec"
 	m.Features, m.MaxFeatures = names, d
 	m.Window.Records, m.Holdout.Records, m.Retune.Every = 20, 10, 25
-	m.Instances = config.Instances{KeyToken: 2, Max: keys, Idle: 0}
+	m.Instances.KeyToken, m.Instances.Max, m.Instances.Idle = 2, keys, 0
 	cfg := config.Default()
 	cfg.DataDir = b.TempDir()
 	cfg.Models = []config.Model{m}
@@ -61,7 +61,7 @@ func benchInstances(b *testing.B, keys int) {
 	feed := func(n int) {
 		for i := range n {
 			seq++
-			t.dispatch(subjects[i%keys], msgs[int(seq)%len(msgs)], seq, stop, nil)
+			t.dispatch(t.parts[0], subjects[i%keys], msgs[int(seq)%len(msgs)], seq, stop, nil)
 		}
 	}
 	drain := func() {

@@ -6,14 +6,15 @@ import "context"
 // capturing its subject, and starts one reader over every key from the
 // first sequence after the template index's floor.
 func (s *streamIntake) startTemplate(ctx context.Context, t *template) error {
-	it, next, stored, name, err := s.open(ctx, t.cfg, "template", "index", t.floor, t.log, t.skipped, 1024)
+	pt := t.parts[0]
+	it, next, stored, name, err := s.open(ctx, t.cfg, "template", "index", pt.floor, t.log, t.skipped, 1024)
 	if err != nil {
 		return err
 	}
 	t.log.Info("reading the template's stream", "stream", name, "from", next, "stored", stored, "instances", len(t.inst))
 	s.wg.Go(func() {
 		s.consume(it, next-1, t.log, t.skipped, func(subject string, data []byte, seq uint64) bool {
-			return t.dispatch(subject, data, seq, s.stop, nil)
+			return t.dispatch(pt, subject, data, seq, s.stop, nil)
 		})
 	})
 	return nil

@@ -23,13 +23,13 @@ func tripTemplate(idle time.Duration) config.Model {
 	m.Holdout.Records = 50
 	m.Retune.Every = 40
 	m.Queue = 64
-	m.Instances = config.Instances{KeyToken: 2, Max: 1000, Idle: config.Duration(idle)}
+	m.Instances.KeyToken, m.Instances.Max, m.Instances.Idle = 2, 1000, config.Duration(idle)
 	return m
 }
 
 // templateConfig is one daemon's configuration for the template tests,
 // against the external server at url with its own data_dir.
-func templateConfig(t *testing.T, url, dataDir string, m config.Model) *config.Config {
+func templateConfig(t testing.TB, url, dataDir string, m config.Model) *config.Config {
 	t.Helper()
 	cfg := testConfigMode(t, config.IntakeDurable, m)
 	cfg.NATS.URL = url
@@ -112,7 +112,7 @@ func waitRead(t *testing.T, d *Daemon, tmpl string, seq uint64) {
 	t.Helper()
 	tp := d.tmpl[tmpl]
 	natstest.WaitFor(t, 60*time.Second, func() error {
-		if r := tp.read.Load(); r < seq {
+		if r := tp.parts[0].read.Load(); r < seq {
 			return fmt.Errorf("read %d of %d", r, seq)
 		}
 		for _, w := range tp.workers() {

@@ -83,12 +83,20 @@ type worker struct {
 	// onSaved, if set, is called on the model goroutine after each saved
 	// checkpoint with its stream position and state size (templates).
 	onSaved func(pos uint64, size int)
+	// mayWrite, if set, is asked before each checkpoint (on the model
+	// goroutine): false means the instance's partition is no longer held
+	// by this process, and nothing is saved.
+	mayWrite func() bool
 	// tick is how often the model goroutine idles and checks publication.
 	tick time.Duration
 	// unloading is set before stop by a template unloading an idle
 	// instance: the final document is not published again (nothing
 	// changed since the last one), the checkpoint is still saved.
 	unloading bool
+	// abandon is set before stop by a template that lost the instance's
+	// partition to another process: the queued records are dropped, and
+	// nothing is published or saved.
+	abandon bool
 
 	// scoring of the score_subject (nil without one; scoring.go)
 	scoring *scoring
@@ -298,11 +306,18 @@ func (w *worker) run() {
 			for {
 				select {
 				case it := <-w.queue:
+					if w.abandon {
+						w.free <- it
+						continue
+					}
 					w.apply(it)
 					continue
 				default:
 				}
 				break
+			}
+			if w.abandon {
+				return
 			}
 			now := time.Now()
 			if !w.unloading {

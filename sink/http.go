@@ -31,6 +31,7 @@ import (
 //	GET     /v1/alerts?model=             {"alerts": [Alert…]}         404 (unknown model)
 //	GET     /healthz                      {"status": "ok"}
 //	GET     /readyz                       {"status": "ready"}          503 {"status": "not ready", "error": reason}
+//	                                      (+ "partitions": {template: [n, ...]} held, for shared templates)
 //	GET     /metrics                      Prometheus exposition        404 if no Gatherer
 //
 // Any other method on a known path gets 405 with an Allow header. HEAD is
@@ -147,6 +148,9 @@ type HandlerOptions struct {
 	// Ready reports readiness for /readyz (nil error = ready); nil means
 	// always ready.
 	Ready func() error
+	// Partitions, if set, returns the partitions of each shared model
+	// template this process holds, shown by /readyz as "partitions".
+	Partitions func() map[string][]int
 	// Gatherer serves /metrics; nil leaves /metrics unserved (404).
 	Gatherer prometheus.Gatherer
 	// MaxBodyBytes limits request bodies; default DefaultMaxBodyBytes.
@@ -506,6 +510,12 @@ func (h *handler) readyz(w http.ResponseWriter, r *http.Request) {
 	if err := h.ready(); err != nil {
 		writeJSON(w, http.StatusServiceUnavailable, map[string]string{"status": "not ready", "error": err.Error()})
 		return
+	}
+	if h.o.Partitions != nil {
+		if ps := h.o.Partitions(); len(ps) > 0 {
+			writeJSON(w, http.StatusOK, map[string]any{"status": "ready", "partitions": ps})
+			return
+		}
 	}
 	writeJSON(w, http.StatusOK, map[string]string{"status": "ready"})
 }

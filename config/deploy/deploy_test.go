@@ -106,6 +106,11 @@ func TestLariatConfigs(t *testing.T) {
 			if len(c.Models) == 0 || !c.Models[0].Template() {
 				t.Errorf("want a template model entry first, got %d models", len(c.Models))
 			}
+			if len(c.Models) > 0 {
+				if in := c.Models[0].Instances; in.Partitions < nodes || in.Partitions%nodes != 0 || in.Takeover.Std() <= 0 {
+					t.Errorf("instances.partitions %d takeover %v, want a multiple of the %d processes sharing the template and a takeover", in.Partitions, in.Takeover, nodes)
+				}
+			}
 
 			dir := t.TempDir()
 			c.NATS.PasswordFile = writeFile(t, dir, "nats.password", "not-the-real-one\n")
