@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"net"
+	"os"
 	"strings"
 	"sync"
 	"testing"
@@ -38,6 +39,7 @@ type Cluster struct {
 	Name string
 
 	t      testing.TB
+	base   string // parent of the nodes' stores, removed after every node stopped
 	modify func(int, *server.Options)
 	routes []string // nats-route:// URLs of every node's cluster listener
 
@@ -73,7 +75,10 @@ func RunClusterWith(t testing.TB, n int, o *ClusterOptions) *Cluster {
 	if o == nil {
 		o = &ClusterOptions{}
 	}
-	c := &Cluster{Name: o.Name, t: t, modify: o.Modify}
+	// The stores' parent directory is made before the shutdown is
+	// registered: cleanups run last-registered first, so the nodes stop
+	// (and stop writing) before their stores are removed.
+	c := &Cluster{Name: o.Name, t: t, base: t.TempDir(), modify: o.Modify}
 	if c.Name == "" {
 		c.Name = "lariat-test"
 	}
@@ -111,7 +116,11 @@ func (c *Cluster) start(n int) error {
 	}
 	nodes := make([]clusterNode, n)
 	for i := range nodes {
-		nodes[i] = clusterNode{store: c.t.TempDir(), clientPort: -1, clusterPort: ports[i]}
+		store, err := os.MkdirTemp(c.base, "node")
+		if err != nil {
+			return err
+		}
+		nodes[i] = clusterNode{store: store, clientPort: -1, clusterPort: ports[i]}
 	}
 	c.mu.Lock()
 	c.nodes = nodes
