@@ -250,6 +250,9 @@ func TestTemplateRejects(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	if err := nc.Flush(); err != nil { // the server has the subscription before any reject
+		t.Fatal(err)
+	}
 	recs := sparseTruth(6).records(10, true, 1)
 	kr := keyedRecords{per: map[string]int{}}
 	for i, key := range []string{"p1", "p2", "p3", "p4", "_hidden", "p1", strings.Repeat("x", 65), "p5", "p2"} {
