@@ -27,11 +27,21 @@ type gramMember struct {
 	b      float64   // intercept: the window's weighted mean label
 	theta  []float64 // standardized coefficients (a row of covLearner.theta)
 	kkt    float64   // KKT violation at the last solve (from G and c)
+	stale  bool      // solve before the next read (covLearner.ensure)
+	c      *covLearner
+	i      int // the member's index in c.ms
 }
 
 var _ member = (*gramMember)(nil)
 
-func (m *gramMember) params() (float64, []float64) { return m.b, m.theta }
+// params solves the member first when it is stale (covLearner.ensure), so
+// that every read sees a member solved on the current working scale.
+func (m *gramMember) params() (float64, []float64) {
+	if m.stale {
+		m.c.ensure(m.i)
+	}
+	return m.b, m.theta
+}
 
 // covLearner is the "gram" learner, for the squared loss only. It keeps the
 // train window's records (the trainset shared with the SAGA learner, so
@@ -70,10 +80,14 @@ type covLearner struct {
 	builtAt int       // window length at that rebuild
 
 	every      int  // R, solveEvery of the capacity
-	stale      bool // the window or the grid changed since the members were solved
+	stale      bool // the window or the grid changed since the last refresh of the scale for a solve
 	due        bool // the scale was refreshed for a solve that run makes
+	lazy       bool // the due solve is the record path's: run marks the members stale instead
 	solved     bool // the members have been solved at least once
 	sinceSolve int  // arrivals since the last solve
+
+	sys  bool    // solver holds the system of the current sums on the working scale (ensure)
+	ybar float64 // the weighted mean label of that system
 
 	solver gramSolver
 	xc, xo []float64 // scratch: shifted arriving and evicted rows
@@ -98,7 +112,7 @@ func newCov(o *Options, d int) *covLearner {
 		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d),
 	}
 	for k := range o.Size {
-		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d]})
+		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d], c: c, i: k})
 	}
 	return c
 }
@@ -125,18 +139,21 @@ func (c *covLearner) setLambdas(lambdas []float64) {
 	for i, m := range c.ms {
 		if m.lambda != lambdas[i] {
 			m.lambda = lambdas[i]
-			c.stale = true
+			m.stale, c.stale = true, true
 		}
 	}
 }
 
 // shift re-seats the members after the grid moved by k steps: member i
-// becomes a copy of its nearest old neighbour (a warm start).
+// becomes a copy of its nearest old neighbour (a warm start), λ and
+// staleness included, so that setLambdas, which follows, leaves a member
+// whose λ did not change as it was and marks the others stale.
 func (c *covLearner) shift(k int) {
 	K := len(c.ms)
 	cp := func(i, j int) {
 		if i != j {
-			c.ms[i].b = c.ms[j].b
+			mi, mj := c.ms[i], c.ms[j]
+			mi.lambda, mi.b, mi.kkt, mi.stale = mj.lambda, mj.b, mj.kkt, mj.stale
 			copy(c.ms[i].theta, c.ms[j].theta)
 		}
 	}
@@ -156,7 +173,8 @@ func (c *covLearner) shift(k int) {
 // the oldest one of a full window (its rank-one term removed and the new
 // one added in one pass) or is appended. It reports whether the scale was
 // refreshed for a solve (every R arrivals, solveEvery, and after a
-// rebuild), which run then makes.
+// rebuild); run then marks the members stale, and each is solved when it
+// is next read (ensure).
 func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := c.ts
 	if c.span > 0 && t != 0 {
@@ -181,12 +199,14 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	c.sinceSolve++
 	if c.rebuildDue() {
 		c.rebuild()
+		c.lazy = true
 		return c.prepare()
 	}
 	if c.sinceSolve >= c.every {
 		if c.shiftFar() {
 			c.rebuild()
 		}
+		c.lazy = true
 		return c.prepare()
 	}
 	return false
@@ -238,6 +258,7 @@ func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y fl
 		c.xc[j] = x[j] - c.cx[j]
 	}
 	ey := y - c.cy
+	c.sys = false
 	if xo == nil {
 		for j := range d {
 			axpy(w*c.xc[j], c.xc[j:], c.sxx[j*d+j:(j+1)*d])
@@ -273,6 +294,7 @@ func (c *covLearner) evict() {
 	m, _ := ts.ring.Oldest()
 	x := ts.row(ts.ring.Slot(0))
 	d := ts.d
+	c.sys = false
 	for j := range d {
 		c.xo[j] = x[j] - c.cx[j]
 	}
@@ -290,6 +312,7 @@ func (c *covLearner) evict() {
 
 // clearSums empties the sums.
 func (c *covLearner) clearSums() {
+	c.sys = false
 	clear(c.sxx)
 	clear(c.sx)
 	clear(c.sxy)
@@ -321,24 +344,62 @@ func (c *covLearner) rebuild() {
 // true so that the ladder re-anchors its grid on the refreshed λ_max.
 func (c *covLearner) prepare() bool {
 	c.ts.refresh()
-	c.due = true
+	c.due, c.sys = true, false
 	return true
 }
 
-// run solves the members when a solve is due (after add or rescale);
-// steps are ignored: the gram learner takes no stochastic steps.
+// run makes the solve that is due (after add, rescale or shrink); steps
+// are ignored: the gram learner takes no stochastic steps. The record
+// path's solve (add) only marks every member stale: a member is solved
+// when it is read (ensure), so a record pays for the members the caller
+// reads (the pipeline reads one, its current model, per record) and not
+// for all K. The other solves (Idle, Shrink) solve every member.
 func (c *covLearner) run(int) {
-	if c.due {
-		c.solve()
+	if !c.due {
+		return
 	}
+	if c.lazy {
+		c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
+		for _, m := range c.ms {
+			m.stale = true
+		}
+		return
+	}
+	c.solve()
 }
 
-// rescale prepares a solve if anything changed since the last (Idle).
+// rescale prepares a solve of every member if anything changed since the
+// last refresh, or if a member is stale (Idle).
 func (c *covLearner) rescale() bool {
-	if !c.stale || c.ts.ring.Len() == 0 {
+	if c.ts.ring.Len() == 0 {
 		return false
 	}
-	return c.prepare()
+	c.lazy = false
+	if c.stale {
+		return c.prepare()
+	}
+	for _, m := range c.ms {
+		c.due = c.due || m.stale
+	}
+	return false
+}
+
+// ensure solves stale member i from the current sums on the working scale
+// (the scale of the last refresh, on which every member read is), warm
+// from its own last solution, to gramTarget. The system G, c is built once
+// for all the members read until the sums or the scale change (sys).
+func (c *covLearner) ensure(i int) {
+	m := c.ms[i]
+	m.stale = false
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return
+	}
+	if !c.sys {
+		c.ybar = c.system(c.ts.inv)
+		c.sys = true
+	}
+	m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, gramTarget)
+	m.b = c.ybar
 }
 
 // shrink evicts all but the newest n records and rebuilds the sums.
@@ -350,6 +411,7 @@ func (c *covLearner) shrink(n int) bool {
 	for c.ts.ring.Len() > n {
 		c.evict()
 	}
+	c.lazy = false
 	c.rebuild()
 	if c.ts.ring.Len() == 0 {
 		return false
@@ -361,11 +423,15 @@ func (c *covLearner) shrink(n int) bool {
 // ts.inv), each from its previous solution (on the first solve, from the
 // member above it: warm starts down the path).
 func (c *covLearner) solve() {
-	c.due, c.stale, c.sinceSolve = false, false, 0
+	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
+	for _, m := range c.ms {
+		m.stale = false
+	}
 	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
 		return
 	}
 	ybar := c.system(c.ts.inv)
+	c.sys, c.ybar = true, ybar
 	for i, m := range c.ms {
 		if !c.solved && i > 0 {
 			copy(m.theta, c.ms[i-1].theta)
@@ -384,6 +450,7 @@ func (c *covLearner) solve() {
 // row and column.
 func (c *covLearner) system(inv []float64) float64 {
 	d := c.ts.d
+	c.sys = false
 	g, cv, mx := c.solver.g, c.solver.c, c.solver.r
 	rw := 1 / c.sw
 	for j := range d {
@@ -427,10 +494,12 @@ func (c *covLearner) converge(l *Ladder, tol float64, _ int) bool {
 	c.rebuild()
 	c.prepare()
 	l.reanchor(c.lambdaMax(l.alpha0))
-	c.due, c.stale, c.sinceSolve = false, false, 0
+	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
 	ybar := c.system(c.ts.inv)
+	c.sys, c.ybar = true, ybar
 	ok := true
 	for i, m := range c.ms {
+		m.stale = false
 		if !c.solved && i > 0 {
 			copy(m.theta, c.ms[i-1].theta)
 		}

@@ -3,9 +3,12 @@ package online
 import "math"
 
 // The gram learner's exact reads: Ladder.KKT, Optimum, OptimumPath,
-// ModelKKT and the ridge spectrum's Gram matrix. They change only scratch
-// buffers, never the learner's state: a read of a window that moved since
-// the members' solve solves a copy from the current sums.
+// ModelKKT and the ridge spectrum's Gram matrix. A read of a window that
+// moved since the members' solve solves a copy from the current sums. They
+// change no member that can be read: KKT solves a stale member first, as
+// every read of a member does (ensure), and Optimum and OptimumPath keep
+// their fit of a stale member as its coefficients, which are then only the
+// warm start of its next solve (ensure solves it before any read).
 
 // exactScale fills the scratch scale with the window's exact running
 // scale (the scale of Ladder.KKT and Optimum).
@@ -23,9 +26,12 @@ func (c *covLearner) kkt(i int) float64 {
 	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
 		return 0
 	}
+	m := c.ms[i]
+	if m.stale {
+		c.ensure(i)
+	}
 	c.exactScale()
 	ybar := c.system(c.inv)
-	m := c.ms[i]
 	return max(math.Abs(m.b-ybar), c.solver.violation(m.theta, m.lambda, c.alpha))
 }
 
@@ -75,7 +81,7 @@ func (c *covLearner) recordsKKT(b float64, th []float64, lam float64) float64 {
 // changed.
 func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) {
 	m := c.ms[i]
-	if !c.stale && m.kkt <= target {
+	if !c.stale && !m.stale && m.kkt <= target {
 		return l.Model(i), m.kkt
 	}
 	c.exactScale()
@@ -87,7 +93,18 @@ func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) 
 		}
 	}
 	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
+	c.keepWarm(m)
 	return c.model(l, i, ybar, c.thetaR), kkt
+}
+
+// keepWarm keeps the fit in thetaR as the coefficients of member m when m
+// is stale: no read sees them (the member is solved first), and its next
+// solve starts from the fit instead of from the member's last solve, which
+// may be many solves old (the record path solves only the members read).
+func (c *covLearner) keepWarm(m *gramMember) {
+	if m.stale {
+		copy(m.theta, c.thetaR)
+	}
 }
 
 // path is OptimumPath for the gram learner: every member's exact fit on
@@ -97,7 +114,7 @@ func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) 
 func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 	fresh := !c.stale
 	for _, m := range c.ms {
-		fresh = fresh && m.kkt <= o.Target
+		fresh = fresh && !m.stale && m.kkt <= o.Target
 	}
 	if fresh {
 		for i, m := range c.ms {
@@ -115,24 +132,17 @@ func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 			}
 		}
 		kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, o.Target)
+		c.keepWarm(m)
 		dst = append(dst, Optimum{Model: c.model(l, i, ybar, c.thetaR), KKT: kkt, Converged: kkt <= o.Tol})
 	}
 	return dst
 }
 
 // model returns member i's Model with intercept b and coefficients th on
-// the scratch (exact) scale.
+// the scratch (exact) scale. It does not read the member (which would
+// solve a stale one and overwrite the solver's system).
 func (c *covLearner) model(l *Ladder, i int, b float64, th []float64) Model {
-	md := l.Model(i)
-	md.StdIntercept, md.Intercept = b, b
-	copy(md.Standardized, th)
-	for j, t := range th {
-		cj := t * c.inv[j]
-		md.Coef[j] = cj
-		md.Intercept -= cj * c.mu[j]
-		md.Mean[j], md.Std[j] = c.mu[j], c.sd[j]
-	}
-	return md
+	return l.modelOf(i, b, th, c.mu, c.sd, c.inv)
 }
 
 // gram is gramLearner.gram (the ridge grid's spectrum) from the sums, on

@@ -290,3 +290,79 @@ func TestModelKKT(t *testing.T) {
 		t.Errorf("decay: %g, want NaN", k)
 	}
 }
+
+// TestGramSolveOnRead: on the record path the gram learner solves only the
+// members that are read. After the R-th arrival every member is stale;
+// reading one solves it alone, on the current window: its KKT conditions
+// measured on the records (Hastie, Tibshirani & Wainwright 2015, ch. 2;
+// Ladder.ModelKKT, one pass, not the sums) hold to DefaultKKT, and it
+// agrees with the window's optimum (Ladder.Optimum to 1e-12) to 1e-7.
+// A stale member is never seen stale: Nonzero, Eta, Model and KKT all
+// solve it first.
+func TestGramSolveOnRead(t *testing.T) {
+	const d, n = 8, 2000 // R = solveEvery(2000) = 20
+	p := makeProblem(21, 3*n, d, 4, false, true)
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := l.lrn.(*covLearner)
+	stale := func() (k int) {
+		for _, m := range c.ms {
+			if m.stale {
+				k++
+			}
+		}
+		return k
+	}
+	reads := []struct {
+		name string
+		read func(i int)
+	}{
+		{"Eta", func(i int) { l.Eta(i, p.record(0).X) }},
+		{"Nonzero", func(i int) { l.Nonzero(i) }},
+		{"Model", func(i int) { l.Model(i) }},
+		{"KKT", func(i int) { l.KKT(i) }},
+	}
+	at := 0
+	for i := 0; i < 3*n; i++ {
+		if err := l.Add(p.record(i)); err != nil {
+			t.Fatal(err)
+		}
+		if i < n || c.sinceSolve != 0 {
+			continue
+		}
+		// The refresh just happened: every member is stale.
+		if k := stale(); k != l.Size() {
+			t.Fatalf("record %d: %d stale members after the refresh, want %d", i, k, l.Size())
+		}
+		m := 2 + at%(l.Size()-2)
+		rd := reads[at%len(reads)]
+		at++
+		rd.read(m)
+		if k := stale(); k != l.Size()-1 || c.ms[m].stale {
+			t.Fatalf("record %d: %s(%d) left %d stale members (member %d stale: %v), want %d", i, rd.name, m, k, m, c.ms[m].stale, l.Size()-1)
+		}
+		md := l.Model(m)
+		if k := l.ModelKKT(&md); !(k <= DefaultKKT) {
+			t.Errorf("record %d: member %d read by %s: KKT on the records %g", i, m, rd.name, k)
+		}
+		ref := l.Optimum(m, nil, &ExactOptions{Tol: 1e-12, Target: 1e-12, Rounds: 100}).Model
+		if dist := relDist(md.Standardized, ref.Standardized); !(dist <= 1e-7) {
+			t.Errorf("record %d: member %d %g from the optimum", i, m, dist)
+		}
+	}
+	if at < 50 {
+		t.Fatalf("%d refreshes checked, want 50 or more", at)
+	}
+	// Idle solves every stale member.
+	for i := 3 * n; stale() == 0; i++ {
+		if err := l.Add(p.record(i % (3 * n))); err != nil {
+			t.Fatal(err)
+		}
+	}
+	l.Idle(1)
+	if k := stale(); k != 0 {
+		t.Errorf("Idle left %d stale members", k)
+	}
+}
