@@ -1,8 +1,11 @@
 package online
 
 import (
+	"bytes"
+	"errors"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -364,5 +367,79 @@ func TestGramSolveOnRead(t *testing.T) {
 	l.Idle(1)
 	if k := stale(); k != 0 {
 		t.Errorf("Idle left %d stale members", k)
+	}
+}
+
+// TestGramFrom: a SAGA ladder of the squared loss taken over by a gram
+// ladder keeps its window (the same records in the same order, with their
+// weights and times), records seen and width, and each member equals, to
+// 1e-12, a gram ladder with that member's λ fixed that was fed the window's
+// records and converged (its own KKT solve to 1e-12, from zero). The SAGA
+// ladder is not changed; another learner or loss is refused.
+func TestGramFrom(t *testing.T) {
+	en := ElasticNet(0.7)
+	for _, pen := range []*Penalty{nil, &en} {
+		o := Options{Features: 6, Window: 400, Penalty: pen, Span: 0, Seed: 3}
+		s, err := NewLadder(&o)
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := makeProblem(31, 1000, 6, 3, false, true)
+		for i := range 1000 {
+			r := p.record(i)
+			r.T = int64(1000 * (i + 1))
+			if i%7 == 0 {
+				r.W = 0.5
+			}
+			if err := s.Add(r); err != nil {
+				t.Fatal(err)
+			}
+		}
+		before := must(s.MarshalBinary())
+		g, err := GramFrom(s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(before, must(s.MarshalBinary())) {
+			t.Fatal("GramFrom changed the SAGA ladder")
+		}
+		if g.Learner() != "gram" || g.Len() != s.Len() || g.Seen() != s.Seen() || g.Features() != s.Features() {
+			t.Fatalf("gram ladder: %s, %d records, %d seen, width %d; want gram, %d, %d, %d",
+				g.Learner(), g.Len(), g.Seen(), g.Features(), s.Len(), s.Seen(), s.Features())
+		}
+		ws, wg := s.lrn.(*sagaLearner).ts, g.lrn.(*covLearner).ts
+		window := make([]Record, 0, s.Len())
+		for i, slot := range ws.order() {
+			a, b := ws.ring.At(i), wg.ring.At(i)
+			xa, xb := ws.row(slot), wg.row(wg.order()[i])
+			if a != b || !slices.Equal(xa, xb) {
+				t.Fatalf("window record %d: %+v %v, SAGA's %+v %v", i, b, xb, a, xa)
+			}
+			window = append(window, Record{X: slices.Clone(xa), Y: a.y, W: a.w, T: a.t})
+		}
+		for i := range g.Size() {
+			lam := g.Lambda(i)
+			ref, err := NewLadder(&Options{Features: 6, Window: 400, Penalty: pen, Lambda: lam, Learner: "gram"})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, r := range window {
+				if err := ref.Add(r); err != nil {
+					t.Fatal(err)
+				}
+			}
+			ref.Converge(1e-9, 1) // solves to min(tol/1000, gramTarget) = 1e-12
+			a, b := g.Model(i), ref.Model(0)
+			if d := relDist(a.Standardized, b.Standardized); !(d <= 1e-12) || math.Abs(a.Intercept-b.Intercept) > 1e-12*math.Abs(b.Intercept)+1e-12 {
+				t.Errorf("member %d (λ %g): %g from the reference, intercept %v against %v", i, lam, d, a.Intercept, b.Intercept)
+			}
+		}
+	}
+	d, _ := NewLadder(&Options{Features: 3, Learner: "decay"})
+	l, _ := NewLadder(&Options{Features: 3, Loss: Logistic{}})
+	for _, bad := range []*Ladder{d, l} {
+		if _, err := GramFrom(bad); !errors.Is(err, ErrOptions) {
+			t.Errorf("%s %s: %v, want ErrOptions", bad.Learner(), bad.Loss().Name(), err)
+		}
 	}
 }

@@ -57,10 +57,11 @@ type Pipeline struct {
 	dim        int
 	minPublish time.Duration
 
-	ladder  *online.Ladder
-	hold    *online.Holdout // nil when the holdout is off
-	chooser online.Chooser
-	split   window.Splitter
+	ladder   *online.Ladder
+	upgraded bool            // Restore took a SAGA ladder over into a gram ladder
+	hold     *online.Holdout // nil when the holdout is off
+	chooser  online.Chooser
+	split    window.Splitter
 
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout

@@ -32,6 +32,38 @@ func fingerprint(m *config.Model) uint64 {
 	return h.Sum64()
 }
 
+// fingerprintKinds returns the kinds of learner.kind a state may have been
+// saved under to be restored under m besides m's own: with learner.kind
+// unset or saga, the other of the two (a version of lariat whose default
+// was saga saved its models with the kind unset, and an unset kind now
+// means gram for the squared loss: restoreModel takes a SAGA ladder over
+// into a gram ladder then, and keeps it under an explicit saga).
+func fingerprintKinds(m *config.Model) []string {
+	switch m.Learner.Kind {
+	case "":
+		return []string{config.LearnerSAGA}
+	case config.LearnerSAGA:
+		return []string{""}
+	}
+	return nil
+}
+
+// fingerprintOK reports whether fp is the fingerprint of m, or of m with
+// one of the learner kinds of fingerprintKinds.
+func fingerprintOK(fp uint64, m *config.Model) bool {
+	if fp == fingerprint(m) {
+		return true
+	}
+	for _, k := range fingerprintKinds(m) {
+		alt := *m
+		alt.Learner.Kind = k
+		if fp == fingerprint(&alt) {
+			return true
+		}
+	}
+	return false
+}
+
 // MarshalBinary returns the pipeline's whole state: the ladder (learner
 // state, window, scaler, random generator), the held-out ring, the chooser
 // with its hysteresis, the counters, the feature names, the drift watch
@@ -135,7 +167,14 @@ func (p *Pipeline) marshalTuner(e enc) {
 // that are damaged or inconsistent, and a state made for another model or
 // under another learning configuration (loss, penalty, ladder, window,
 // holdout, learner, features, drift settings): the caller then starts the
-// model fresh. The threshold's mode and target are the configuration's, or
+// model fresh. One change of learner is taken over rather than refused: a
+// state of the squared loss saved with learner saga (explicit, or unset
+// in a version whose default was saga) restored with learner.kind unset
+// gets a gram ladder built from the SAGA ladder's window (online.GramFrom;
+// Upgraded reports it), with the rest of the state (held-out ring,
+// chooser, drift watch, threshold, version, stream position) as saved;
+// and a state saved with learner.kind unset by such a version is restored
+// under an explicit saga as it was. The threshold's mode and target are the configuration's, or
 // the saved override's (o.Threshold), as at a fresh start; the tuned
 // threshold itself is restored when they have not changed.
 func Restore(o Options, b []byte) (*Pipeline, error) {
@@ -151,7 +190,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
 	}
-	if fp := d.uvarint(); !d.failed() && fp != fingerprint(p.cfg) {
+	if fp := d.uvarint(); !d.failed() && !fingerprintOK(fp, p.cfg) {
 		return nil, fmt.Errorf("%w: the model's learning configuration changed since the state was saved", ErrState)
 	}
 	if dim := d.int(); !d.failed() && dim != p.dim {
@@ -201,6 +240,9 @@ func (p *Pipeline) restoreModel(d dec, width int) error {
 	if err != nil {
 		return fmt.Errorf("%w: ladder: %v", ErrState, err)
 	}
+	if lad, err = p.upgrade(lad); err != nil {
+		return err
+	}
 	if lad.Features() != width || lad.MaxFeatures() != p.dim || lad.Size() != p.ladder.Size() {
 		return fmt.Errorf("%w: ladder of %d×%d (at most %d wide), the model needs %d×%d (at most %d)", ErrState,
 			lad.Size(), lad.Features(), lad.MaxFeatures(), p.ladder.Size(), width, p.dim)
@@ -232,6 +274,32 @@ func (p *Pipeline) restoreModel(d dec, width int) error {
 	}
 	return d.err()
 }
+
+// upgrade returns the restored ladder lad as the model runs it: a SAGA
+// ladder of the squared loss under an unset learner.kind (saved by a
+// version whose default was saga, or under an explicit saga since
+// removed) is taken over by a gram ladder with the same window and grid
+// (online.GramFrom); any other ladder must be of the learner the model
+// runs.
+func (p *Pipeline) upgrade(lad *online.Ladder) (*online.Ladder, error) {
+	want := p.ladder.Learner()
+	switch {
+	case lad.Learner() == want:
+		return lad, nil
+	case want == config.LearnerGram && lad.Learner() == config.LearnerSAGA && p.cfg.Learner.Kind == "":
+		g, err := online.GramFrom(lad)
+		if err != nil {
+			return nil, fmt.Errorf("%w: ladder: %v", ErrState, err)
+		}
+		p.upgraded = true
+		return g, nil
+	}
+	return nil, fmt.Errorf("%w: a %s ladder, the model runs %s", ErrState, lad.Learner(), want)
+}
+
+// Upgraded reports whether Restore took a SAGA ladder over into a gram
+// ladder (see Restore).
+func (p *Pipeline) Upgraded() bool { return p.upgraded }
 
 func (p *Pipeline) restoreCounters(d dec) {
 	p.seq, p.held = d.uvarint(), d.uvarint()
