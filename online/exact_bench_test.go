@@ -13,10 +13,10 @@ import (
 // from the window's optimum of:
 //
 //   - stream: the member's prediction of the record before it learns from
-//     it (Ladder.Eta, the pipeline's test-then-train read) and Ladder.Add:
-//     2 SAGA steps per record, or the gram learner's rank-one update, with
-//     the read member solved when it is stale (every solveEvery records);
-//     the model read is the member.
+//     it (Ladder.Ready and Eta, the pipeline's test-then-train read) and
+//     Ladder.Add: 2 SAGA steps per record, or the gram learner's rank-one
+//     update, with the read member solved when it is stale (every
+//     solveEvery records); the model read is the member.
 //   - pub: one exact fit (Ladder.Optimum from the member, KKT 1e-6) of the
 //     published member per publication, a publication every 500 records;
 //     the published model then stays out until the next publication.
@@ -114,10 +114,10 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 	for done := 0; done < b.N; done++ {
 		r := pool[i%len(pool)]
 		i++
-		tStream += timed(func() { _ = l.Eta(member, r.X) })
+		tStream += timed(func() { l.Ready(member); _ = l.Eta(member, r.X) })
 		sample := done%100 == 50
 		var mem Model
-		if sample { // the member as read (fresh: Eta just read it)
+		if sample { // the member as read (fresh: Ready just solved it)
 			b.StopTimer()
 			mem = l.Model(member)
 			b.StartTimer()

@@ -27,18 +27,20 @@ type gramMember struct {
 	b      float64   // intercept: the window's weighted mean label
 	theta  []float64 // standardized coefficients (a row of covLearner.theta)
 	kkt    float64   // KKT violation at the last solve (from G and c)
-	stale  bool      // solve before the next read (covLearner.ensure)
+	stale  bool      // not solved since the last refresh of the scale or a change of λ (covLearner.ensure)
 	c      *covLearner
 	i      int // the member's index in c.ms
 }
 
 var _ member = (*gramMember)(nil)
 
-// params solves the member first when it is stale (covLearner.ensure), so
-// that every read sees a member solved on the current working scale.
+// params returns the member, or for a stale member its solve on the
+// current window into scratch (covLearner.read), which is not kept: every
+// read sees a member solved on the working scale, and no read changes
+// what the ladder computes later.
 func (m *gramMember) params() (float64, []float64) {
 	if m.stale {
-		m.c.ensure(m.i)
+		return m.c.read(m.i)
 	}
 	return m.b, m.theta
 }
@@ -95,6 +97,7 @@ type covLearner struct {
 	sd     []float64
 	inv    []float64
 	thetaR []float64 // scratch: a member's θ for reads
+	thetaP []float64 // scratch: a stale member's θ as read (read)
 }
 
 var _ learner = (*covLearner)(nil)
@@ -109,7 +112,7 @@ func newCov(o *Options, d int) *covLearner {
 	c := &covLearner{
 		ts: newTrainset(d, o.Window), alpha: o.Penalty.Mix, span: o.Span.Milliseconds(), every: solveEvery(o.Window),
 		theta: mk(o.Size * d), cx: mk(d), sx: mk(d), sxy: mk(d), sxx: mk(d * d),
-		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d),
+		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d), thetaP: mk(d),
 	}
 	for k := range o.Size {
 		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d], c: c, i: k})
@@ -351,9 +354,10 @@ func (c *covLearner) prepare() bool {
 // run makes the solve that is due (after add, rescale or shrink); steps
 // are ignored: the gram learner takes no stochastic steps. The record
 // path's solve (add) only marks every member stale: a member is solved
-// when it is read (ensure), so a record pays for the members the caller
-// reads (the pipeline reads one, its current model, per record) and not
-// for all K. The other solves (Idle, Shrink) solve every member.
+// when the caller asks for it (Ladder.Ready, ensure), so a record pays
+// for the members the caller reads on the record path (the pipeline
+// reads one, its current model, per record) and not for all K. The other
+// solves (Idle, Shrink) solve every member.
 func (c *covLearner) run(int) {
 	if !c.due {
 		return
@@ -386,20 +390,45 @@ func (c *covLearner) rescale() bool {
 
 // ensure solves stale member i from the current sums on the working scale
 // (the scale of the last refresh, on which every member read is), warm
-// from its own last solution, to gramTarget. The system G, c is built once
-// for all the members read until the sums or the scale change (sys).
+// from its own last solution, to gramTarget, and keeps the solution
+// (Ladder.Ready).
 func (c *covLearner) ensure(i int) {
 	m := c.ms[i]
+	if !m.stale {
+		return
+	}
 	m.stale = false
 	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
 		return
 	}
+	m.b, m.kkt = c.solveStale(m, m.theta)
+}
+
+// read returns stale member i as a read sees it: what ensure would make of
+// it now, solved in scratch (thetaP, valid until the next read) and not
+// kept, so that a read changes nothing the ladder computes later (the
+// daemon reads its members on a clock, and its models must not depend on
+// when).
+func (c *covLearner) read(i int) (float64, []float64) {
+	m := c.ms[i]
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return m.b, m.theta
+	}
+	copy(c.thetaP, m.theta)
+	b, _ := c.solveStale(m, c.thetaP)
+	return b, c.thetaP
+}
+
+// solveStale solves member m in th (its coefficients or a copy) from the
+// current sums on the working scale and returns the intercept and the KKT
+// violation. The system G, c is built once for all the members solved
+// until the sums or the scale change (sys).
+func (c *covLearner) solveStale(m *gramMember, th []float64) (float64, float64) {
 	if !c.sys {
 		c.ybar = c.system(c.ts.inv)
 		c.sys = true
 	}
-	m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, gramTarget)
-	m.b = c.ybar
+	return c.ybar, c.solver.solve(th, m.lambda, c.alpha, gramTarget)
 }
 
 // shrink evicts all but the newest n records and rebuilds the sums.

@@ -3,12 +3,9 @@ package online
 import "math"
 
 // The gram learner's exact reads: Ladder.KKT, Optimum, OptimumPath,
-// ModelKKT and the ridge spectrum's Gram matrix. A read of a window that
-// moved since the members' solve solves a copy from the current sums. They
-// change no member that can be read: KKT solves a stale member first, as
-// every read of a member does (ensure), and Optimum and OptimumPath keep
-// their fit of a stale member as its coefficients, which are then only the
-// warm start of its next solve (ensure solves it before any read).
+// ModelKKT and the ridge spectrum's Gram matrix. They change only scratch
+// buffers, never the learner's state: a read of a window that moved since
+// the members' solve solves a copy from the current sums.
 
 // exactScale fills the scratch scale with the window's exact running
 // scale (the scale of Ladder.KKT and Optimum).
@@ -27,12 +24,10 @@ func (c *covLearner) kkt(i int) float64 {
 		return 0
 	}
 	m := c.ms[i]
-	if m.stale {
-		c.ensure(i)
-	}
+	b, th := m.params()
 	c.exactScale()
 	ybar := c.system(c.inv)
-	return max(math.Abs(m.b-ybar), c.solver.violation(m.theta, m.lambda, c.alpha))
+	return max(math.Abs(b-ybar), c.solver.violation(th, m.lambda, c.alpha))
 }
 
 // recordsKKT returns the KKT violation of intercept b and coefficients th
@@ -93,18 +88,7 @@ func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) 
 		}
 	}
 	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
-	c.keepWarm(m)
 	return c.model(l, i, ybar, c.thetaR), kkt
-}
-
-// keepWarm keeps the fit in thetaR as the coefficients of member m when m
-// is stale: no read sees them (the member is solved first), and its next
-// solve starts from the fit instead of from the member's last solve, which
-// may be many solves old (the record path solves only the members read).
-func (c *covLearner) keepWarm(m *gramMember) {
-	if m.stale {
-		copy(m.theta, c.thetaR)
-	}
 }
 
 // path is OptimumPath for the gram learner: every member's exact fit on
@@ -132,7 +116,6 @@ func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 			}
 		}
 		kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, o.Target)
-		c.keepWarm(m)
 		dst = append(dst, Optimum{Model: c.model(l, i, ybar, c.thetaR), KKT: kkt, Converged: kkt <= o.Tol})
 	}
 	return dst

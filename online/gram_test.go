@@ -295,13 +295,15 @@ func TestModelKKT(t *testing.T) {
 }
 
 // TestGramSolveOnRead: on the record path the gram learner solves only the
-// members that are read. After the R-th arrival every member is stale;
-// reading one solves it alone, on the current window: its KKT conditions
-// measured on the records (Hastie, Tibshirani & Wainwright 2015, ch. 2;
-// Ladder.ModelKKT, one pass, not the sums) hold to DefaultKKT, and it
-// agrees with the window's optimum (Ladder.Optimum to 1e-12) to 1e-7.
-// A stale member is never seen stale: Nonzero, Eta, Model and KKT all
-// solve it first.
+// members it is asked for (Ladder.Ready). After each refresh of the scale
+// every member is stale. A read of a stale member (Eta, Nonzero, Model,
+// KKT) sees it solved on the current window: its KKT conditions measured
+// on the records (Hastie, Tibshirani & Wainwright 2015, ch. 2;
+// Ladder.ModelKKT, one pass, not the sums) hold to DefaultKKT and it is
+// within 1e-7 of the window's optimum (Ladder.Optimum to 1e-12); the read
+// keeps nothing (the saved state is byte for byte the same). Ready then
+// solves that member alone and keeps exactly what the read saw. Idle
+// solves every stale member.
 func TestGramSolveOnRead(t *testing.T) {
 	const d, n = 8, 2000 // R = solveEvery(2000) = 20
 	p := makeProblem(21, 3*n, d, 4, false, true)
@@ -342,27 +344,29 @@ func TestGramSolveOnRead(t *testing.T) {
 		m := 2 + at%(l.Size()-2)
 		rd := reads[at%len(reads)]
 		at++
+		before := must(l.MarshalBinary())
 		rd.read(m)
-		if k := stale(); k != l.Size()-1 || c.ms[m].stale {
-			t.Fatalf("record %d: %s(%d) left %d stale members (member %d stale: %v), want %d", i, rd.name, m, k, m, c.ms[m].stale, l.Size()-1)
-		}
 		md := l.Model(m)
+		if !bytes.Equal(before, must(l.MarshalBinary())) {
+			t.Fatalf("record %d: %s(%d) and Model(%d) changed the ladder", i, rd.name, m, m)
+		}
 		if k := l.ModelKKT(&md); !(k <= DefaultKKT) {
-			t.Errorf("record %d: member %d read by %s: KKT on the records %g", i, m, rd.name, k)
+			t.Errorf("record %d: member %d as read: KKT on the records %g", i, m, k)
 		}
 		ref := l.Optimum(m, nil, &ExactOptions{Tol: 1e-12, Target: 1e-12, Rounds: 100}).Model
 		if dist := relDist(md.Standardized, ref.Standardized); !(dist <= 1e-7) {
 			t.Errorf("record %d: member %d %g from the optimum", i, m, dist)
 		}
+		l.Ready(m)
+		if k := stale(); k != l.Size()-1 || c.ms[m].stale {
+			t.Fatalf("record %d: Ready(%d) left %d stale members (member %d stale: %v), want %d", i, m, k, m, c.ms[m].stale, l.Size()-1)
+		}
+		if got := l.Model(m); !slices.Equal(got.Standardized, md.Standardized) || got.StdIntercept != md.StdIntercept {
+			t.Fatalf("record %d: member %d after Ready differs from the member as read", i, m)
+		}
 	}
 	if at < 50 {
 		t.Fatalf("%d refreshes checked, want 50 or more", at)
-	}
-	// Idle solves every stale member.
-	for i := 3 * n; stale() == 0; i++ {
-		if err := l.Add(p.record(i % (3 * n))); err != nil {
-			t.Fatal(err)
-		}
 	}
 	l.Idle(1)
 	if k := stale(); k != 0 {

@@ -268,7 +268,7 @@ func (c *covLearner) grow(n int) {
 	}
 	mk := func() []float64 { return make([]float64, n) }
 	c.solver = newGramSolver(n)
-	c.xc, c.xo, c.mu, c.sd, c.inv, c.thetaR = mk(), mk(), mk(), mk(), mk(), mk()
+	c.xc, c.xo, c.mu, c.sd, c.inv, c.thetaR, c.thetaP = mk(), mk(), mk(), mk(), mk(), mk(), mk()
 	c.stale, c.sys = true, false
 }
 

@@ -301,7 +301,10 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	heldOut := p.split.Holdout(p.seq, rec.Key)
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).
-	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(max(p.current(), 0), r.X))
+	// Ready solves the member when the gram learner left it stale.
+	cur := max(p.current(), 0)
+	p.ladder.Ready(cur)
+	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(cur, r.X))
 	if heldOut {
 		err = p.hold.Add(r)
 	} else {

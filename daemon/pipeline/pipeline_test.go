@@ -63,9 +63,9 @@ func TestPipelineRoutesLikeLadder(t *testing.T) {
 	for i := range n {
 		y := s.next(x)
 		h.feed(x, y)
-		// The pipeline reads the current member before it learns (the
+		// The pipeline readies the current member before it learns (the
 		// test-then-train loss), which solves it when stale (gram).
-		bare.Eta(max(chooser.Current(), 0), x)
+		bare.Ready(max(chooser.Current(), 0))
 		r := online.Record{X: x, Y: y, W: 1}
 		if split.Holdout(uint64(i), nil) {
 			err = hold.Add(r)
