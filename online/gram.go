@@ -4,20 +4,25 @@ import (
 	"math"
 )
 
-// solveEvery returns R, the number of arrivals between two solves of the
-// members on the record path (Add), for a window of capacity n: n/100,
-// between 16 and 100 (100 at the default window of 10,000). A solve builds
-// the standardized Gram matrix from the sums (O(d²)) and runs warm-started
-// coordinate descent on every member; measured at d = 128, window 10,000
-// (BenchmarkExactPath), Add cost 10.3, 6.5 and 5.1 µs per record at R = 32,
-// 64 and 100, of which 2.6 µs is the rank-one update and the rest the
-// solves. Between solves the members are at most R records old, which only
-// the test-then-train loss of the drift watch sees: every read that
-// leaves the process (Optimum, OptimumPath, KKT) solves for itself from the
-// current sums, and Idle solves whenever anything is stale. At R = 100 on
-// a window of 10,000 the member is 0.08 % from the current optimum on
-// average, against 0.12–0.27 % for the SAGA members (BenchmarkExactPath,
-// dist-stream).
+// solveEvery returns R, the number of arrivals between two refreshes of
+// the scale on the record path (Add), for a window of capacity n: n/100,
+// between 16 and 100 (100 at the default window of 10,000). A refresh
+// marks every member stale; a member is solved on the record path only
+// when the caller readies it (Ladder.Ready: the system G, c built from the
+// sums in O(d²), then coordinate descent warm from its last solution), so
+// a record pays for the member it reads, not for all K. Measured at
+// d = 128, window 10,000 (BenchmarkExactPath, stream-ns/rec: Ready and Eta
+// of one member, then Add; three runs, 2026-12-02): 2.95–3.08 µs per
+// record, of which about 2.3 µs is the rank-one update; when every member
+// was solved every R records it was 5.2 µs (one run of the tree before,
+// same session; 10.3, 6.5 and 5.1 µs at R = 32, 64 and 100 in an earlier
+// measurement). A member read is at most R records old, which only the
+// test-then-train loss of the drift watch sees: every read that leaves
+// the process (Optimum, OptimumPath, KKT) solves for itself from the
+// current sums, a read of a stale member solves a copy, and Idle solves
+// whenever anything is stale. At R = 100 on a window of 10,000 the member
+// read is 0.077 % from the current optimum on average, against
+// 0.12–0.27 % for the SAGA members (BenchmarkExactPath, dist-stream).
 func solveEvery(n int) int { return max(16, min(100, n/100)) }
 
 // gramMember is one λ of a gram ladder: the exact minimizer of F on the
