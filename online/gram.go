@@ -181,8 +181,8 @@ func (c *covLearner) shift(k int) {
 // the oldest one of a full window (its rank-one term removed and the new
 // one added in one pass) or is appended. It reports whether the scale was
 // refreshed for a solve (every R arrivals, solveEvery, and after a
-// rebuild); run then marks the members stale, and each is solved when it
-// is next read (ensure).
+// rebuild); run then marks the members stale, and each is solved when the
+// caller readies it (Ladder.Ready, ensure) or reads it (a copy, read).
 func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := c.ts
 	if c.span > 0 && t != 0 {
