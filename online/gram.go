@@ -393,49 +393,6 @@ func (c *covLearner) rescale() bool {
 	return false
 }
 
-// ensure solves stale member i from the current sums on the working scale
-// (the scale of the last refresh, on which every member read is), warm
-// from its own last solution, to gramTarget, and keeps the solution
-// (Ladder.Ready).
-func (c *covLearner) ensure(i int) {
-	m := c.ms[i]
-	if !m.stale {
-		return
-	}
-	m.stale = false
-	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
-		return
-	}
-	m.b, m.kkt = c.solveStale(m, m.theta)
-}
-
-// read returns stale member i as a read sees it: what ensure would make of
-// it now, solved in scratch (thetaP, valid until the next read) and not
-// kept, so that a read changes nothing the ladder computes later (the
-// daemon reads its members on a clock, and its models must not depend on
-// when).
-func (c *covLearner) read(i int) (float64, []float64) {
-	m := c.ms[i]
-	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
-		return m.b, m.theta
-	}
-	copy(c.thetaP, m.theta)
-	b, _ := c.solveStale(m, c.thetaP)
-	return b, c.thetaP
-}
-
-// solveStale solves member m in th (its coefficients or a copy) from the
-// current sums on the working scale and returns the intercept and the KKT
-// violation. The system G, c is built once for all the members solved
-// until the sums or the scale change (sys).
-func (c *covLearner) solveStale(m *gramMember, th []float64) (float64, float64) {
-	if !c.sys {
-		c.ybar = c.system(c.ts.inv)
-		c.sys = true
-	}
-	return c.ybar, c.solver.solve(th, m.lambda, c.alpha, gramTarget)
-}
-
 // shrink evicts all but the newest n records and rebuilds the sums.
 func (c *covLearner) shrink(n int) bool {
 	n = max(n, 0)
