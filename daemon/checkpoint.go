@@ -101,6 +101,10 @@ func (w *worker) restore() bool {
 		w.log.Warn("checkpoint made on another arithmetic path: the model continues within rounding, not bit for bit",
 			"saved", meta.Arithmetic, "here", arithmetic())
 	}
+	if p.Upgraded() {
+		w.log.Info("checkpoint of learner saga restored as learner gram (learner.kind unset), window kept",
+			"records", p.Ladder().Len())
+	}
 	w.pipe = p
 	w.startPos = p.Position()
 	w.dec = w.newDecoder(p.Names())

@@ -12,9 +12,11 @@ import (
 // and, for the squared loss, the gram learner, the costs and the distance
 // from the window's optimum of:
 //
-//   - stream: the learner's Ladder.Add: 2 SAGA steps per record, or the
-//     gram learner's rank-one update with its member solves every 32
-//     records; the model read is the member.
+//   - stream: the member's prediction of the record before it learns from
+//     it (Ladder.Ready and Eta, the pipeline's test-then-train read) and
+//     Ladder.Add: 2 SAGA steps per record, or the gram learner's rank-one
+//     update, with the read member solved when it is stale (every
+//     solveEvery records); the model read is the member.
 //   - pub: one exact fit (Ladder.Optimum from the member, KKT 1e-6) of the
 //     published member per publication, a publication every 500 records;
 //     the published model then stays out until the next publication.
@@ -112,6 +114,14 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 	for done := 0; done < b.N; done++ {
 		r := pool[i%len(pool)]
 		i++
+		tStream += timed(func() { l.Ready(member); _ = l.Eta(member, r.X) })
+		sample := done%100 == 50
+		var mem Model
+		if sample { // the member as read (fresh: Ready just solved it)
+			b.StopTimer()
+			mem = l.Model(member)
+			b.StartTimer()
+		}
 		tStream += timed(func() { _ = l.Add(r) })
 		if batch != l {
 			b.StopTimer()
@@ -124,12 +134,12 @@ func benchExact(b *testing.B, loss Loss, learner string, d, n int) {
 			tRetune += timed(retune)
 			tRefit += timed(refitPath)
 		}
-		if done%100 == 50 {
+		if sample {
 			b.StopTimer()
 			// Each model against the optimum at its own λ on the current
 			// window (the two ladders' grids agree to rounding only).
 			ref := l.Optimum(member, nil, &ExactOptions{Tol: 1e-10, Rounds: 100}).Model
-			dStream += relDist(l.Model(member).Standardized, ref.Standardized)
+			dStream += relDist(mem.Standardized, ref.Standardized)
 			dPub += relDist(pub.Standardized, ref.Standardized)
 			if batch != l {
 				ref = batch.Optimum(member, nil, &ExactOptions{Tol: 1e-10, Rounds: 100}).Model

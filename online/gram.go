@@ -4,20 +4,25 @@ import (
 	"math"
 )
 
-// solveEvery returns R, the number of arrivals between two solves of the
-// members on the record path (Add), for a window of capacity n: n/100,
-// between 16 and 100 (100 at the default window of 10,000). A solve builds
-// the standardized Gram matrix from the sums (O(d²)) and runs warm-started
-// coordinate descent on every member; measured at d = 128, window 10,000
-// (BenchmarkExactPath), Add cost 10.3, 6.5 and 5.1 µs per record at R = 32,
-// 64 and 100, of which 2.6 µs is the rank-one update and the rest the
-// solves. Between solves the members are at most R records old, which only
-// the test-then-train loss of the drift watch sees: every read that
-// leaves the process (Optimum, OptimumPath, KKT) solves for itself from the
-// current sums, and Idle solves whenever anything is stale. At R = 100 on
-// a window of 10,000 the member is 0.08 % from the current optimum on
-// average, against 0.12–0.27 % for the SAGA members (BenchmarkExactPath,
-// dist-stream).
+// solveEvery returns R, the number of arrivals between two refreshes of
+// the scale on the record path (Add), for a window of capacity n: n/100,
+// between 16 and 100 (100 at the default window of 10,000). A refresh
+// marks every member stale; a member is solved on the record path only
+// when the caller readies it (Ladder.Ready: the system G, c built from the
+// sums in O(d²), then coordinate descent warm from its last solution), so
+// a record pays for the member it reads, not for all K. Measured at
+// d = 128, window 10,000 (BenchmarkExactPath, stream-ns/rec: Ready and Eta
+// of one member, then Add; three runs, 2026-12-02): 2.95–3.08 µs per
+// record, of which about 2.3 µs is the rank-one update; when every member
+// was solved every R records it was 5.2 µs (one run of the tree before,
+// same session; 10.3, 6.5 and 5.1 µs at R = 32, 64 and 100 in an earlier
+// measurement). A member read is at most R records old, which only the
+// test-then-train loss of the drift watch sees: every read that leaves
+// the process (Optimum, OptimumPath, KKT) solves for itself from the
+// current sums, a read of a stale member solves a copy, and Idle solves
+// whenever anything is stale. At R = 100 on a window of 10,000 the member
+// read is 0.077 % from the current optimum on average, against
+// 0.12–0.27 % for the SAGA members (BenchmarkExactPath, dist-stream).
 func solveEvery(n int) int { return max(16, min(100, n/100)) }
 
 // gramMember is one λ of a gram ladder: the exact minimizer of F on the
@@ -27,11 +32,23 @@ type gramMember struct {
 	b      float64   // intercept: the window's weighted mean label
 	theta  []float64 // standardized coefficients (a row of covLearner.theta)
 	kkt    float64   // KKT violation at the last solve (from G and c)
+	stale  bool      // not solved since the last refresh of the scale or a change of λ (covLearner.ensure)
+	c      *covLearner
+	i      int // the member's index in c.ms
 }
 
 var _ member = (*gramMember)(nil)
 
-func (m *gramMember) params() (float64, []float64) { return m.b, m.theta }
+// params returns the member, or for a stale member its solve on the
+// current window into scratch (covLearner.read), which is not kept: every
+// read sees a member solved on the working scale, and no read changes
+// what the ladder computes later.
+func (m *gramMember) params() (float64, []float64) {
+	if m.stale {
+		return m.c.read(m.i)
+	}
+	return m.b, m.theta
+}
 
 // covLearner is the "gram" learner, for the squared loss only. It keeps the
 // train window's records (the trainset shared with the SAGA learner, so
@@ -70,10 +87,14 @@ type covLearner struct {
 	builtAt int       // window length at that rebuild
 
 	every      int  // R, solveEvery of the capacity
-	stale      bool // the window or the grid changed since the members were solved
+	stale      bool // the window or the grid changed since the last refresh of the scale for a solve
 	due        bool // the scale was refreshed for a solve that run makes
+	lazy       bool // the due solve is the record path's: run marks the members stale instead
 	solved     bool // the members have been solved at least once
 	sinceSolve int  // arrivals since the last solve
+
+	sys  bool    // solver holds the system of the current sums on the working scale (ensure)
+	ybar float64 // the weighted mean label of that system
 
 	solver gramSolver
 	xc, xo []float64 // scratch: shifted arriving and evicted rows
@@ -81,6 +102,7 @@ type covLearner struct {
 	sd     []float64
 	inv    []float64
 	thetaR []float64 // scratch: a member's θ for reads
+	thetaP []float64 // scratch: a stale member's θ as read (read)
 }
 
 var _ learner = (*covLearner)(nil)
@@ -95,10 +117,10 @@ func newCov(o *Options, d int) *covLearner {
 	c := &covLearner{
 		ts: newTrainset(d, o.Window), alpha: o.Penalty.Mix, span: o.Span.Milliseconds(), every: solveEvery(o.Window),
 		theta: mk(o.Size * d), cx: mk(d), sx: mk(d), sxy: mk(d), sxx: mk(d * d),
-		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d),
+		solver: newGramSolver(d), xc: mk(d), xo: mk(d), mu: mk(d), sd: mk(d), inv: mk(d), thetaR: mk(d), thetaP: mk(d),
 	}
 	for k := range o.Size {
-		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d]})
+		c.ms = append(c.ms, &gramMember{theta: c.theta[k*d : (k+1)*d : (k+1)*d], c: c, i: k})
 	}
 	return c
 }
@@ -125,18 +147,21 @@ func (c *covLearner) setLambdas(lambdas []float64) {
 	for i, m := range c.ms {
 		if m.lambda != lambdas[i] {
 			m.lambda = lambdas[i]
-			c.stale = true
+			m.stale, c.stale = true, true
 		}
 	}
 }
 
 // shift re-seats the members after the grid moved by k steps: member i
-// becomes a copy of its nearest old neighbour (a warm start).
+// becomes a copy of its nearest old neighbour (a warm start), λ and
+// staleness included, so that setLambdas, which follows, leaves a member
+// whose λ did not change as it was and marks the others stale.
 func (c *covLearner) shift(k int) {
 	K := len(c.ms)
 	cp := func(i, j int) {
 		if i != j {
-			c.ms[i].b = c.ms[j].b
+			mi, mj := c.ms[i], c.ms[j]
+			mi.lambda, mi.b, mi.kkt, mi.stale = mj.lambda, mj.b, mj.kkt, mj.stale
 			copy(c.ms[i].theta, c.ms[j].theta)
 		}
 	}
@@ -156,7 +181,8 @@ func (c *covLearner) shift(k int) {
 // the oldest one of a full window (its rank-one term removed and the new
 // one added in one pass) or is appended. It reports whether the scale was
 // refreshed for a solve (every R arrivals, solveEvery, and after a
-// rebuild), which run then makes.
+// rebuild); run then marks the members stale, and each is solved when the
+// caller readies it (Ladder.Ready, ensure) or reads it (a copy, read).
 func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := c.ts
 	if c.span > 0 && t != 0 {
@@ -181,12 +207,14 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	c.sinceSolve++
 	if c.rebuildDue() {
 		c.rebuild()
+		c.lazy = true
 		return c.prepare()
 	}
 	if c.sinceSolve >= c.every {
 		if c.shiftFar() {
 			c.rebuild()
 		}
+		c.lazy = true
 		return c.prepare()
 	}
 	return false
@@ -238,6 +266,7 @@ func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y fl
 		c.xc[j] = x[j] - c.cx[j]
 	}
 	ey := y - c.cy
+	c.sys = false
 	if xo == nil {
 		for j := range d {
 			axpy(w*c.xc[j], c.xc[j:], c.sxx[j*d+j:(j+1)*d])
@@ -273,6 +302,7 @@ func (c *covLearner) evict() {
 	m, _ := ts.ring.Oldest()
 	x := ts.row(ts.ring.Slot(0))
 	d := ts.d
+	c.sys = false
 	for j := range d {
 		c.xo[j] = x[j] - c.cx[j]
 	}
@@ -290,6 +320,7 @@ func (c *covLearner) evict() {
 
 // clearSums empties the sums.
 func (c *covLearner) clearSums() {
+	c.sys = false
 	clear(c.sxx)
 	clear(c.sx)
 	clear(c.sxy)
@@ -321,24 +352,45 @@ func (c *covLearner) rebuild() {
 // true so that the ladder re-anchors its grid on the refreshed λ_max.
 func (c *covLearner) prepare() bool {
 	c.ts.refresh()
-	c.due = true
+	c.due, c.sys = true, false
 	return true
 }
 
-// run solves the members when a solve is due (after add or rescale);
-// steps are ignored: the gram learner takes no stochastic steps.
+// run makes the solve that is due (after add, rescale or shrink); steps
+// are ignored: the gram learner takes no stochastic steps. The record
+// path's solve (add) only marks every member stale: a member is solved
+// when the caller asks for it (Ladder.Ready, ensure), so a record pays
+// for the members the caller reads on the record path (the pipeline
+// reads one, its current model, per record) and not for all K. The other
+// solves (Idle, Shrink) solve every member.
 func (c *covLearner) run(int) {
-	if c.due {
-		c.solve()
+	if !c.due {
+		return
 	}
+	if c.lazy {
+		c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
+		for _, m := range c.ms {
+			m.stale = true
+		}
+		return
+	}
+	c.solve()
 }
 
-// rescale prepares a solve if anything changed since the last (Idle).
+// rescale prepares a solve of every member if anything changed since the
+// last refresh, or if a member is stale (Idle).
 func (c *covLearner) rescale() bool {
-	if !c.stale || c.ts.ring.Len() == 0 {
+	if c.ts.ring.Len() == 0 {
 		return false
 	}
-	return c.prepare()
+	c.lazy = false
+	if c.stale {
+		return c.prepare()
+	}
+	for _, m := range c.ms {
+		c.due = c.due || m.stale
+	}
+	return false
 }
 
 // shrink evicts all but the newest n records and rebuilds the sums.
@@ -350,6 +402,7 @@ func (c *covLearner) shrink(n int) bool {
 	for c.ts.ring.Len() > n {
 		c.evict()
 	}
+	c.lazy = false
 	c.rebuild()
 	if c.ts.ring.Len() == 0 {
 		return false
@@ -361,11 +414,15 @@ func (c *covLearner) shrink(n int) bool {
 // ts.inv), each from its previous solution (on the first solve, from the
 // member above it: warm starts down the path).
 func (c *covLearner) solve() {
-	c.due, c.stale, c.sinceSolve = false, false, 0
+	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
+	for _, m := range c.ms {
+		m.stale = false
+	}
 	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
 		return
 	}
 	ybar := c.system(c.ts.inv)
+	c.sys, c.ybar = true, ybar
 	for i, m := range c.ms {
 		if !c.solved && i > 0 {
 			copy(m.theta, c.ms[i-1].theta)
@@ -384,6 +441,7 @@ func (c *covLearner) solve() {
 // row and column.
 func (c *covLearner) system(inv []float64) float64 {
 	d := c.ts.d
+	c.sys = false
 	g, cv, mx := c.solver.g, c.solver.c, c.solver.r
 	rw := 1 / c.sw
 	for j := range d {
@@ -427,10 +485,12 @@ func (c *covLearner) converge(l *Ladder, tol float64, _ int) bool {
 	c.rebuild()
 	c.prepare()
 	l.reanchor(c.lambdaMax(l.alpha0))
-	c.due, c.stale, c.sinceSolve = false, false, 0
+	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
 	ybar := c.system(c.ts.inv)
+	c.sys, c.ybar = true, ybar
 	ok := true
 	for i, m := range c.ms {
+		m.stale = false
 		if !c.solved && i > 0 {
 			copy(m.theta, c.ms[i-1].theta)
 		}

@@ -2,10 +2,55 @@ package online
 
 import "math"
 
-// The gram learner's exact reads: Ladder.KKT, Optimum, OptimumPath,
-// ModelKKT and the ridge spectrum's Gram matrix. They change only scratch
-// buffers, never the learner's state: a read of a window that moved since
-// the members' solve solves a copy from the current sums.
+// The gram learner's reads: a stale member as read (read) or readied for
+// the record path (ensure, Ladder.Ready), and the exact reads Ladder.KKT,
+// Optimum, OptimumPath, ModelKKT and the ridge spectrum's Gram matrix.
+// Apart from ensure they change only scratch buffers, never the learner's
+// state: a read of a window that moved since the members' solve solves a
+// copy from the current sums.
+
+// ensure solves stale member i from the current sums on the working scale
+// (the scale of the last refresh, on which every member read is), warm
+// from its own last solution, to gramTarget, and keeps the solution
+// (Ladder.Ready).
+func (c *covLearner) ensure(i int) {
+	m := c.ms[i]
+	if !m.stale {
+		return
+	}
+	m.stale = false
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return
+	}
+	m.b, m.kkt = c.solveStale(m, m.theta)
+}
+
+// read returns stale member i as a read sees it: what ensure would make of
+// it now, solved in scratch (thetaP, valid until the next read) and not
+// kept, so that a read changes nothing the ladder computes later (the
+// daemon reads its members on a clock, and its models must not depend on
+// when).
+func (c *covLearner) read(i int) (float64, []float64) {
+	m := c.ms[i]
+	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
+		return m.b, m.theta
+	}
+	copy(c.thetaP, m.theta)
+	b, _ := c.solveStale(m, c.thetaP)
+	return b, c.thetaP
+}
+
+// solveStale solves member m in th (its coefficients or a copy) from the
+// current sums on the working scale and returns the intercept and the KKT
+// violation. The system G, c is built once for all the members solved
+// until the sums or the scale change (sys).
+func (c *covLearner) solveStale(m *gramMember, th []float64) (float64, float64) {
+	if !c.sys {
+		c.ybar = c.system(c.ts.inv)
+		c.sys = true
+	}
+	return c.ybar, c.solver.solve(th, m.lambda, c.alpha, gramTarget)
+}
 
 // exactScale fills the scratch scale with the window's exact running
 // scale (the scale of Ladder.KKT and Optimum).
@@ -23,10 +68,11 @@ func (c *covLearner) kkt(i int) float64 {
 	if c.ts.ring.Len() == 0 || !(c.sw > 0) {
 		return 0
 	}
+	m := c.ms[i]
+	b, th := m.params()
 	c.exactScale()
 	ybar := c.system(c.inv)
-	m := c.ms[i]
-	return max(math.Abs(m.b-ybar), c.solver.violation(m.theta, m.lambda, c.alpha))
+	return max(math.Abs(b-ybar), c.solver.violation(th, m.lambda, c.alpha))
 }
 
 // recordsKKT returns the KKT violation of intercept b and coefficients th
@@ -75,7 +121,7 @@ func (c *covLearner) recordsKKT(b float64, th []float64, lam float64) float64 {
 // changed.
 func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) {
 	m := c.ms[i]
-	if !c.stale && m.kkt <= target {
+	if !c.stale && !m.stale && m.kkt <= target {
 		return l.Model(i), m.kkt
 	}
 	c.exactScale()
@@ -97,7 +143,7 @@ func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) 
 func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 	fresh := !c.stale
 	for _, m := range c.ms {
-		fresh = fresh && m.kkt <= o.Target
+		fresh = fresh && !m.stale && m.kkt <= o.Target
 	}
 	if fresh {
 		for i, m := range c.ms {
@@ -121,18 +167,10 @@ func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 }
 
 // model returns member i's Model with intercept b and coefficients th on
-// the scratch (exact) scale.
+// the scratch (exact) scale. It does not read the member (which would
+// solve a stale one and overwrite the solver's system).
 func (c *covLearner) model(l *Ladder, i int, b float64, th []float64) Model {
-	md := l.Model(i)
-	md.StdIntercept, md.Intercept = b, b
-	copy(md.Standardized, th)
-	for j, t := range th {
-		cj := t * c.inv[j]
-		md.Coef[j] = cj
-		md.Intercept -= cj * c.mu[j]
-		md.Mean[j], md.Std[j] = c.mu[j], c.sd[j]
-	}
-	return md
+	return l.modelOf(i, b, th, c.mu, c.sd, c.inv)
 }
 
 // gram is gramLearner.gram (the ridge grid's spectrum) from the sums, on

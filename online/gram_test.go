@@ -1,8 +1,11 @@
 package online
 
 import (
+	"bytes"
+	"errors"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -288,5 +291,159 @@ func TestModelKKT(t *testing.T) {
 	m := d.Model(0)
 	if k := d.ModelKKT(&m); !math.IsNaN(k) {
 		t.Errorf("decay: %g, want NaN", k)
+	}
+}
+
+// TestGramSolveOnRead: on the record path the gram learner solves only the
+// members it is asked for (Ladder.Ready). After each refresh of the scale
+// every member is stale. A read of a stale member (Eta, Nonzero, Model,
+// KKT) sees it solved on the current window: its KKT conditions measured
+// on the records (Hastie, Tibshirani & Wainwright 2015, ch. 2;
+// Ladder.ModelKKT, one pass, not the sums) hold to DefaultKKT and it is
+// within 1e-7 of the window's optimum (Ladder.Optimum to 1e-12); the read
+// keeps nothing (the saved state is byte for byte the same). Ready then
+// solves that member alone and keeps exactly what the read saw. Idle
+// solves every stale member.
+func TestGramSolveOnRead(t *testing.T) {
+	const d, n = 8, 2000 // R = solveEvery(2000) = 20
+	p := makeProblem(21, 3*n, d, 4, false, true)
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := l.lrn.(*covLearner)
+	stale := func() (k int) {
+		for _, m := range c.ms {
+			if m.stale {
+				k++
+			}
+		}
+		return k
+	}
+	reads := []struct {
+		name string
+		read func(i int)
+	}{
+		{"Eta", func(i int) { l.Eta(i, p.record(0).X) }},
+		{"Nonzero", func(i int) { l.Nonzero(i) }},
+		{"Model", func(i int) { l.Model(i) }},
+		{"KKT", func(i int) { l.KKT(i) }},
+	}
+	at := 0
+	for i := 0; i < 3*n; i++ {
+		if err := l.Add(p.record(i)); err != nil {
+			t.Fatal(err)
+		}
+		if i < n || c.sinceSolve != 0 {
+			continue
+		}
+		// The refresh just happened: every member is stale.
+		if k := stale(); k != l.Size() {
+			t.Fatalf("record %d: %d stale members after the refresh, want %d", i, k, l.Size())
+		}
+		m := 2 + at%(l.Size()-2)
+		rd := reads[at%len(reads)]
+		at++
+		before := must(l.MarshalBinary())
+		rd.read(m)
+		md := l.Model(m)
+		if !bytes.Equal(before, must(l.MarshalBinary())) {
+			t.Fatalf("record %d: %s(%d) and Model(%d) changed the ladder", i, rd.name, m, m)
+		}
+		if k := l.ModelKKT(&md); !(k <= DefaultKKT) {
+			t.Errorf("record %d: member %d as read: KKT on the records %g", i, m, k)
+		}
+		ref := l.Optimum(m, nil, &ExactOptions{Tol: 1e-12, Target: 1e-12, Rounds: 100}).Model
+		if dist := relDist(md.Standardized, ref.Standardized); !(dist <= 1e-7) {
+			t.Errorf("record %d: member %d %g from the optimum", i, m, dist)
+		}
+		l.Ready(m)
+		if k := stale(); k != l.Size()-1 || c.ms[m].stale {
+			t.Fatalf("record %d: Ready(%d) left %d stale members (member %d stale: %v), want %d", i, m, k, m, c.ms[m].stale, l.Size()-1)
+		}
+		if got := l.Model(m); !slices.Equal(got.Standardized, md.Standardized) || got.StdIntercept != md.StdIntercept {
+			t.Fatalf("record %d: member %d after Ready differs from the member as read", i, m)
+		}
+	}
+	if at < 50 {
+		t.Fatalf("%d refreshes checked, want 50 or more", at)
+	}
+	l.Idle(1)
+	if k := stale(); k != 0 {
+		t.Errorf("Idle left %d stale members", k)
+	}
+}
+
+// TestGramFrom: a SAGA ladder of the squared loss taken over by a gram
+// ladder keeps its window (the same records in the same order, with their
+// weights and times), records seen and width, and each member equals, to
+// 1e-12, a gram ladder with that member's λ fixed that was fed the window's
+// records and converged (its own KKT solve to 1e-12, from zero). The SAGA
+// ladder is not changed; another learner or loss is refused.
+func TestGramFrom(t *testing.T) {
+	en := ElasticNet(0.7)
+	for _, pen := range []*Penalty{nil, &en} {
+		o := Options{Features: 6, Window: 400, Penalty: pen, Span: 0, Seed: 3}
+		s, err := NewLadder(&o)
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := makeProblem(31, 1000, 6, 3, false, true)
+		for i := range 1000 {
+			r := p.record(i)
+			r.T = int64(1000 * (i + 1))
+			if i%7 == 0 {
+				r.W = 0.5
+			}
+			if err := s.Add(r); err != nil {
+				t.Fatal(err)
+			}
+		}
+		before := must(s.MarshalBinary())
+		g, err := GramFrom(s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(before, must(s.MarshalBinary())) {
+			t.Fatal("GramFrom changed the SAGA ladder")
+		}
+		if g.Learner() != "gram" || g.Len() != s.Len() || g.Seen() != s.Seen() || g.Features() != s.Features() {
+			t.Fatalf("gram ladder: %s, %d records, %d seen, width %d; want gram, %d, %d, %d",
+				g.Learner(), g.Len(), g.Seen(), g.Features(), s.Len(), s.Seen(), s.Features())
+		}
+		ws, wg := s.lrn.(*sagaLearner).ts, g.lrn.(*covLearner).ts
+		window := make([]Record, 0, s.Len())
+		for i, slot := range ws.order() {
+			a, b := ws.ring.At(i), wg.ring.At(i)
+			xa, xb := ws.row(slot), wg.row(wg.order()[i])
+			if a != b || !slices.Equal(xa, xb) {
+				t.Fatalf("window record %d: %+v %v, SAGA's %+v %v", i, b, xb, a, xa)
+			}
+			window = append(window, Record{X: slices.Clone(xa), Y: a.y, W: a.w, T: a.t})
+		}
+		for i := range g.Size() {
+			lam := g.Lambda(i)
+			ref, err := NewLadder(&Options{Features: 6, Window: 400, Penalty: pen, Lambda: lam, Learner: "gram"})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, r := range window {
+				if err := ref.Add(r); err != nil {
+					t.Fatal(err)
+				}
+			}
+			ref.Converge(1e-9, 1) // solves to min(tol/1000, gramTarget) = 1e-12
+			a, b := g.Model(i), ref.Model(0)
+			if d := relDist(a.Standardized, b.Standardized); !(d <= 1e-12) || math.Abs(a.Intercept-b.Intercept) > 1e-12*math.Abs(b.Intercept)+1e-12 {
+				t.Errorf("member %d (λ %g): %g from the reference, intercept %v against %v", i, lam, d, a.Intercept, b.Intercept)
+			}
+		}
+	}
+	d, _ := NewLadder(&Options{Features: 3, Learner: "decay"})
+	l, _ := NewLadder(&Options{Features: 3, Loss: Logistic{}})
+	for _, bad := range []*Ladder{d, l} {
+		if _, err := GramFrom(bad); !errors.Is(err, ErrOptions) {
+			t.Errorf("%s %s: %v, want ErrOptions", bad.Learner(), bad.Loss().Name(), err)
+		}
 	}
 }

@@ -337,6 +337,23 @@ func (l *Ladder) Idle(steps int) {
 	l.lrn.run(steps)
 }
 
+// Ready makes member i current for a read on the record path. The gram
+// learner solves on the record path only the members its caller asks for:
+// every solveEvery records its members become stale, and Ready solves
+// member i when it is stale and keeps the solution (the warm start of its
+// next solve). A read of a stale member (Eta, Model, Nonzero, KKT, Score)
+// solves a copy each time and keeps nothing, so reads made on a clock (the
+// daemon's publications) never change what the ladder computes later; a
+// caller that reads a member per record (the pipeline's test-then-train
+// loss) calls Ready first, on the record path, so that the member is
+// solved once per refresh. The other learners have nothing to do. Ready
+// does not allocate.
+func (l *Ladder) Ready(i int) {
+	if c, ok := l.lrn.(*covLearner); ok {
+		c.ensure(i)
+	}
+}
+
 // Shrink keeps only the newest n records of the train window (for drift
 // adaptation); the models stay warm. For the decay learner it discounts the
 // accumulated state so that it weighs at most n records.

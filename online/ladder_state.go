@@ -86,8 +86,8 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // wrapping ErrState; no input makes it panic, and it allocates only the
 // buffers of the ladder that b describes.
 //
-// The format, version 4, written with window.Encoder: the version byte 4
-// and the type byte 'L'; the options (loss name, penalty mix, features
+// The format, version 5, written with window.Encoder: the version byte 5
+// (4 is read too, see stateVersion) and the type byte 'L'; the options (loss name, penalty mix, features
 // (the current width, see Grow), max features, window, span in
 // nanoseconds, size, floor, fixed λ, steps, seed, learner name,
 // half-life, unpenalized); the records seen, λ_max, the anchor of the grid and the
@@ -95,15 +95,12 @@ func (l *Ladder) MarshalBinary() ([]byte, error) {
 // bottom to its top, the extension, the two degrees of freedom and the
 // rank of a ridge anchor, the records seen and the window length at the
 // last spectrum, and whether a spectrum is due); then the learner's state (sagaLearner.encode,
-// decayLearner.encode, covLearner.encode). The gram learner came with no
-// new version: its state follows the learner name "gram", which a reader
-// without it refuses (unknown learner), and the other learners' layouts
-// did not change. Integers are varints, float64 their little-endian
+// decayLearner.encode, covLearner.encode). Integers are varints, float64 their little-endian
 // IEEE 754 bits, strings, byte strings and float64 slices carry a varint
 // length.
 func UnmarshalLadder(b []byte) (*Ladder, error) {
 	d := window.NewDecoder(b)
-	header(d, stateLadder)
+	version := header(d, stateLadder)
 	opt := decodeOptions(d)
 	if d.Err() != nil {
 		return nil, stateErr(d.Err())
@@ -132,7 +129,7 @@ func UnmarshalLadder(b []byte) (*Ladder, error) {
 	case *decayLearner:
 		lrn.decode(d)
 	case *covLearner:
-		lrn.decode(d)
+		lrn.decode(d, version)
 	}
 	if err := finish(d); err != nil {
 		return nil, err
@@ -412,7 +409,7 @@ func (ts *trainset) decode(d *window.Decoder, table []float64, k int) {
 // encode appends the gram learner's state: the train window (records
 // without gradients, scaler and scales, as trainset.encode), the shift and
 // the sums bit for bit, the rebuild and solve bookkeeping, then the
-// members (λ, intercept, KKT at the last solve, coefficients).
+// members (λ, intercept, KKT at the last solve, coefficients, stale).
 func (c *covLearner) encode(e *window.Encoder) {
 	c.ts.encode(e, nil, 0)
 	e.PutFloat64s(c.cx)
@@ -428,17 +425,21 @@ func (c *covLearner) encode(e *window.Encoder) {
 	e.PutBool(c.due)
 	e.PutBool(c.solved)
 	e.PutUvarint(uint64(c.sinceSolve))
+	e.PutBool(c.lazy)
 	e.PutUvarint(uint64(len(c.ms)))
 	for _, m := range c.ms {
 		e.PutFloat64(m.lambda)
 		e.PutFloat64(m.b)
 		e.PutFloat64(m.kkt)
 		e.PutFloat64s(m.theta)
+		e.PutBool(m.stale)
 	}
 }
 
-// decode reads what encode wrote into a learner fresh from newCov.
-func (c *covLearner) decode(d *window.Decoder) {
+// decode reads what encode wrote into a learner fresh from newCov; a
+// state of version 4 has no stale flags (every member at its last solve)
+// and no lazy flag (its due solve solves every member).
+func (c *covLearner) decode(d *window.Decoder, version byte) {
 	c.ts.decode(d, nil, 0)
 	d.Float64sInto(c.cx)
 	c.cy, c.sw, c.sy = d.Float64(), d.Float64(), d.Float64()
@@ -449,12 +450,18 @@ func (c *covLearner) decode(d *window.Decoder) {
 	c.builtAt = d.Count("length at rebuild", c.ts.ring.Cap())
 	c.stale, c.due, c.solved = d.Bool(), d.Bool(), d.Bool()
 	c.sinceSolve = d.Count("arrivals since solve", maxStateInt)
+	if version >= 5 {
+		c.lazy = d.Bool()
+	}
 	if n := d.Count("members", maxStateSize); d.Err() == nil && n != len(c.ms) {
 		d.Failf("%d members, want %d", n, len(c.ms))
 	}
 	for _, m := range c.ms {
 		m.lambda, m.b, m.kkt = d.Float64(), d.Float64(), d.Float64()
 		d.Float64sInto(m.theta)
+		if version >= 5 {
+			m.stale = d.Bool()
+		}
 	}
 }
 

@@ -23,6 +23,12 @@ type Model struct {
 func (l *Ladder) Model(i int) Model {
 	b, th := l.members[i].params()
 	mu, sd, inv := l.scale()
+	return l.modelOf(i, b, th, mu, sd, inv)
+}
+
+// modelOf returns member i's Model with intercept b and standardized
+// coefficients th on the scale mu, sd, inv (all copied).
+func (l *Ladder) modelOf(i int, b float64, th, mu, sd, inv []float64) Model {
 	m := Model{
 		Loss: l.opt.Loss.Name(), Penalty: *l.opt.Penalty, Lambda: l.lambdas[i], Index: i,
 		Coef: make([]float64, l.d), Standardized: append([]float64(nil), th...),

@@ -20,9 +20,17 @@ var ErrState = errors.New("online: bad state")
 // Version 4 is written with window.Encoder, every float64 slice with its
 // length. It added a ladder's maximum width and its fresh columns (a
 // ladder that grows, width.go), its Unpenalized option and the placement
-// of its grid (grid.go). Versions 1 to 3 are no longer read. A change to
-// the saved fields or their order takes a new version.
-const stateVersion = 4
+// of its grid (grid.go). Version 5 added the gram learner's solve on read
+// (whether the due solve is the record path's, and a stale flag per
+// member); it is the version written. Version 4 is still read: its
+// layouts differ only there, and a gram learner of version 4 has every
+// member solved at its last solve, as that version kept them. Versions 1
+// to 3 are no longer read. A change to the saved fields or their order
+// takes a new version.
+const stateVersion = 5
+
+// stateOldest is the oldest version read.
+const stateOldest = 4
 
 // Type bytes of the encodings.
 const (
@@ -89,16 +97,17 @@ func putHeader(e *window.Encoder, typ byte) {
 // putString appends v with its length.
 func putString(e *window.Encoder, v string) { e.PutBlob([]byte(v)) }
 
-// header checks the version and the type byte.
-func header(d *window.Decoder, typ byte) {
+// header checks the version and the type byte, and returns the version.
+func header(d *window.Decoder, typ byte) byte {
 	v := d.Byte()
-	if d.Err() == nil && v != stateVersion {
-		d.Failf("format version %d (want %d)", v, stateVersion)
+	if d.Err() == nil && (v < stateOldest || v > stateVersion) {
+		d.Failf("format version %d (want %d to %d)", v, stateOldest, stateVersion)
 	}
 	t := d.Byte()
 	if d.Err() == nil && t != typ {
 		d.Failf("type %q (want %q)", t, typ)
 	}
+	return v
 }
 
 // need reports whether the input still holds n elements of at least size
@@ -179,7 +188,8 @@ func (h *Holdout) MarshalBinary() ([]byte, error) {
 }
 
 // UnmarshalBinary replaces h (which may be the zero Holdout) by the state
-// that MarshalBinary saved. The format, version 4, is: the version byte 4,
+// that MarshalBinary saved. The format, version 5 (4 is read too: the
+// same layout), is: the version byte,
 // the type byte 'H', then as unsigned varints the features d, the capacity,
 // the slot of the oldest record and the number of records n, the loss name
 // ("" for none) with a varint length, and n records oldest first, each its
@@ -246,8 +256,8 @@ func (c *Chooser) MarshalBinary() ([]byte, error) {
 }
 
 // UnmarshalBinary replaces c by the state that MarshalBinary saved, so
-// that the same scores then give the same choices. The format, version 4,
-// is: the version byte 4, the type byte 'C', the rule as a signed varint,
+// that the same scores then give the same choices. The format, version 5
+// (4 is read too: the same layout), is: the version byte, the type byte 'C', the rule as a signed varint,
 // started as a byte 0 or 1, and the current and pending choices as signed
 // varints. An unknown rule or a choice below −1 is refused. Any defect
 // returns an error wrapping ErrState and leaves c unchanged.

@@ -412,3 +412,76 @@ func BenchmarkLadderMarshal(b *testing.B) {
 		})
 	}
 }
+
+// TestLadderStateVersion4 restores encodings of the previous format,
+// version 4, which differs from version 5 only in the gram learner's solve
+// flags: a SAGA and a decay ladder whose version byte says 4 restore to
+// the same ladder, and a gram ladder written without the flags (every
+// member solved, as version 4 kept them) restores with none stale and
+// continues bit for bit with the ladder it was saved from.
+func TestLadderStateVersion4(t *testing.T) {
+	for _, c := range stateCases() {
+		if c.prep != nil {
+			continue
+		}
+		t.Run(c.name, func(t *testing.T) {
+			rs := c.records(400)
+			a, err := NewLadder(&c.opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, r := range rs[:300] {
+				if err := a.Add(r); err != nil {
+					t.Fatal(err)
+				}
+			}
+			a.Idle(1) // gram: every member solved, the state version 4 could hold
+			v5 := must(a.MarshalBinary())
+			v4 := bytes.Clone(v5)
+			v4[0] = 4
+			if g, ok := a.lrn.(*covLearner); ok {
+				v4 = dropSolveFlags(t, v4, len(g.ms), a.Features())
+			}
+			b, err := UnmarshalLadder(v4)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if again := must(b.MarshalBinary()); !bytes.Equal(again, v5) {
+				t.Fatalf("version 4 restored and saved again: %d bytes differ from version 5's %d", len(again), len(v5))
+			}
+			for _, r := range rs[300:] {
+				if err := a.Add(r); err != nil {
+					t.Fatal(err)
+				}
+				if err := b.Add(r); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if !bytes.Equal(must(a.MarshalBinary()), must(b.MarshalBinary())) {
+				t.Fatal("the ladder restored from version 4 did not continue bit for bit")
+			}
+		})
+	}
+}
+
+// dropSolveFlags rewrites the end of a gram ladder's encoding of k members
+// of d < 128 features into version 4's layout: without the lazy flag
+// (before the member count) and each member's stale flag (after its
+// coefficients), which must all be false.
+func dropSolveFlags(t *testing.T, b []byte, k, d int) []byte {
+	t.Helper()
+	size := 3*8 + 1 + 8*d + 1 // λ, b, KKT; θ with its length; stale
+	tail := len(b) - k*size
+	if tail < 2 || b[tail-1] != byte(k) || b[tail-2] != 0 {
+		t.Fatalf("unexpected layout: member count %d, lazy %d", b[tail-1], b[tail-2])
+	}
+	out := append(bytes.Clone(b[:tail-2]), byte(k))
+	for i := range k {
+		m := b[tail+i*size : tail+(i+1)*size]
+		if m[size-1] != 0 {
+			t.Fatalf("member %d stale", i)
+		}
+		out = append(out, m[:size-1]...)
+	}
+	return out
+}

@@ -220,8 +220,9 @@ func TestConstantFeature(t *testing.T) {
 	}
 }
 
-// TestAddAllocs: Add allocates nothing per record, through evictions,
-// refreshes and resyncs, for both learners (testing.AllocsPerRun).
+// TestAddAllocs: Add, Ready and reads of a member (Eta) allocate nothing
+// per record, through evictions, refreshes and resyncs, for every learner
+// (testing.AllocsPerRun).
 func TestAddAllocs(t *testing.T) {
 	p := makeProblem(17, 64, 10, 3, false, false)
 	ridge := Ridge()
@@ -238,6 +239,9 @@ func TestAddAllocs(t *testing.T) {
 		add := func() {
 			r := p.record(i % 64)
 			r.T = int64(i) * 100
+			l.Ready(i % l.Size())      // the gram learner solves a stale member
+			_ = l.Eta(i%l.Size(), r.X) // and a read of one (Ready's other member) solves a copy
+			_ = l.Eta((i+1)%l.Size(), r.X)
 			_ = l.Add(r)
 			i++
 		}

@@ -268,8 +268,8 @@ func (c *covLearner) grow(n int) {
 	}
 	mk := func() []float64 { return make([]float64, n) }
 	c.solver = newGramSolver(n)
-	c.xc, c.xo, c.mu, c.sd, c.inv, c.thetaR = mk(), mk(), mk(), mk(), mk(), mk()
-	c.stale = true
+	c.xc, c.xo, c.mu, c.sd, c.inv, c.thetaR, c.thetaP = mk(), mk(), mk(), mk(), mk(), mk(), mk()
+	c.stale, c.sys = true, false
 }
 
 // reset clears column j (Ladder.ResetFeature).
@@ -296,5 +296,5 @@ func (c *covLearner) setCol(j int, v float64) {
 	for _, m := range c.ms {
 		m.theta[j] = 0
 	}
-	c.stale = true
+	c.stale, c.sys = true, false
 }

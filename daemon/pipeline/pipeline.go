@@ -57,10 +57,11 @@ type Pipeline struct {
 	dim        int
 	minPublish time.Duration
 
-	ladder  *online.Ladder
-	hold    *online.Holdout // nil when the holdout is off
-	chooser online.Chooser
-	split   window.Splitter
+	ladder   *online.Ladder
+	upgraded bool            // Restore took a SAGA ladder over into a gram ladder
+	hold     *online.Holdout // nil when the holdout is off
+	chooser  online.Chooser
+	split    window.Splitter
 
 	seq         uint64 // records applied (train + held out)
 	held        uint64 // records applied to the holdout
@@ -300,7 +301,10 @@ func (p *Pipeline) Apply(rec *record.Record, names []string, now time.Time) (*St
 	heldOut := p.split.Holdout(p.seq, rec.Key)
 	// Test-then-train: the current model's loss on the record before it
 	// learns from it (an honest out-of-sample loss for the drift watch).
-	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(max(p.current(), 0), r.X))
+	// Ready solves the member when the gram learner left it stale.
+	cur := max(p.current(), 0)
+	p.ladder.Ready(cur)
+	loss := p.ladder.Loss().Value(r.Y, p.ladder.Eta(cur, r.X))
 	if heldOut {
 		err = p.hold.Add(r)
 	} else {

@@ -135,7 +135,14 @@ func (p *Pipeline) marshalTuner(e enc) {
 // that are damaged or inconsistent, and a state made for another model or
 // under another learning configuration (loss, penalty, ladder, window,
 // holdout, learner, features, drift settings): the caller then starts the
-// model fresh. The threshold's mode and target are the configuration's, or
+// model fresh. One change of learner is taken over rather than refused: a
+// state of the squared loss saved with learner saga (explicit, or unset
+// in a version whose default was saga) restored with learner.kind unset
+// gets a gram ladder built from the SAGA ladder's window (online.GramFrom;
+// Upgraded reports it), with the rest of the state (held-out ring,
+// chooser, drift watch, threshold, version, stream position) as saved;
+// and a state saved with learner.kind unset by such a version is restored
+// under an explicit saga as it was. The threshold's mode and target are the configuration's, or
 // the saved override's (o.Threshold), as at a fresh start; the tuned
 // threshold itself is restored when they have not changed.
 func Restore(o Options, b []byte) (*Pipeline, error) {
@@ -151,7 +158,7 @@ func Restore(o Options, b []byte) (*Pipeline, error) {
 	if name := d.str(); !d.failed() && name != p.name {
 		return nil, fmt.Errorf("%w: the state is of model %q, not %q", ErrState, name, p.name)
 	}
-	if fp := d.uvarint(); !d.failed() && fp != fingerprint(p.cfg) {
+	if fp := d.uvarint(); !d.failed() && !fingerprintOK(fp, p.cfg) {
 		return nil, fmt.Errorf("%w: the model's learning configuration changed since the state was saved", ErrState)
 	}
 	if dim := d.int(); !d.failed() && dim != p.dim {
@@ -200,6 +207,9 @@ func (p *Pipeline) restoreModel(d dec, width int) error {
 	lad, err := online.UnmarshalLadder(lb)
 	if err != nil {
 		return fmt.Errorf("%w: ladder: %v", ErrState, err)
+	}
+	if lad, err = p.upgrade(lad); err != nil {
+		return err
 	}
 	if lad.Features() != width || lad.MaxFeatures() != p.dim || lad.Size() != p.ladder.Size() {
 		return fmt.Errorf("%w: ladder of %d×%d (at most %d wide), the model needs %d×%d (at most %d)", ErrState,
