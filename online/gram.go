@@ -348,10 +348,19 @@ func (c *covLearner) rebuild() {
 	}
 }
 
-// prepare refreshes the scale for the solve that run makes; it reports
+// prepare refreshes the scale for the solve that run makes and zeroes the
+// coefficients of constant features (as the SAGA learner's refresh: the
+// solver never moves a coefficient whose column of G is 0); it reports
 // true so that the ladder re-anchors its grid on the refreshed λ_max.
 func (c *covLearner) prepare() bool {
 	c.ts.refresh()
+	for j, v := range c.ts.inv {
+		if v == 0 {
+			for _, m := range c.ms {
+				m.theta[j] = 0
+			}
+		}
+	}
 	c.due, c.sys = true, false
 	return true
 }

@@ -447,3 +447,41 @@ func TestGramFrom(t *testing.T) {
 		}
 	}
 }
+
+// TestGramConstantFeature: a feature that goes constant on the window has
+// no coefficient in any member or optimum (its standardized column is 0,
+// so a nonzero θ_j is not a minimizer's: the lasso's KKT conditions, Hastie,
+// Tibshirani & Wainwright 2015, ch. 2, leave θ_j free only where X̃_j ≠ 0,
+// and the scaler's convention, like the SAGA learner's refresh, sets it to
+// 0), read on the record path and after Idle.
+func TestGramConstantFeature(t *testing.T) {
+	const n, d = 200, 4
+	p := gramStream(7, 4*n, d)
+	for i := 2 * n; i < 4*n; i++ {
+		p.x[i][0] = 1000 // feature 0, informative until now, goes flat
+	}
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, 2*n)
+	l.Idle(1)
+	if m := l.Model(l.Size() - 1); m.Standardized[0] == 0 {
+		t.Fatalf("feature 0 not in the smallest λ's model before it goes flat: %v", m.Standardized)
+	}
+	check := func(when string) {
+		t.Helper()
+		for i := range l.Size() {
+			if m := l.Model(i); m.Standardized[0] != 0 {
+				t.Errorf("%s: member %d θ_0 = %v on a constant feature", when, i, m.Standardized[0])
+			}
+			if o := l.Optimum(i, nil, nil); o.Model.Standardized[0] != 0 {
+				t.Errorf("%s: optimum %d θ_0 = %v on a constant feature", when, i, o.Model.Standardized[0])
+			}
+		}
+	}
+	feed(t, l, p, 2*n, 4*n)
+	check("record path")
+	l.Idle(1)
+	check("idle")
+}
