@@ -485,3 +485,29 @@ func TestGramConstantFeature(t *testing.T) {
 	l.Idle(1)
 	check("idle")
 }
+
+// TestGramResetFeatureReads: after ResetFeature (and Grow's seeding, the
+// same column rewrite) a member read is a solve on the window without the
+// column, not the old solution with its coefficient cut out: its KKT
+// violation (Hastie, Tibshirani & Wainwright 2015, ch. 2, from the learner's
+// sums) is within the published tolerance on the unchanged scale.
+func TestGramResetFeatureReads(t *testing.T) {
+	const n, d = 300, 5
+	p := gramStream(9, n, d)
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, n)
+	l.Idle(1)
+	i := l.Size() - 1
+	if m := l.Model(i); m.Standardized[0] == 0 {
+		t.Fatalf("feature 0 not in member %d: %v", i, m.Standardized)
+	}
+	l.ResetFeature(0)
+	for k := range l.Size() {
+		if v := l.KKT(k); !(v <= DefaultKKT) {
+			t.Errorf("member %d: KKT %g after ResetFeature", k, v)
+		}
+	}
+}
