@@ -511,3 +511,45 @@ func TestGramResetFeatureReads(t *testing.T) {
 		}
 	}
 }
+
+// TestGramStaleReadIntercept: a member read between two refreshes of the
+// scale, on a stream whose means drift, has the intercept that minimizes
+// the squared loss for its coefficients: the window's mean residual
+// y − η is 0 (the unpenalized intercept's optimality condition, ∂F/∂b = 0;
+// Friedman, Hastie & Tibshirani 2010, §2.1), here computed from the raw
+// records and Model.Eta, not from the learner's sums.
+func TestGramStaleReadIntercept(t *testing.T) {
+	const n, d = 2000, 6
+	p := gramStream(3, 3*n, d)
+	for i := range p.x {
+		for j := range d {
+			p.x[i][j] += 0.002 * float64(i) // the means drift 4 sd per window
+		}
+	}
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := l.lrn.(*covLearner)
+	checked := 0
+	for i := range 3 * n {
+		feed(t, l, p, i, i+1)
+		if i < n || c.sinceSolve != c.every-1 {
+			continue // read the members one record before the next refresh
+		}
+		for k := 1; k < l.Size(); k++ {
+			m := l.Model(k)
+			var r float64
+			for q := i - n + 1; q <= i; q++ {
+				r += p.y[q] - m.Eta(p.x[q])
+			}
+			if r /= n; !(math.Abs(r) <= 1e-9) {
+				t.Errorf("record %d: member %d's mean residual %g", i, k, r)
+			}
+		}
+		checked++
+	}
+	if checked < 50 {
+		t.Fatalf("%d reads checked, want 50 or more", checked)
+	}
+}
