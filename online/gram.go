@@ -293,7 +293,8 @@ func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y fl
 }
 
 // cancelLimit bounds the ratio of a removed record's term w(x_j − cx_j)²
-// to what remains of the diagonal sum S_jj: past it the removal cancelled
+// to what remains of the diagonal sum S_jj, and of its weight w to what
+// remains of W: past it the removal cancelled
 // more than six of the sums' sixteen digits (a record far out of the
 // window's spread, valid up to maxValue, has left), and the sums are
 // rebuilt from the records at once rather than at the next scheduled
@@ -305,6 +306,9 @@ const cancelLimit = 1e6
 // shifted row is in xo (swapSums, evict) cancelled the sums past
 // cancelLimit.
 func (c *covLearner) cancelled(wo float64) bool {
+	if !(wo <= cancelLimit*c.sw) {
+		return true // the weight sum W itself (a record of every feature at its shift)
+	}
 	d := c.ts.d
 	for j, v := range c.xo {
 		if v != 0 && wo*v*v > cancelLimit*c.sxx[j*d+j] {

@@ -594,3 +594,35 @@ func farRecord(t *testing.T, p problem, n, d int, lam float64) {
 		}
 	}
 }
+
+// TestGramHeavyRecordLeaves: a record of weight 1e20 (within the accepted
+// [1e-50, 1e50]) on a window whose feature is constant enters and leaves;
+// once it has left, the published intercept is the window's mean label
+// (with a constant feature the squared loss's minimizer is the intercept
+// alone, b = ȳ: common practice, no single source), not the NaN or
+// garbage of a weight sum that cancelled to 0.
+func TestGramHeavyRecordLeaves(t *testing.T) {
+	const n = 300
+	r := rand.New(rand.NewPCG(1, 2))
+	l, err := NewLadder(&Options{Features: 1, Window: n, Learner: "gram", Lambda: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sum float64
+	for i := range 3 * n {
+		y, w := r.NormFloat64(), 1.0
+		if i == n+7 {
+			y, w = 100, 1e20
+		}
+		if err := l.Add(Record{X: []float64{5}, Y: y, W: w}); err != nil {
+			t.Fatal(err)
+		}
+		if i >= 2*n {
+			sum += y
+		}
+	}
+	o := l.Optimum(0, nil, nil)
+	if want := sum / n; !(math.Abs(o.Model.Intercept-want) <= 1e-9) || o.Model.Weight != n {
+		t.Fatalf("intercept %v (want %v), weight %v (want %d), KKT %v", o.Model.Intercept, want, o.Model.Weight, n, o.KKT)
+	}
+}
