@@ -432,7 +432,8 @@ func (c *covLearner) rescale() bool {
 	return false
 }
 
-// shrink evicts all but the newest n records and rebuilds the sums.
+// shrink evicts all but the newest n records, rebuilds the sums and marks
+// every member stale.
 func (c *covLearner) shrink(n int) bool {
 	n = max(n, 0)
 	if c.ts.ring.Len() <= n {
@@ -445,6 +446,11 @@ func (c *covLearner) shrink(n int) bool {
 	c.rebuild()
 	if c.ts.ring.Len() == 0 {
 		return false
+	}
+	// The solve of every member waits for the next run (Add or Idle):
+	// until then a read solves a copy on the shrunk window.
+	for _, m := range c.ms {
+		m.stale = true
 	}
 	return c.prepare()
 }

@@ -626,3 +626,42 @@ func TestGramHeavyRecordLeaves(t *testing.T) {
 		t.Fatalf("intercept %v (want %v), weight %v (want %d), KKT %v", o.Model.Intercept, want, o.Model.Weight, n, o.KKT)
 	}
 }
+
+// TestGramShrinkReads: right after Shrink (drift adaptation), before any
+// record arrives, a member read is solved on the shrunk window: its KKT
+// violation (Hastie, Tibshirani & Wainwright 2015, ch. 2, from the
+// learner's sums on the refreshed scale) is within the published
+// tolerance, and its model equals the window's optimum.
+func TestGramShrinkReads(t *testing.T) {
+	const n, d = 1000, 5
+	p := gramStream(13, 2*n, d)
+	for i := n + n/2; i < 2*n; i++ {
+		p.y[i] -= 6 * (p.x[i][2] - 1000) // the newest half follows another truth
+	}
+	for _, o := range []Options{{Size: 6}, {Lambda: 0.05}} { // a grid that re-anchors, and a fixed λ
+		o.Features, o.Window, o.Learner = d, n, "gram"
+		shrinkReads(t, p, &o)
+	}
+}
+
+// shrinkReads is TestGramShrinkReads with the options o.
+func shrinkReads(t *testing.T, p problem, o *Options) {
+	t.Helper()
+	l, err := NewLadder(o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := o.Window
+	feed(t, l, p, 0, 2*n)
+	l.Idle(1)
+	l.Shrink(n / 2)
+	for i := range l.Size() {
+		if v := l.KKT(i); !(v <= DefaultKKT) {
+			t.Errorf("member %d: KKT %g after Shrink", i, v)
+		}
+		m, o := l.Model(i), l.Optimum(i, nil, nil).Model
+		if !(relDist(m.Standardized, o.Standardized) <= 1e-6) {
+			t.Errorf("member %d: %v, the optimum %v", i, m.Standardized, o.Standardized)
+		}
+	}
+}
