@@ -57,7 +57,6 @@ type share struct {
 	self   string        // this process's member id
 	ttl    time.Duration // instances.takeover: pinned TTL and member expiry
 	wait   time.Duration // the longest pull, and the view's refresh period
-	prefix string        // the stored subjects' tail after the partition token
 
 	mu      sync.Mutex
 	members []string  // the live members, sorted (mu)

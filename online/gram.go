@@ -185,9 +185,10 @@ func (c *covLearner) shift(k int) {
 // caller readies it (Ladder.Ready, ensure) or reads it (a copy, read).
 func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	ts := c.ts
+	lost := false
 	if c.span > 0 && t != 0 {
 		for m, ok := ts.ring.Oldest(); ok && m.t != 0 && m.t < t-c.span; m, ok = ts.ring.Oldest() {
-			c.evict()
+			lost = c.evict() || lost
 		}
 	}
 	if ts.ring.Len() == ts.ring.Cap() {
@@ -195,6 +196,7 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 		s := ts.ring.Slot(0)
 		old := ts.row(s)
 		c.swapSums(old, m.w, m.y, x, w, y)
+		lost = c.cancelled(m.w) || lost
 		ts.replace(x, y, w, t, 0, 0)
 		copy(old, x)
 	} else {
@@ -205,7 +207,7 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 	c.stale = true
 	c.built++
 	c.sinceSolve++
-	if c.rebuildDue() {
+	if c.rebuildDue() || lost {
 		c.rebuild()
 		c.lazy = true
 		return c.prepare()
@@ -290,14 +292,41 @@ func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y fl
 	c.sy += w*ey - wo*eo
 }
 
-// evict removes the oldest record from the sums and the window.
-func (c *covLearner) evict() {
+// cancelLimit bounds the ratio of a removed record's term w(x_j − cx_j)²
+// to what remains of the diagonal sum S_jj, and of its weight w to what
+// remains of W: past it the removal cancelled
+// more than six of the sums' sixteen digits (a record far out of the
+// window's spread, valid up to maxValue, has left), and the sums are
+// rebuilt from the records at once rather than at the next scheduled
+// rebuild, up to resyncEvery window lengths later. A record of the
+// window's own spread is about n times below the rest of the sum.
+const cancelLimit = 1e6
+
+// cancelled reports whether removing the record of weight wo whose
+// shifted row is in xo (swapSums, evict) cancelled the sums past
+// cancelLimit.
+func (c *covLearner) cancelled(wo float64) bool {
+	if !(wo <= cancelLimit*c.sw) {
+		return true // the weight sum W itself (a record of every feature at its shift)
+	}
+	d := c.ts.d
+	for j, v := range c.xo {
+		if v != 0 && wo*v*v > cancelLimit*c.sxx[j*d+j] {
+			return true
+		}
+	}
+	return false
+}
+
+// evict removes the oldest record from the sums and the window; it
+// reports whether the removal cancelled the sums past cancelLimit.
+func (c *covLearner) evict() bool {
 	ts := c.ts
 	if ts.ring.Len() == 1 {
 		ts.pop()
 		c.clearSums()
 		c.stale = true
-		return
+		return false
 	}
 	m, _ := ts.ring.Oldest()
 	x := ts.row(ts.ring.Slot(0))
@@ -316,6 +345,7 @@ func (c *covLearner) evict() {
 	c.sy -= m.w * eo
 	ts.pop()
 	c.stale = true
+	return c.cancelled(m.w)
 }
 
 // clearSums empties the sums.
@@ -348,10 +378,19 @@ func (c *covLearner) rebuild() {
 	}
 }
 
-// prepare refreshes the scale for the solve that run makes; it reports
+// prepare refreshes the scale for the solve that run makes and zeroes the
+// coefficients of constant features (as the SAGA learner's refresh: the
+// solver never moves a coefficient whose column of G is 0); it reports
 // true so that the ladder re-anchors its grid on the refreshed λ_max.
 func (c *covLearner) prepare() bool {
 	c.ts.refresh()
+	for j, v := range c.ts.inv {
+		if v == 0 {
+			for _, m := range c.ms {
+				m.theta[j] = 0
+			}
+		}
+	}
 	c.due, c.sys = true, false
 	return true
 }
@@ -393,7 +432,8 @@ func (c *covLearner) rescale() bool {
 	return false
 }
 
-// shrink evicts all but the newest n records and rebuilds the sums.
+// shrink evicts all but the newest n records, rebuilds the sums and marks
+// every member stale.
 func (c *covLearner) shrink(n int) bool {
 	n = max(n, 0)
 	if c.ts.ring.Len() <= n {
@@ -406,6 +446,11 @@ func (c *covLearner) shrink(n int) bool {
 	c.rebuild()
 	if c.ts.ring.Len() == 0 {
 		return false
+	}
+	// The solve of every member waits for the next run (Add or Idle):
+	// until then a read solves a copy on the shrunk window.
+	for _, m := range c.ms {
+		m.stale = true
 	}
 	return c.prepare()
 }

@@ -43,13 +43,23 @@ func (c *covLearner) read(i int) (float64, []float64) {
 // solveStale solves member m in th (its coefficients or a copy) from the
 // current sums on the working scale and returns the intercept and the KKT
 // violation. The system G, c is built once for all the members solved
-// until the sums or the scale change (sys).
+// until the sums or the scale change (sys). G and c are centred on the
+// window's current means, the working scale on the means of the last
+// refresh: the intercept on that scale is ȳ − Σ θ_j (x̄_j − μ_j)/s_j, the
+// minimizer of F over b for θ (it is ȳ when the means have not moved).
 func (c *covLearner) solveStale(m *gramMember, th []float64) (float64, float64) {
 	if !c.sys {
 		c.ybar = c.system(c.ts.inv)
 		c.sys = true
 	}
-	return c.ybar, c.solver.solve(th, m.lambda, c.alpha, gramTarget)
+	kkt := c.solver.solve(th, m.lambda, c.alpha, gramTarget)
+	b, rw := c.ybar, 1/c.sw
+	for j, t := range th {
+		if t != 0 {
+			b -= t * (c.cx[j] + c.sx[j]*rw - c.ts.mu[j]) * c.ts.inv[j]
+		}
+	}
+	return b, kkt
 }
 
 // exactScale fills the scratch scale with the window's exact running

@@ -447,3 +447,221 @@ func TestGramFrom(t *testing.T) {
 		}
 	}
 }
+
+// TestGramConstantFeature: a feature that goes constant on the window has
+// no coefficient in any member or optimum (its standardized column is 0,
+// so a nonzero θ_j is not a minimizer's: the lasso's KKT conditions, Hastie,
+// Tibshirani & Wainwright 2015, ch. 2, leave θ_j free only where X̃_j ≠ 0,
+// and the scaler's convention, like the SAGA learner's refresh, sets it to
+// 0), read on the record path and after Idle.
+func TestGramConstantFeature(t *testing.T) {
+	const n, d = 200, 4
+	p := gramStream(7, 4*n, d)
+	for i := 2 * n; i < 4*n; i++ {
+		p.x[i][0] = 1000 // feature 0, informative until now, goes flat
+	}
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, 2*n)
+	l.Idle(1)
+	if m := l.Model(l.Size() - 1); m.Standardized[0] == 0 {
+		t.Fatalf("feature 0 not in the smallest λ's model before it goes flat: %v", m.Standardized)
+	}
+	check := func(when string) {
+		t.Helper()
+		for i := range l.Size() {
+			if m := l.Model(i); m.Standardized[0] != 0 {
+				t.Errorf("%s: member %d θ_0 = %v on a constant feature", when, i, m.Standardized[0])
+			}
+			if o := l.Optimum(i, nil, nil); o.Model.Standardized[0] != 0 {
+				t.Errorf("%s: optimum %d θ_0 = %v on a constant feature", when, i, o.Model.Standardized[0])
+			}
+		}
+	}
+	feed(t, l, p, 2*n, 4*n)
+	check("record path")
+	l.Idle(1)
+	check("idle")
+}
+
+// TestGramResetFeatureReads: after ResetFeature (and Grow's seeding, the
+// same column rewrite) a member read is a solve on the window without the
+// column, not the old solution with its coefficient cut out: its KKT
+// violation (Hastie, Tibshirani & Wainwright 2015, ch. 2, from the learner's
+// sums) is within the published tolerance on the unchanged scale.
+func TestGramResetFeatureReads(t *testing.T) {
+	const n, d = 300, 5
+	p := gramStream(9, n, d)
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, n)
+	l.Idle(1)
+	i := l.Size() - 1
+	if m := l.Model(i); m.Standardized[0] == 0 {
+		t.Fatalf("feature 0 not in member %d: %v", i, m.Standardized)
+	}
+	l.ResetFeature(0)
+	for k := range l.Size() {
+		if v := l.KKT(k); !(v <= DefaultKKT) {
+			t.Errorf("member %d: KKT %g after ResetFeature", k, v)
+		}
+	}
+}
+
+// TestGramStaleReadIntercept: a member read between two refreshes of the
+// scale, on a stream whose means drift, has the intercept that minimizes
+// the squared loss for its coefficients: the window's mean residual
+// y − η is 0 (the unpenalized intercept's optimality condition, ∂F/∂b = 0;
+// Friedman, Hastie & Tibshirani 2010, §2.1), here computed from the raw
+// records and Model.Eta, not from the learner's sums.
+func TestGramStaleReadIntercept(t *testing.T) {
+	const n, d = 2000, 6
+	p := gramStream(3, 3*n, d)
+	for i := range p.x {
+		for j := range d {
+			p.x[i][j] += 0.002 * float64(i) // the means drift 4 sd per window
+		}
+	}
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Size: 6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := l.lrn.(*covLearner)
+	checked := 0
+	for i := range 3 * n {
+		feed(t, l, p, i, i+1)
+		if i < n || c.sinceSolve != c.every-1 {
+			continue // read the members one record before the next refresh
+		}
+		for k := 1; k < l.Size(); k++ {
+			m := l.Model(k)
+			var r float64
+			for q := i - n + 1; q <= i; q++ {
+				r += p.y[q] - m.Eta(p.x[q])
+			}
+			if r /= n; !(math.Abs(r) <= 1e-9) {
+				t.Errorf("record %d: member %d's mean residual %g", i, k, r)
+			}
+		}
+		checked++
+	}
+	if checked < 50 {
+		t.Fatalf("%d reads checked, want 50 or more", checked)
+	}
+}
+
+// TestGramFarRecordLeaves: a valid record far out of the window's spread
+// (1e30 in one feature, within the accepted ±1e50) enters and leaves the
+// window; once it has left, the gram ladder's optimum equals that of a
+// ladder fed only the records of its window (to 1e-9), and its KKT
+// residual measured on the records (ModelKKT, Hastie, Tibshirani &
+// Wainwright 2015, ch. 2) is within the published tolerance: the sums'
+// cancellation is repaired by a rebuild, not carried to the next
+// scheduled one.
+func TestGramFarRecordLeaves(t *testing.T) {
+	const n, d = 500, 4
+	p := gramStream(3, 3*n, d)
+	p.x[n+10][1] = 1e30
+	for _, lam := range []float64{0.01, 0.1, 1} { // a fixed λ: the grids of the two ladders would differ
+		farRecord(t, p, n, d, lam)
+	}
+}
+
+// farRecord is TestGramFarRecordLeaves at one fixed λ.
+func farRecord(t *testing.T, p problem, n, d int, lam float64) {
+	t.Helper()
+	l, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Lambda: lam})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref, err := NewLadder(&Options{Features: d, Window: n, Learner: "gram", Lambda: lam})
+	if err != nil {
+		t.Fatal(err)
+	}
+	feed(t, l, p, 0, 3*n)
+	feed(t, ref, p, 2*n, 3*n)
+	for i := range l.Size() {
+		got, want := l.Optimum(i, nil, nil).Model, ref.Optimum(i, nil, nil).Model
+		if !(relDist(got.Coef, want.Coef) <= 1e-9) {
+			t.Errorf("λ %v: coef %v, the window alone %v", lam, got.Coef, want.Coef)
+		}
+		if k := l.ModelKKT(&got); !(k <= DefaultKKT) {
+			t.Errorf("λ %v: KKT on the records %g", lam, k)
+		}
+	}
+}
+
+// TestGramHeavyRecordLeaves: a record of weight 1e20 (within the accepted
+// [1e-50, 1e50]) on a window whose feature is constant enters and leaves;
+// once it has left, the published intercept is the window's mean label
+// (with a constant feature the squared loss's minimizer is the intercept
+// alone, b = ȳ: common practice, no single source), not the NaN or
+// garbage of a weight sum that cancelled to 0.
+func TestGramHeavyRecordLeaves(t *testing.T) {
+	const n = 300
+	r := rand.New(rand.NewPCG(1, 2))
+	l, err := NewLadder(&Options{Features: 1, Window: n, Learner: "gram", Lambda: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sum float64
+	for i := range 3 * n {
+		y, w := r.NormFloat64(), 1.0
+		if i == n+7 {
+			y, w = 100, 1e20
+		}
+		if err := l.Add(Record{X: []float64{5}, Y: y, W: w}); err != nil {
+			t.Fatal(err)
+		}
+		if i >= 2*n {
+			sum += y
+		}
+	}
+	o := l.Optimum(0, nil, nil)
+	if want := sum / n; !(math.Abs(o.Model.Intercept-want) <= 1e-9) || o.Model.Weight != n {
+		t.Fatalf("intercept %v (want %v), weight %v (want %d), KKT %v", o.Model.Intercept, want, o.Model.Weight, n, o.KKT)
+	}
+}
+
+// TestGramShrinkReads: right after Shrink (drift adaptation), before any
+// record arrives, a member read is solved on the shrunk window: its KKT
+// violation (Hastie, Tibshirani & Wainwright 2015, ch. 2, from the
+// learner's sums on the refreshed scale) is within the published
+// tolerance, and its model equals the window's optimum.
+func TestGramShrinkReads(t *testing.T) {
+	const n, d = 1000, 5
+	p := gramStream(13, 2*n, d)
+	for i := n + n/2; i < 2*n; i++ {
+		p.y[i] -= 6 * (p.x[i][2] - 1000) // the newest half follows another truth
+	}
+	for _, o := range []Options{{Size: 6}, {Lambda: 0.05}} { // a grid that re-anchors, and a fixed λ
+		o.Features, o.Window, o.Learner = d, n, "gram"
+		shrinkReads(t, p, &o)
+	}
+}
+
+// shrinkReads is TestGramShrinkReads with the options o.
+func shrinkReads(t *testing.T, p problem, o *Options) {
+	t.Helper()
+	l, err := NewLadder(o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := o.Window
+	feed(t, l, p, 0, 2*n)
+	l.Idle(1)
+	l.Shrink(n / 2)
+	for i := range l.Size() {
+		if v := l.KKT(i); !(v <= DefaultKKT) {
+			t.Errorf("member %d: KKT %g after Shrink", i, v)
+		}
+		m, o := l.Model(i), l.Optimum(i, nil, nil).Model
+		if !(relDist(m.Standardized, o.Standardized) <= 1e-6) {
+			t.Errorf("member %d: %v, the optimum %v", i, m.Standardized, o.Standardized)
+		}
+	}
+}

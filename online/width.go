@@ -284,8 +284,10 @@ func (c *covLearner) seed(j int, v float64) {
 }
 
 // setCol sets column j of the window to v and every member's coefficient
-// for it to 0. The shift of column j moves to v, so its shifted values,
-// and with them its row and column of the sums, are exactly 0.
+// for it to 0, and marks every member stale (its other coefficients were
+// solved with the column: a read solves it again). The shift of column j
+// moves to v, so its shifted values, and with them its row and column of
+// the sums, are exactly 0.
 func (c *covLearner) setCol(j int, v float64) {
 	c.ts.setColumn(j, v)
 	d := c.ts.d
@@ -294,7 +296,7 @@ func (c *covLearner) setCol(j int, v float64) {
 		c.sxx[j*d+k], c.sxx[k*d+j] = 0, 0
 	}
 	for _, m := range c.ms {
-		m.theta[j] = 0
+		m.theta[j], m.stale = 0, true
 	}
 	c.stale, c.sys = true, false
 }

@@ -176,7 +176,10 @@ func TestResetFeature(t *testing.T) {
 					t.Fatalf("member %d after reset: θ %v coef %v mean %v std %v", i, m.Standardized[1], m.Coef[1], m.Mean[1], m.Std[1])
 				}
 			}
-			if after := l.Model(3); after.Standardized[0] != before.Standardized[0] {
+			// A gram member read after a reset is solved again without the
+			// column (its other coefficients move); its scale is untouched.
+			if after := l.Model(3); after.Mean[0] != before.Mean[0] || after.Std[0] != before.Std[0] ||
+				learner != "gram" && after.Standardized[0] != before.Standardized[0] {
 				t.Fatal("reset touched another column")
 			}
 			if !l.Fresh(1) {

@@ -142,7 +142,8 @@ func (p *Pipeline) marshalTuner(e enc) {
 // Upgraded reports it), with the rest of the state (held-out ring,
 // chooser, drift watch, threshold, version, stream position) as saved;
 // and a state saved with learner.kind unset by such a version is restored
-// under an explicit saga as it was. The threshold's mode and target are the configuration's, or
+// under an explicit saga as it was; an unset learner.kind and an
+// explicit gram restore each other's states (the same learner). The threshold's mode and target are the configuration's, or
 // the saved override's (o.Threshold), as at a fresh start; the tuned
 // threshold itself is restored when they have not changed.
 func Restore(o Options, b []byte) (*Pipeline, error) {

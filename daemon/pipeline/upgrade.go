@@ -17,12 +17,15 @@ import (
 // unset or saga, the other of the two (a version of lariat whose default
 // was saga saved its models with the kind unset, and an unset kind now
 // means gram for the squared loss: restoreModel takes a SAGA ladder over
-// into a gram ladder then, and keeps it under an explicit saga).
+// into a gram ladder then, and keeps it under an explicit saga); with the
+// kind unset or gram, the other of the two (the same learner for the
+// squared loss, the only loss gram runs; the ladder's own learner is
+// checked by upgrade).
 func fingerprintKinds(m *config.Model) []string {
 	switch m.Learner.Kind {
 	case "":
-		return []string{config.LearnerSAGA}
-	case config.LearnerSAGA:
+		return []string{config.LearnerSAGA, config.LearnerGram}
+	case config.LearnerSAGA, config.LearnerGram:
 		return []string{""}
 	}
 	return nil

@@ -150,3 +150,49 @@ func otherState(t *testing.T, p *Pipeline) []byte {
 	p.marshalTail(e)
 	return e.Bytes()
 }
+
+// TestRestoreGramUnsetOrExplicit: learner.kind unset runs gram for the
+// squared loss, so a state saved with the kind unset is restored under an
+// explicit gram, and one saved under an explicit gram with the kind unset,
+// with the ladder bit for bit (the same learner: writing down the default
+// must not start the model fresh). Source: the learner's default
+// (config.Learner.EffectiveKind), no external source.
+func TestRestoreGramUnsetOrExplicit(t *testing.T) {
+	const window, d = 500, 4
+	m := driftModel("explicit", config.LossSquared, featureNames(d), window)
+	m.Learner.Kind = ""
+	explicit := m
+	explicit.Learner.Kind = config.LearnerGram
+	for _, c := range []struct {
+		name     string
+		from, to *config.Model
+	}{{"unset to gram", &m, &explicit}, {"gram to unset", &explicit, &m}} {
+		t.Run(c.name, func(t *testing.T) {
+			h := newHarness(t, *c.from)
+			s := &sparseStream{rng: rand.New(rand.NewPCG(3, 4))}
+			x := make([]float64, d)
+			for range 1200 {
+				h.feed(x, s.next(x))
+			}
+			state, err := h.p.MarshalBinary()
+			if err != nil {
+				t.Fatal(err)
+			}
+			q, err := Restore(Options{Model: c.to}, state)
+			if err != nil {
+				t.Fatalf("restore: %v", err)
+			}
+			a, err := h.p.Ladder().MarshalBinary()
+			if err != nil {
+				t.Fatal(err)
+			}
+			b, err := q.Ladder().MarshalBinary()
+			if err != nil {
+				t.Fatal(err)
+			}
+			if q.Ladder().Learner() != config.LearnerGram || q.Upgraded() || !bytes.Equal(a, b) {
+				t.Fatalf("restored a %s ladder (upgraded %v), same bytes %v", q.Ladder().Learner(), q.Upgraded(), bytes.Equal(a, b))
+			}
+		})
+	}
+}
