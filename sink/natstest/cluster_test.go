@@ -16,7 +16,7 @@ import (
 
 // connectJS connects a client to url and returns its JetStream context; the
 // connection closes at the end of the test.
-func connectJS(t *testing.T, url string) jetstream.JetStream {
+func connectJS(t testing.TB, url string) jetstream.JetStream {
 	t.Helper()
 	nc, err := nats.Connect(url)
 	if err != nil {

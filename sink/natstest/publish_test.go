@@ -26,15 +26,8 @@ func keyed(keys int) func(i int) (string, []byte) {
 // replicas.
 func setupStream(t testing.TB, url string, replicas int) (*nats.Conn, jetstream.Stream) {
 	t.Helper()
-	nc, err := nats.Connect(url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(nc.Close)
-	js, err := jetstream.New(nc)
-	if err != nil {
-		t.Fatal(err)
-	}
+	js := connectJS(t, url)
+	nc := js.Conn()
 	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 	defer cancel()
 	st, err := js.CreateStream(ctx, jetstream.StreamConfig{
