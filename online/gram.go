@@ -196,7 +196,7 @@ func (c *covLearner) add(x []float64, y, w float64, t int64) bool {
 		s := ts.ring.Slot(0)
 		old := ts.row(s)
 		c.swapSums(old, m.w, m.y, x, w, y)
-		lost = c.cancelled(m.w) || lost
+		lost = c.cancelled(m.w, c.xo) || lost
 		ts.replace(x, y, w, t, 0, 0)
 		copy(old, x)
 	} else {
@@ -303,14 +303,14 @@ func (c *covLearner) swapSums(xo []float64, wo, yo float64, x []float64, w, y fl
 const cancelLimit = 1e6
 
 // cancelled reports whether removing the record of weight wo whose
-// shifted row is in xo (swapSums, evict) cancelled the sums past
+// shifted row is xo (swapSums, evict) cancelled the sums past
 // cancelLimit.
-func (c *covLearner) cancelled(wo float64) bool {
+func (c *covLearner) cancelled(wo float64, xo []float64) bool {
 	if !(wo <= cancelLimit*c.sw) {
 		return true // the weight sum W itself (a record of every feature at its shift)
 	}
 	d := c.ts.d
-	for j, v := range c.xo {
+	for j, v := range xo {
 		if v != 0 && wo*v*v > cancelLimit*c.sxx[j*d+j] {
 			return true
 		}
@@ -319,7 +319,9 @@ func (c *covLearner) cancelled(wo float64) bool {
 }
 
 // evict removes the oldest record from the sums and the window; it
-// reports whether the removal cancelled the sums past cancelLimit.
+// reports whether the removal cancelled the sums past cancelLimit. The
+// removal is the addition of the record with weight −w (bit for bit the
+// subtraction: negation is exact).
 func (c *covLearner) evict() bool {
 	ts := c.ts
 	if ts.ring.Len() == 1 {
@@ -329,23 +331,10 @@ func (c *covLearner) evict() bool {
 		return false
 	}
 	m, _ := ts.ring.Oldest()
-	x := ts.row(ts.ring.Slot(0))
-	d := ts.d
-	c.sys = false
-	for j := range d {
-		c.xo[j] = x[j] - c.cx[j]
-	}
-	eo := m.y - c.cy
-	for j := range d {
-		axpy(-m.w*c.xo[j], c.xo[j:], c.sxx[j*d+j:(j+1)*d])
-	}
-	axpy(-m.w, c.xo, c.sx)
-	axpy(-m.w*eo, c.xo, c.sxy)
-	c.sw -= m.w
-	c.sy -= m.w * eo
+	c.swapSums(nil, 0, 0, ts.row(ts.ring.Slot(0)), -m.w, m.y)
 	ts.pop()
 	c.stale = true
-	return c.cancelled(m.w)
+	return c.cancelled(m.w, c.xc)
 }
 
 // clearSums empties the sums.
@@ -457,8 +446,11 @@ func (c *covLearner) shrink(n int) bool {
 
 // solve solves every member on the scale of the last refresh (ts.mu,
 // ts.inv), each from its previous solution (on the first solve, from the
-// member above it: warm starts down the path).
-func (c *covLearner) solve() {
+// member above it: warm starts down the path), to gramTarget.
+func (c *covLearner) solve() { c.solveTo(gramTarget) }
+
+// solveTo is solve to KKT target.
+func (c *covLearner) solveTo(target float64) {
 	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
 	for _, m := range c.ms {
 		m.stale = false
@@ -472,7 +464,7 @@ func (c *covLearner) solve() {
 		if !c.solved && i > 0 {
 			copy(m.theta, c.ms[i-1].theta)
 		}
-		m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, gramTarget)
+		m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, target)
 		m.b = ybar
 	}
 	c.solved = true
@@ -530,19 +522,11 @@ func (c *covLearner) converge(l *Ladder, tol float64, _ int) bool {
 	c.rebuild()
 	c.prepare()
 	l.reanchor(c.lambdaMax(l.alpha0))
-	c.due, c.lazy, c.stale, c.sinceSolve = false, false, false, 0
-	ybar := c.system(c.ts.inv)
-	c.sys, c.ybar = true, ybar
-	ok := true
-	for i, m := range c.ms {
-		m.stale = false
-		if !c.solved && i > 0 {
-			copy(m.theta, c.ms[i-1].theta)
+	c.solveTo(min(tol/1000, gramTarget))
+	for _, m := range c.ms {
+		if !(m.kkt <= tol) {
+			return false
 		}
-		m.kkt = c.solver.solve(m.theta, m.lambda, c.alpha, min(tol/1000, gramTarget))
-		m.b = ybar
-		ok = ok && m.kkt <= tol
 	}
-	c.solved = true
-	return ok
+	return true
 }

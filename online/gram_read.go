@@ -93,13 +93,7 @@ func (c *covLearner) recordsKKT(b float64, th []float64, lam float64) float64 {
 	c.exactScale()
 	grad, xs := c.xo, c.xc // scratch of add, free outside it
 	clear(grad)
-	for j, v := range c.inv {
-		if v == 0 {
-			c.thetaR[j] = 0
-		} else {
-			c.thetaR[j] = th[j]
-		}
-	}
+	c.masked(th)
 	var gb float64
 	for k, sl := range ts.order() {
 		r := ts.ring.At(k)
@@ -136,14 +130,22 @@ func (c *covLearner) optimum(l *Ladder, i int, target float64) (Model, float64) 
 	}
 	c.exactScale()
 	ybar := c.system(c.inv)
-	copy(c.thetaR, m.theta)
+	c.masked(m.theta)
+	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
+	return c.model(l, i, ybar, c.thetaR), kkt
+}
+
+// masked copies th into the scratch thetaR with the coefficients of the
+// features constant on the window (inverse scale 0 on the exact scale,
+// exactScale) set to 0.
+func (c *covLearner) masked(th []float64) {
 	for j, v := range c.inv {
 		if v == 0 {
 			c.thetaR[j] = 0
+		} else {
+			c.thetaR[j] = th[j]
 		}
 	}
-	kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, target)
-	return c.model(l, i, ybar, c.thetaR), kkt
 }
 
 // path is OptimumPath for the gram learner: every member's exact fit on
@@ -164,12 +166,7 @@ func (c *covLearner) path(l *Ladder, o *ExactOptions, dst []Optimum) []Optimum {
 	c.exactScale()
 	ybar := c.system(c.inv)
 	for i, m := range c.ms {
-		copy(c.thetaR, m.theta)
-		for j, v := range c.inv {
-			if v == 0 {
-				c.thetaR[j] = 0
-			}
-		}
+		c.masked(m.theta)
 		kkt := c.solver.solve(c.thetaR, m.lambda, c.alpha, o.Target)
 		dst = append(dst, Optimum{Model: c.model(l, i, ybar, c.thetaR), KKT: kkt, Converged: kkt <= o.Tol})
 	}
