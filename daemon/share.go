@@ -473,7 +473,7 @@ func (sh *share) take(pt *part, pin string) {
 	pt.pin.Store(&pin)
 	pt.held.Store(true)
 	t.d.tm.Takeovers.WithLabelValues(t.name).Inc()
-	t.d.tm.Partitions.WithLabelValues(t.name).Set(float64(len(t.heldParts())))
+	sh.gaugeHeld()
 	t.log.Info("partition taken", "partition", pt.n, "from", pt.floor+1, "held", t.heldParts())
 }
 
@@ -513,7 +513,7 @@ func (sh *share) lose(pt *part, why string) {
 	sh.t.mu.Lock()
 	sh.t.forget(pt)
 	sh.t.mu.Unlock()
-	sh.t.d.tm.Partitions.WithLabelValues(sh.t.name).Set(float64(len(sh.t.heldParts())))
+	sh.gaugeHeld()
 	sh.t.log.Warn("partition lost; its instances stopped without a checkpoint", "partition", pt.n, "why", why, "held", sh.t.heldParts())
 }
 
@@ -529,12 +529,16 @@ func (sh *share) release(pt *part) {
 	if err != nil {
 		t.log.Error("partition index not saved before the handover", "partition", pt.n, "err", err)
 	}
-	pt.held.Store(false)
 	ctx, cancel := context.WithTimeout(context.Background(), sh.ttl)
 	defer cancel()
 	sh.unpin(ctx, pt)
-	t.d.tm.Partitions.WithLabelValues(t.name).Set(float64(len(t.heldParts())))
+	sh.gaugeHeld()
 	t.log.Info("partition handed over", "partition", pt.n, "held", t.heldParts())
+}
+
+// gaugeHeld sets lariat_template_partitions_held to the partitions held.
+func (sh *share) gaugeHeld() {
+	sh.t.d.tm.Partitions.WithLabelValues(sh.t.name).Set(float64(len(sh.t.heldParts())))
 }
 
 // unpin gives up the server's pin of partition pt, so that another
